@@ -1,0 +1,20 @@
+"""Solvers ("backends") behind one protocol, and the registry that finds them."""
+
+from .base import Backend, Parameter, SolverError, Support, Unsupported
+from .registry import all_backends, get, names
+from .result import Observable, Result, Solution, results_to_dataframe
+
+__all__ = [
+    "Backend",
+    "Observable",
+    "Parameter",
+    "Result",
+    "Solution",
+    "SolverError",
+    "Support",
+    "Unsupported",
+    "all_backends",
+    "get",
+    "names",
+    "results_to_dataframe",
+]

@@ -1,0 +1,143 @@
+"""Extrapolation of a ladder of approximations to the exact limit, with an error bar.
+
+Two asymptotic forms serve every backend:
+
+- ``extrapolate_polynomial``: E(h) = E_0 + sum_k c_k h^(p_k) with known powers (Richardson
+  extrapolation generalized to weighted least squares), e.g. h = lattice spacing a with powers
+  (2, 3) or (2, 4); h = 1/chi or a truncation error for DMRG with power 1.
+- ``extrapolate_power_law``: E(n) = E_inf + A n^(-p) with unknown p (fitted), e.g. n = an orbital or
+  energy cutoff of a basis expansion.
+
+The error bar is deliberately conservative (common practice in convergence studies): it is the
+largest of (i) the fit's own standard error, (ii) the change of the limit when the least-converged
+point is dropped, (iii) the change when the model loses its highest-order term, and (iv) a floor of
+``floor_fraction`` times the last correction (E_last - E_0). A single point gives no extrapolation.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Extrapolation:
+    """The limit ``value`` +- ``error`` from a ladder (``steps``, ``values``), and how it was found."""
+
+    value: float
+    error: float
+    model: str
+    steps: tuple[float, ...]
+    values: tuple[float, ...]
+    parameters: dict = field(default_factory=dict)
+
+    def as_dict(self) -> dict:
+        return {
+            "value": self.value,
+            "error": self.error,
+            "model": self.model,
+            "steps": list(self.steps),
+            "values": list(self.values),
+            "parameters": dict(self.parameters),
+        }
+
+
+def _fit_polynomial(h: np.ndarray, y: np.ndarray, powers: Sequence[float]) -> tuple[float, float, np.ndarray]:
+    design = np.column_stack([np.ones_like(h)] + [h**p for p in powers])
+    coef, *_ = np.linalg.lstsq(design, y, rcond=None)
+    dof = len(h) - design.shape[1]
+    if dof > 0:
+        residual = y - design @ coef
+        sigma2 = float(residual @ residual) / dof
+        cov = sigma2 * np.linalg.pinv(design.T @ design)
+        stderr = float(np.sqrt(max(cov[0, 0], 0.0)))
+    else:
+        stderr = 0.0
+    return float(coef[0]), stderr, coef
+
+
+def extrapolate_polynomial(
+    steps: Sequence[float],
+    values: Sequence[float],
+    powers: Sequence[float] = (2.0,),
+    floor_fraction: float = 0.05,
+) -> Extrapolation:
+    """Limit h -> 0 of values(h) = E_0 + sum_k c_k h^(p_k); needs len(steps) >= 1 + len(powers)."""
+    h = np.asarray(steps, dtype=float)
+    y = np.asarray(values, dtype=float)
+    order = np.argsort(h)
+    h, y = h[order], y[order]
+    powers = tuple(powers)
+    if len(h) < 1 + len(powers):
+        raise ValueError(f"{len(h)} points cannot fix {1 + len(powers)} coefficients; add steps or drop powers")
+    value, stderr, coef = _fit_polynomial(h, y, powers)
+    candidates = [stderr, floor_fraction * abs(y[0] - value)]
+    if len(h) >= 2 + len(powers):
+        candidates.append(abs(_fit_polynomial(h[:-1], y[:-1], powers)[0] - value))
+    if len(powers) >= 2:
+        lower = powers[:-1]
+        candidates.append(abs(_fit_polynomial(h[: 1 + len(lower) + 1], y[: 1 + len(lower) + 1], lower)[0] - value))
+    elif len(h) >= 2:
+        # one power: compare with the raw finest value as the crudest alternative, damped by the fit order
+        candidates.append(abs(y[0] - value) * (h[0] / h[-1]) ** powers[0])
+    return Extrapolation(
+        value=value,
+        error=float(max(candidates)),
+        model="E(h) = E0 + " + " + ".join(f"c{p:g} h^{p:g}" for p in powers),
+        steps=tuple(h.tolist()),
+        values=tuple(y.tolist()),
+        parameters={"coefficients": coef.tolist(), "powers": list(powers)},
+    )
+
+
+def extrapolate_power_law(
+    cutoffs: Sequence[float],
+    values: Sequence[float],
+    power_bounds: tuple[float, float] = (0.2, 6.0),
+    floor_fraction: float = 0.05,
+) -> Extrapolation:
+    """Limit n -> inf of values(n) = E_inf + A n^(-p), p fitted within ``power_bounds``.
+
+    Needs at least three cutoffs. With exactly three the model is solved exactly; with more the
+    exponent minimizes the least-squares residual over a fine scan of p, weighting the largest
+    cutoffs most (the asymptotic regime).
+    """
+    n = np.asarray(cutoffs, dtype=float)
+    y = np.asarray(values, dtype=float)
+    order = np.argsort(n)
+    n, y = n[order], y[order]
+    if len(n) < 3:
+        raise ValueError(f"a power law needs at least 3 cutoffs, got {len(n)}")
+
+    def fit(nn: np.ndarray, yy: np.ndarray) -> tuple[float, float, float]:
+        weights = (nn / nn[-1]) ** 2
+        best = None
+        for p in np.linspace(*power_bounds, 581):
+            design = np.column_stack([np.ones_like(nn), nn ** (-p)])
+            w = np.sqrt(weights)
+            coef, *_ = np.linalg.lstsq(design * w[:, None], yy * w, rcond=None)
+            res = float(np.sum(weights * (yy - design @ coef) ** 2))
+            if best is None or res < best[0]:
+                best = (res, float(coef[0]), float(coef[1]), float(p))
+        return best[1], best[2], best[3]
+
+    value, amplitude, power = fit(n, y)
+    candidates = [floor_fraction * abs(y[-1] - value)]
+    if len(n) >= 4:
+        candidates.append(abs(fit(n[1:], y[1:])[0] - value))
+    # the exponent is the least certain ingredient: shift it by 25% either way
+    for scale in (0.75, 1.25):
+        p = power * scale
+        design = np.column_stack([np.ones_like(n[-3:]), n[-3:] ** (-p)])
+        coef, *_ = np.linalg.lstsq(design, y[-3:], rcond=None)
+        candidates.append(abs(float(coef[0]) - value))
+    return Extrapolation(
+        value=value,
+        error=float(max(candidates)),
+        model="E(n) = E_inf + A n^-p",
+        steps=tuple(n.tolist()),
+        values=tuple(y.tolist()),
+        parameters={"amplitude": amplitude, "power": power},
+    )

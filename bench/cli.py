@@ -1,0 +1,66 @@
+"""The ``trapbench`` command. Each subcommand lives in its own module of ``trapbench.bench.commands``.
+
+A command module defines ``NAME``, ``HELP`` and ``register(parser)`` (add its arguments) and
+``run(args) -> int`` (the exit code). Errors of user input (SpecError, unknown backend,
+unsupported problem) print one line and exit with status 2; failed computations exit with 1.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import pkgutil
+import sys
+
+from ..backends.base import SolverError, Unsupported
+from ..backends.registry import UnknownBackend
+from ..problems.errors import SpecError
+from . import commands
+
+EXIT_INPUT_ERROR = 2
+EXIT_FAILED = 1
+
+
+def _command_modules() -> list:
+    modules = [importlib.import_module(f"{commands.__name__}.{info.name}") for info in pkgutil.iter_modules(commands.__path__)]
+    return sorted((m for m in modules if hasattr(m, "NAME")), key=lambda m: getattr(m, "ORDER", 50))
+
+
+def build_parser() -> tuple[argparse.ArgumentParser, dict]:
+    from .. import __version__
+
+    parser = argparse.ArgumentParser(
+        prog="trapbench",
+        description="Few fermions in a 1D trap: one problem, every method, agreement and cost.",
+    )
+    parser.add_argument("--version", action="version", version=f"trapbench {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    runners = {}
+    for module in _command_modules():
+        command = sub.add_parser(module.NAME, help=module.HELP, description=module.HELP)
+        module.register(command)
+        runners[module.NAME] = module.run
+    return parser, runners
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser, runners = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return EXIT_INPUT_ERROR
+    try:
+        return runners[args.command](args)
+    except (SpecError, UnknownBackend, Unsupported) as exc:
+        print(f"trapbench {args.command}: error: {exc}", file=sys.stderr)
+        return EXIT_INPUT_ERROR
+    except SolverError as exc:
+        print(f"trapbench {args.command}: failed: {exc}", file=sys.stderr)
+        return EXIT_FAILED
+    except KeyboardInterrupt:
+        print(f"trapbench {args.command}: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())
