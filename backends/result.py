@@ -14,6 +14,29 @@ from typing import Any
 
 import numpy as np
 
+# Names every backend uses for the same physical quantity (suffix "@k" for state k > 0, e.g.
+# "density_up@1"). Scalars:
+SCALAR_NAMES = {
+    "trap_energy": "<sum_i V_s(x_i)>, hbar*omega_ref",
+    "kinetic_energy": "<sum_i p_i^2/(2 m_s)>, hbar*omega_ref",
+    "delta": "<sum_{i in up, j in down} delta(x_i - x_j)> = dE/dg (Hellmann-Feynman), 1/length",
+    "contact": "Tan contact C = (2 mu)^2 g^2 <sum delta>, so that n_s(k) -> C/k^4 with"
+    " integral dk/(2 pi) n_s(k) = N_s; mu = reduced mass in m0",
+    "noise_integral": "integral dp1 dp2 C(p1, p2)^2 of the noise correlation map",
+}
+# Observables (arrays on grids):
+OBSERVABLE_NAMES = {
+    "density_up": "n_up(x), integral dx = N_up",
+    "density_down": "n_down(x), integral dx = N_down",
+    "momentum_up": "n_up(p), integral dp = N_up",
+    "momentum_down": "n_down(p), integral dp = N_down",
+    "obdm_up": "rho_up(x, x') = <psi+_up(x) psi_up(x')>, trace = N_up",
+    "obdm_down": "rho_down(x, x'), trace = N_down",
+    "pair_position": "G(x1, x2) = <n_up(x1) n_down(x2)>, integral = N_up N_down",
+    "pair_momentum": "G(p1, p2) = <n_up(p1) n_down(p2)>, integral = N_up N_down",
+    "noise": "C(p1, p2) = G(p1, p2) - n_up(p1) n_down(p2), integral = 0",
+}
+
 UNITS = {
     "energy": "hbar*omega_ref",
     "length": "sqrt(hbar/(m0*omega_ref))",
