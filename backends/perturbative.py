@@ -1,0 +1,163 @@
+"""Backend ``perturbative``: non-interacting levels plus the exact first-order shift in g.
+
+Unperturbed states are pairs of Slater determinants of oscillator orbitals, one per species,
+phi_n(x; b_s) with width b_s = 1/sqrt(m_s omega_s), and energies
+
+    E0 = sum_s omega_s sum_{n occupied} (n + 1/2)      (ground state: sum_s omega_s N_s^2 / 2).
+
+First-order (Rayleigh-Schroedinger, degenerate where needed) perturbation theory in
+V = g sum_{i up, j down} delta(x_i - x_j): within each degenerate manifold of E0 the matrix
+W_IJ = <I| sum delta |J> is diagonalized, E = E0 + g w. For a non-degenerate ground state
+w = sum_{i < N_up} sum_{j < N_down} integral phi_i(x; b_up)^2 phi_j(x; b_down)^2 dx.
+Matrix elements follow from the Slater-Condon rules for the one-body densities rho_s(x), and the
+x-integrals of four oscillator orbitals are done exactly by Gauss-Hermite quadrature (the integrand
+is a polynomial times exp(-x^2 (1/b_up^2 + 1/b_down^2))). The result is exact at g = 0 and
+first-order only otherwise: valid for |g| small against the level spacing.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from typing import Any
+
+import numpy as np
+
+from ..problems.spec import Problem
+from .base import Backend, Support
+from .result import Solution
+
+DEGENERACY_TOLERANCE = 1e-10
+
+
+def hermite_polynomial_part(n_max: int, y: np.ndarray) -> np.ndarray:
+    """h_n(y) for n = 0..n_max, where phi_n(y) = h_n(y) exp(-y^2/2) is the normalized oscillator orbital."""
+    values = np.zeros((n_max + 1, len(y)))
+    values[0] = np.pi**-0.25
+    if n_max >= 1:
+        values[1] = math.sqrt(2) * y * values[0]
+    for k in range(1, n_max):
+        values[k + 1] = math.sqrt(2 / (k + 1)) * y * values[k] - math.sqrt(k / (k + 1)) * values[k - 1]
+    return values
+
+
+def configurations(count: int, max_excitation: int) -> list[tuple[tuple[int, ...], int]]:
+    """(occupied orbitals, excitation) of ``count`` fermions with excitation sum(n) - count(count-1)/2 <= max."""
+    ground = count * (count - 1) // 2
+    found = []
+    for occ in itertools.combinations(range(count + max_excitation), count):
+        if sum(occ) - ground <= max_excitation:
+            found.append((occ, sum(occ) - ground))
+    return found
+
+
+def density_matrix_elements(left: tuple, right: tuple, orbitals: np.ndarray) -> np.ndarray | None:
+    """<left| rho(x_q) |right> at the quadrature points, by the Slater-Condon rules (None if zero)."""
+    if left == right:
+        return np.sum(orbitals[list(left)] ** 2, axis=0)
+    only_left = set(left) - set(right)
+    if len(only_left) != 1:
+        return None
+    (a,) = only_left
+    (b,) = set(right) - set(left)
+    common = set(left) & set(right)
+    sign = (-1) ** (sum(1 for c in common if c < a) + sum(1 for c in common if c < b))
+    return sign * orbitals[a] * orbitals[b]
+
+
+class PerturbativeBackend(Backend):
+    name = "perturbative"
+    version = "1"
+    summary = "Non-interacting levels + exact first-order shift in g (degenerate perturbation theory); small |g| only"
+    parameters = ()
+
+    def supports(self, problem: Problem) -> Support:
+        if not problem.trap.is_harmonic:
+            return Support.no(f"oscillator orbitals need a harmonic trap (got '{problem.trap.shape}')")
+        return Support.yes("first order in g: valid for small |g| only")
+
+    def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
+        g = problem.coupling
+        wanted = {"any": None, "even": 0, "odd": 1}[problem.targets.parity]
+        k = problem.targets.states
+        step = min(problem.up.omega, problem.down.omega)
+        cut = 0.0
+        manifolds = self._manifolds(problem, cut, wanted)
+        while sum(len(pairs) for pairs in manifolds.values()) < k:
+            cut += step
+            manifolds = self._manifolds(problem, cut, wanted)
+        levels = []
+        for energy0, pairs in sorted(manifolds.items()):
+            shifts = np.linalg.eigvalsh(self._interaction_matrix(problem, pairs))
+            for w in shifts:
+                multiplicity = int(np.sum(np.abs(shifts - w) <= DEGENERACY_TOLERANCE * max(1.0, abs(w))))
+                degeneracy = multiplicity if g != 0 else len(pairs)
+                parity = (-1) ** (sum(pairs[0][0]) + sum(pairs[0][1]))
+                levels.append(
+                    {
+                        "energy": energy0 + g * w,
+                        "parity": parity,
+                        "degeneracy": degeneracy,
+                        "com": None,
+                        "unperturbed_energy": energy0,
+                        "first_order_coefficient": float(w),
+                    }
+                )
+        levels.sort(key=lambda s: s["energy"])
+        chosen = levels[:k]
+        warnings = []
+        if g != 0:
+            warnings.append("first-order perturbation theory: the error is O(g^2); use only for |g| << 1")
+        return Solution(
+            energies=[s.pop("energy") for s in chosen],
+            states=chosen,
+            error_estimate=0.0 if g == 0 else None,
+            warnings=warnings,
+            diagnostics={"excitation_energy_cut": cut, "manifolds": len(manifolds)},
+        )
+
+    @staticmethod
+    def _manifolds(problem: Problem, cut: float, parity: int | None) -> dict[float, list]:
+        """Determinant pairs grouped by unperturbed energy, for excitation energy <= ``cut``.
+
+        Every manifold below the cut is complete, whatever the two trap frequencies.
+        """
+        up, down = problem.up, problem.down
+        ground = up.omega * up.count**2 / 2 + down.omega * down.count**2 / 2
+        groups: dict[float, list] = {}
+        slack = 1e-9 * max(1.0, cut)
+        for occ_up, m_up in configurations(up.count, int((cut + slack) // up.omega)):
+            for occ_down, m_down in configurations(down.count, int((cut + slack) // down.omega)):
+                excitation = up.omega * m_up + down.omega * m_down
+                if excitation > cut + slack:
+                    continue
+                if parity is not None and (sum(occ_up) + sum(occ_down)) % 2 != parity:
+                    continue
+                groups.setdefault(ground + round(excitation, 9), []).append((occ_up, occ_down))
+        return groups
+
+    @staticmethod
+    def _interaction_matrix(problem: Problem, pairs: list) -> np.ndarray:
+        """W_IJ = <I| sum_{i up, j down} delta(x_i - x_j) |J> within one manifold, exactly."""
+        n_max = max(max(u + d, default=0) for u, d in pairs)
+        b_up, b_down = problem.up.oscillator_length, problem.down.oscillator_length
+        alpha = 1 / b_up**2 + 1 / b_down**2  # phi_a phi_b chi_c chi_d ~ exp(-alpha x^2)
+        nodes, weights = np.polynomial.hermite.hermgauss(2 * n_max + 2)
+        x = nodes / math.sqrt(alpha)
+        weights = weights / math.sqrt(alpha)
+        orbitals_up = hermite_polynomial_part(n_max, x / b_up) / math.sqrt(b_up)
+        orbitals_down = hermite_polynomial_part(n_max, x / b_down) / math.sqrt(b_down)
+        size = len(pairs)
+        matrix = np.zeros((size, size))
+        if problem.up.count == 0 or problem.down.count == 0:
+            return matrix
+        for i, j in itertools.combinations_with_replacement(range(size), 2):
+            rho_up = density_matrix_elements(pairs[i][0], pairs[j][0], orbitals_up)
+            if rho_up is None:
+                continue
+            rho_down = density_matrix_elements(pairs[i][1], pairs[j][1], orbitals_down)
+            if rho_down is None:
+                continue
+            matrix[i, j] = matrix[j, i] = float(np.dot(weights, rho_up * rho_down))
+        return matrix
+
