@@ -1,0 +1,70 @@
+"""``trapbench sweep SUITE``: run a benchmark suite into the results store and print its tables."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+NAME = "sweep"
+HELP = "run a benchmark suite (built-in name or TOML file) into the results store and print its tables"
+ORDER = 60
+
+
+def add_store_argument(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--store", type=Path, default=None,
+                        help="results database (default: $TRAPBENCH_STORE or ./trapbench-results/results.sqlite)")
+
+
+def add_execution_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--workers", type=int, default=0, metavar="N",
+                        help="run on a local Dask cluster of N worker processes (default: serial)")
+    parser.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                        help="submit to an existing Dask scheduler, e.g. tcp://host:8786")
+    parser.add_argument("--timeout", type=float, default=None, metavar="SECONDS",
+                        help="wall-time limit per task (default: the suite's, else 600 s)")
+    parser.add_argument("--memory", type=float, default=None, metavar="MIB",
+                        help="resident-memory cap per task in MiB (default: the suite's, else 4096)")
+    parser.add_argument("--rerun", action="store_true", help="recompute tasks already in the store")
+    parser.add_argument("--blas-threads", type=int, default=1, metavar="N",
+                        help="BLAS/OpenMP threads per task (default 1)")
+    parser.add_argument("--no-progress", action="store_true", help="no progress bar")
+
+
+def register(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("suite", help="a built-in suite name (quick, full) or a suite TOML file")
+    add_store_argument(parser)
+    add_execution_arguments(parser)
+    parser.add_argument("--tables", choices=("markdown", "none"), default="markdown",
+                        help="print the agreement and accuracy-vs-cost tables after the sweep (default markdown)")
+
+
+def options_from(args: argparse.Namespace):
+    from ...problems.errors import SpecError
+    from ..sweep import SweepOptions
+
+    if args.workers < 0:
+        raise SpecError("--workers", f"got {args.workers}; give 0 (serial) or a positive count")
+    for flag, value in (("--timeout", args.timeout), ("--memory", args.memory)):
+        if value is not None and value <= 0:
+            raise SpecError(flag, f"got {value:g}; give a positive number")
+    return SweepOptions(
+        store_path=args.store, workers=args.workers, scheduler=args.scheduler, timeout_s=args.timeout,
+        memory_mib=args.memory, rerun=args.rerun, progress=not args.no_progress,
+        blas_threads=args.blas_threads, command=" ".join(["trapbench"] + sys.argv[1:]),
+    )
+
+
+def run(args: argparse.Namespace) -> int:
+    from ..store import Store
+    from ..suite import load_suite
+    from ..sweep import run_sweep
+    from ..tables import suite_tables_markdown
+
+    suite = load_suite(args.suite)
+    report = run_sweep(suite, options_from(args))
+    print(report.summary(), file=sys.stderr)
+    if args.tables == "markdown":
+        with Store.open(args.store) as store:
+            print(suite_tables_markdown(store.results_frame(keys=report.task_keys), suite))
+    return 130 if report.interrupted else 0

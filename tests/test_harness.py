@@ -1,0 +1,273 @@
+"""The benchmark harness: suites, isolated runner, store, resume, Dask, tables, gate, advisor.
+
+Toy backends (written to a temporary folder and registered through the ``trapbench.backends``
+entry-point group, exactly as a third-party package would be) stand in for real methods where a
+test needs a task that sleeps, allocates, aborts or answers instantly. The toy that answers returns
+the non-interacting ground-state energy E0 = (N_up^2 + N_down^2)/2 (equal trap frequencies omega = 1:
+each species fills the lowest N_s oscillator levels n + 1/2, sum = N_s^2/2), plus a controlled
+discretisation error c / cutoff^2 so that parameter ladders have a cost/accuracy trade-off.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import textwrap
+import time
+from pathlib import Path
+
+import pytest
+
+from trapbench.bench import runner
+from trapbench.bench.runner import Limits
+from trapbench.bench.store import Store
+from trapbench.bench.suite import Tolerance, load_suite, parse_suite
+from trapbench.bench.sweep import SweepOptions, run_sweep
+from trapbench.problems.errors import SpecError
+
+TOY_SOURCE = '''
+import os, time
+import numpy as np
+from trapbench.backends.base import Backend, Parameter, Support
+from trapbench.backends.result import Solution
+
+
+class ExactToy(Backend):
+    """E0 = (N_up^2 + N_down^2)/2 + 1/cutoff^2 (an artificial, known discretisation error); g = 0 only."""
+    name = "toy-exact"
+    version = "1"
+    parameters = (Parameter("cutoff", int, 10, "artificial cutoff", minimum=1),
+                  Parameter("work", int, 0, "busy-loop iterations to make a run cost CPU time", minimum=0))
+
+    def supports(self, problem):
+        if problem.coupling != 0.0:
+            return Support.no("only the non-interacting problem (g = 0)")
+        return Support.yes()
+
+    def compute(self, problem, params):
+        total = 0
+        for i in range(params["work"]):
+            total += i
+        c = params["cutoff"]
+        exact = (problem.up.count ** 2 + problem.down.count ** 2) / 2
+        return Solution(energies=[exact + 1.0 / c**2], error_estimate=1.0 / c**2)
+
+
+class SleepToy(ExactToy):
+    name = "toy-sleep"
+    parameters = (Parameter("seconds", float, 5.0, "how long to sleep"),)
+
+    def supports(self, problem):
+        return Support.yes()
+
+    def compute(self, problem, params):
+        time.sleep(params["seconds"])
+        return Solution(energies=[0.0])
+
+
+class AllocToy(SleepToy):
+    name = "toy-alloc"
+    parameters = (Parameter("mib", int, 2000, "how much memory to touch, MiB"),)
+
+    def compute(self, problem, params):
+        blocks = []
+        for _ in range(params["mib"] // 20):
+            blocks.append(np.ones(20 * 1024 * 1024 // 8))
+            time.sleep(0.002)
+        return Solution(energies=[float(len(blocks))])
+
+
+class AbortToy(SleepToy):
+    name = "toy-abort"
+    parameters = ()
+
+    def compute(self, problem, params):
+        os.abort()
+'''
+
+ENTRY_POINTS = """[trapbench.backends]
+toy-exact = trapbench_toys:ExactToy
+toy-sleep = trapbench_toys:SleepToy
+toy-alloc = trapbench_toys:AllocToy
+toy-abort = trapbench_toys:AbortToy
+"""
+
+
+@pytest.fixture(scope="module")
+def toy_path(tmp_path_factory) -> Path:
+    """A folder holding the toy backends as an installed distribution, put on sys.path for this module."""
+    folder = tmp_path_factory.mktemp("toys")
+    (folder / "trapbench_toys.py").write_text(TOY_SOURCE)
+    info = folder / "trapbench_toys-0.0.dist-info"
+    info.mkdir()
+    (info / "METADATA").write_text("Metadata-Version: 2.1\nName: trapbench-toys\nVersion: 0.0\n")
+    (info / "entry_points.txt").write_text(ENTRY_POINTS)
+    sys.path.insert(0, str(folder))
+    yield folder
+    sys.path.remove(str(folder))
+
+
+def suite_text(body: str, name: str = "t") -> str:
+    return f'name = "{name}"\n' + textwrap.dedent(body)
+
+
+FREE_PROBLEMS = """
+[[problems]]
+name = "1+1 free"
+up = { count = 1 }
+down = { count = 1 }
+interaction = { g = 0.0 }
+
+[[problems]]
+name = "2+1 free"
+up = { count = 2 }
+down = { count = 1 }
+interaction = { g = 0.0 }
+"""
+
+
+# ----------------------------------------------------------------------------- suites
+
+
+def test_suite_expands_problems_backends_and_ladders(toy_path):
+    suite = parse_suite(suite_text(FREE_PROBLEMS + """
+        [[problems]]
+        name = "scan"
+        up = { count = 1 }
+        down = { count = 1 }
+        interaction = { g = [0.0, 1.0, 2.0] }
+
+        [tolerances]
+        energy = { abs = 1e-8, rel = 1e-5 }
+
+        [[backends]]
+        name = "toy-exact"
+        params = { work = 0 }
+        ladder = [{ cutoff = 2 }, { cutoff = 4 }]
+        grid = { work = [0, 10] }
+        """))
+    tasks = suite.tasks()
+    # (1 + 1 + 3 problem points) x (2 rungs x 2 grid values), but the scan's g = 0 point is the
+    # same physics as "1+1 free" and runs once
+    assert len(tasks) == 4 * 4
+    assert len({t.key for t in tasks}) == 16
+    assert {t.params["cutoff"] for t in tasks} == {2, 4}
+    assert sorted({t.problem.coupling for t in tasks if t.problem_name == "scan"}) == [1.0, 2.0]
+    assert suite.tolerance("energy") == Tolerance(abs=1e-8, rel=1e-5)
+
+
+@pytest.mark.parametrize(
+    "body, field",
+    [
+        ('[[backends]]\nname = "toy-exact"\n', "problems"),
+        (FREE_PROBLEMS, "backends"),
+        (FREE_PROBLEMS + '[[backends]]\nname = "toy-exact"\nladder = [{ cutoff = "many" }]\n', "backends[0].ladder[0].cutoff"),
+        (FREE_PROBLEMS + '[[backends]]\nname = "toy-exact"\nparams = { cutof = 3 }\n', "backends[0].params.cutof"),
+        (FREE_PROBLEMS + '[[backends]]\nname = "toy-exact"\nproblems = ["nope"]\n', "backends[0].problems[0]"),
+        (FREE_PROBLEMS + '[[backends]]\nname = "toy-exact"\ntimeout = -1\n', "backends[0].timeout"),
+        (FREE_PROBLEMS + '[[backends]]\nname = "toy-exact"\ngrid = { cutoff = 3 }\n', "backends[0].grid.cutoff"),
+        (FREE_PROBLEMS + '[[backends]]\nname = "toy-exact"\nbogus = 1\n', "backends[0].bogus"),
+        (FREE_PROBLEMS + '[tolerances]\nenergy = { abs = -1 }\n[[backends]]\nname = "toy-exact"\n', "tolerances.energy.abs"),
+        (FREE_PROBLEMS + '[tolerances]\nenergy = { absolute = 1 }\n[[backends]]\nname = "toy-exact"\n',
+         "tolerances.energy.absolute"),
+        ('[[problems]]\nname = "a"\nup = { count = 1, mass = -2 }\ndown = { count = 1 }\ninteraction = { g = 1 }\n'
+         '[[backends]]\nname = "toy-exact"\n', "problems[0].up.mass"),
+        ('[[problems]]\nup = { count = 1 }\ndown = { count = 1 }\ninteraction = { g = 1 }\n'
+         '[[backends]]\nname = "toy-exact"\n', "problems[0].name"),
+        (FREE_PROBLEMS + FREE_PROBLEMS + '[[backends]]\nname = "toy-exact"\n', "problems[2].name"),
+        ("problems = [", "<string>"),
+    ],
+)
+def test_malformed_suites_name_the_field(toy_path, body, field):
+    with pytest.raises(SpecError) as info:
+        parse_suite(suite_text(body) if not body.startswith("problems = [") else body)
+    assert info.value.field == field, str(info.value)
+
+
+def test_unknown_builtin_suite_lists_the_builtin_ones():
+    with pytest.raises(SpecError, match="built-in"):
+        load_suite("no-such-suite")
+
+
+# ----------------------------------------------------------------------------- runner
+
+
+def test_runner_records_timeout_memory_and_abort_and_keeps_the_rest(toy_path, tmp_path):
+    suite = parse_suite(suite_text(FREE_PROBLEMS + """
+        [[backends]]
+        name = "toy-exact"
+        ladder = [{ cutoff = 10 }, { cutoff = 100 }]
+
+        [[backends]]
+        name = "toy-sleep"
+        problems = ["1+1 free"]
+        params = { seconds = 30.0 }
+        timeout = 1.5
+
+        [[backends]]
+        name = "toy-alloc"
+        problems = ["1+1 free"]
+        params = { mib = 3000 }
+        memory = 300
+
+        [[backends]]
+        name = "toy-abort"
+        problems = ["1+1 free"]
+
+        [[backends]]
+        name = "not-installed-anywhere"
+        problems = ["1+1 free"]
+        """))
+    store_path = tmp_path / "r.sqlite"
+    started = time.perf_counter()
+    report = run_sweep(suite, SweepOptions(store_path=store_path, progress=False))
+    assert time.perf_counter() - started < 25, "the sleeping task must be cut at its 1.5 s limit"
+    assert report.ran == 8 and not report.interrupted
+    with Store.open(store_path) as store:
+        tasks = store.tasks_frame()
+    by_backend = {b: g for b, g in tasks.groupby("backend")}
+    sleep = by_backend["toy-sleep"].iloc[0]
+    assert sleep["status"] == "timeout" and "1.5 s" in sleep["error"]
+    assert 1.5 <= sleep["wall_time_s"] < 10
+    alloc = by_backend["toy-alloc"].iloc[0]
+    assert alloc["status"] == "out-of-memory" and "300 MiB" in alloc["error"]
+    assert alloc["peak_rss_bytes"] > 300 * runner.MIB
+    abort = by_backend["toy-abort"].iloc[0]
+    assert abort["status"] == "crashed" and "SIGABRT" in abort["error"]
+    missing = by_backend["not-installed-anywhere"].iloc[0]
+    assert missing["status"] == "missing-backend"
+    exact = by_backend["toy-exact"]
+    assert list(exact["status"]) == ["ok"] * 4
+    for row in exact.itertuples():
+        expected = (row.n_up**2 + row.n_down**2) / 2 + 1 / row.params["cutoff"] ** 2
+        assert row.energies[0] == pytest.approx(expected, rel=1e-14)
+        assert 0 < row.peak_rss_bytes < 2 * 1024 * runner.MIB
+        assert row.cpu_time_s >= 0 and row.wall_time_s > 0
+
+
+def test_runner_reports_unsupported_and_backend_errors(toy_path):
+    from trapbench.problems.spec import Problem
+
+    interacting = Problem.create(1, 1, 1.0).to_dict()
+    outcome = runner.run_isolated({"backend": "toy-exact", "problem": interacting, "params": {}}, Limits(timeout_s=30))
+    assert outcome.status == "unsupported" and "g = 0" in outcome.error
+    free = Problem.create(1, 1, 0.0).to_dict()
+    bad = runner.run_isolated({"backend": "toy-exact", "problem": free, "params": {"cutoff": 0}}, Limits(timeout_s=30))
+    assert bad.status == "failed" and "param.cutoff" in bad.error
+
+
+def test_peak_memory_is_the_tasks_own(toy_path):
+    """Two tasks touching 100 and 400 MiB report peaks that differ by about 300 MiB (not cumulative)."""
+    from trapbench.problems.spec import Problem
+
+    free = Problem.create(1, 1, 0.0).to_dict()
+    small = runner.run_isolated({"backend": "toy-alloc", "problem": free, "params": {"mib": 100}}, Limits(timeout_s=60))
+    large = runner.run_isolated({"backend": "toy-alloc", "problem": free, "params": {"mib": 400}}, Limits(timeout_s=60))
+    again = runner.run_isolated({"backend": "toy-alloc", "problem": free, "params": {"mib": 100}}, Limits(timeout_s=60))
+    assert small.status == large.status == again.status == "ok"
+    difference = (large.peak_rss_bytes - small.peak_rss_bytes) / runner.MIB
+    assert 250 < difference < 350
+    assert abs(again.peak_rss_bytes - small.peak_rss_bytes) < 50 * runner.MIB
