@@ -1,0 +1,87 @@
+"""The benchmark catalogue: named problems with every reference value trapbench knows for them.
+
+Configurations 1+1, 2+1, 1+2, 3+1, 2+2, 3+2, 3+3, 4+4, 6+6 with equal masses in four regimes of g
+(strongly attractive, weak, intermediate, strongly repulsive); the configurations with N <= 4 also
+with the mass ratios m_up/m_down = 40/6 and 6/40 (as for a 40K-6Li mixture). The reference mass m0
+is the lighter species, so the heavy species has mass 40/6 and the light one 1. Harmonic trap,
+omega = 1 for both species. Units: hbar = omega = m0 = 1, g in sqrt(hbar^3 omega / m0).
+
+Entry names read "<N_up>+<N_down>/<masses>/<regime>", e.g. "2+1/equal/intermediate" or
+"1+1/40:6/strong-attractive". References come from ``references.references_for`` and are computed
+on first use.
+"""
+
+from __future__ import annotations
+
+import difflib
+from dataclasses import dataclass
+from functools import lru_cache
+
+from .errors import SpecError
+from .references import Reference, references_for
+from .spec import Problem
+
+CONFIGURATIONS = ((1, 1), (2, 1), (1, 2), (3, 1), (2, 2), (3, 2), (3, 3), (4, 4), (6, 6))
+MASS_SETS = {"equal": (1.0, 1.0), "40:6": (40 / 6, 1.0), "6:40": (1.0, 40 / 6)}
+MAX_PARTICLES_IMBALANCED = 4
+REGIMES = {
+    "strong-attractive": -4.0,
+    "weak": 0.5,
+    "intermediate": 2.0,
+    "strong-repulsive": 20.0,
+}
+
+
+def _states(n_particles: int) -> int:
+    """Levels requested: enough for the two-body spectrum's structure, one for large N."""
+    return 4 if n_particles == 2 else 3 if n_particles <= 4 else 1
+
+
+@dataclass(frozen=True)
+class CatalogueEntry:
+    """A named benchmark problem; ``references`` lists what is known about it (see ``references``)."""
+
+    name: str
+    problem: Problem
+    regime: str
+
+    @property
+    def references(self) -> list[Reference]:
+        return list(_references(self.name))
+
+
+@lru_cache(maxsize=None)
+def _entries() -> tuple[CatalogueEntry, ...]:
+    result = []
+    for n_up, n_down in CONFIGURATIONS:
+        for masses, (mass_up, mass_down) in MASS_SETS.items():
+            if masses != "equal" and n_up + n_down > MAX_PARTICLES_IMBALANCED:
+                continue
+            for regime, g in REGIMES.items():
+                name = f"{n_up}+{n_down}/{masses}/{regime}"
+                problem = Problem.create(
+                    n_up, n_down, g, mass_up=mass_up, mass_down=mass_down, states=_states(n_up + n_down), label=name
+                )
+                result.append(CatalogueEntry(name, problem, regime))
+    return tuple(result)
+
+
+@lru_cache(maxsize=None)
+def _references(name: str) -> tuple[Reference, ...]:
+    return tuple(references_for(get(name).problem))
+
+
+def entries() -> list[CatalogueEntry]:
+    """All catalogue entries in a stable order (configuration, masses, regime)."""
+    return list(_entries())
+
+
+def get(name: str) -> CatalogueEntry:
+    """The entry called ``name``; an unknown name raises SpecError with the closest match."""
+    for entry in _entries():
+        if entry.name == name:
+            return entry
+    known = [e.name for e in _entries()]
+    close = difflib.get_close_matches(name, known, n=1, cutoff=0.5)
+    hint = f"did you mean '{close[0]}'?" if close else "see trapbench.problems.catalogue.entries()"
+    raise SpecError("catalogue", f"no entry named '{name}'; {hint}")

@@ -1,0 +1,212 @@
+"""Reference values checked against numbers and formulas from outside the code under test.
+
+Outside sources used: the closed forms and tables of /work/shared/physics-anchors.md (Busch's
+equation roots evaluated there independently in 30-digit arithmetic, Table 2.1 and 2.2; first-order
+coefficients, Sec. 3.2), scipy.special.gamma for Busch's equation itself, scipy.integrate.quad over
+explicit Hermite functions, and brute-force enumeration of oscillator configurations.
+"""
+
+import itertools
+import math
+
+import numpy as np
+import pytest
+from scipy import integrate, special
+
+from trapbench.problems.catalogue import CONFIGURATIONS, entries, get
+from trapbench.problems.errors import SpecError
+from trapbench.problems.references import (
+    busch_even_level,
+    first_order_slope,
+    noninteracting_levels,
+    references_for,
+    two_body_levels,
+)
+from trapbench.problems.spec import Problem
+
+
+def energies(problem, quantity="energy"):
+    return [r.value for r in sorted(references_for(problem), key=lambda r: r.state) if r.quantity == quantity]
+
+
+# Table 2.1 of the anchors file (1+1, equal masses, total energies E0, E1, E2 of the even-relative
+# branch with the centre of mass in its ground state), exact roots of Busch's equation.
+TABLE_2_1 = {
+    -10: (-24.49500348799, 2.163715060923, 4.235751172512),
+    -2: (-0.3992864450542, 2.620613196223, 4.712217478500),
+    -0.5: (0.7704309022356, 2.899116557892, 4.924923935051),
+    1: (1.306745541231, 3.187051314165, 5.144734148898),
+    5: (1.726780360609, 3.607194046150, 5.533618052312),
+    50: (1.968421142888, 3.952534652253, 5.940652318774),
+}
+
+
+@pytest.mark.parametrize("g", sorted(TABLE_2_1))
+def test_busch_levels_match_independent_table(g):
+    lam = g / math.sqrt(2)  # equal masses: lambda = g / sqrt(2)
+    for branch, expected in enumerate(TABLE_2_1[g]):
+        assert busch_even_level(lam, branch) + 0.5 == pytest.approx(expected, abs=2e-11)
+
+
+@pytest.mark.parametrize("lam", [-3.0, -0.4, 0.7, 12.0])
+def test_busch_roots_satisfy_the_gamma_ratio_equation(lam):
+    # Gamma(3/4 - e/2) / Gamma(1/4 - e/2) = -lambda/2, evaluated with scipy (independent implementation)
+    for branch in range(3):
+        e = busch_even_level(lam, branch)
+        ratio = special.gamma(0.75 - e / 2) / special.gamma(0.25 - e / 2)
+        assert ratio == pytest.approx(-lam / 2, rel=1e-9, abs=1e-11)
+
+
+def test_busch_weak_and_strong_coupling_expansions():
+    # anchors Sec. 2: e = 1/2 + lambda/sqrt(pi) - (ln 2/pi) lambda^2 + O(lambda^3)
+    lam = 1e-3
+    e = busch_even_level(lam, 0)
+    assert e - 0.5 - lam / math.sqrt(math.pi) == pytest.approx(-math.log(2) / math.pi * lam**2, rel=1e-2)
+    # e = 3/2 - 2/(sqrt(pi) lambda) + O(1/lambda^2), and the 1/lambda^2 coefficient 4 (1 - ln 2)/pi
+    # follows from Gamma(eps/2) ~ 2/eps - gamma_E and psi(-1/2) = 2 - gamma_E - 2 ln 2
+    lam = 1e4
+    e = busch_even_level(lam, 0)
+    assert (e - 1.5 + 2 / (math.sqrt(math.pi) * lam)) * lam**2 == pytest.approx(4 * (1 - math.log(2)) / math.pi, rel=1e-3)
+
+
+def test_two_body_spectrum_structure_and_parities():
+    # 1+1 at g = 1: ground, the g-independent odd level 2, the COM excitation of the ground state, ...
+    # (anchors Sec. 2: odd relative levels e = 3/2 + 2n, every level repeated with +1, +2 for the COM)
+    problem = Problem.create(1, 1, 1.0, states=6)
+    levels = two_body_levels(problem)
+    e0, e1 = TABLE_2_1[1][:2]
+    assert [e for e, _ in levels] == pytest.approx([e0, 2.0, e0 + 1, 3.0, e1, e0 + 2], abs=1e-11)
+    assert [p for _, p in levels] == [1, -1, -1, 1, 1, 1]
+    odd = two_body_levels(problem.with_targets(parity="odd", states=3))
+    assert [e for e, _ in odd] == pytest.approx([2.0, e0 + 1, 4.0], abs=1e-11)
+
+
+# Table 2.2 of the anchors file: m_up = 1 = m_ref, m_down = kappa.
+TABLE_2_2 = {
+    40 / 6: {-2: -1.17412483472, 1: 1.37452908413, 10: 1.88462769715},
+    0.15: {-1: 0.764774508975, 2: 1.31168437881, 10: 1.73146596465},
+    2: {5: 1.75737651539},
+}
+
+
+@pytest.mark.parametrize("kappa", sorted(TABLE_2_2))
+def test_unequal_mass_two_body_ground_states(kappa):
+    for g, expected in TABLE_2_2[kappa].items():
+        assert energies(Problem.create(1, 1, g, mass_down=kappa))[0] == pytest.approx(expected, abs=2e-10)
+
+
+def test_two_body_scales_with_a_common_trap_frequency():
+    # omega = w: E(g) = w E_1(g / sqrt(w)) in units of the reference (dimensional analysis)
+    w = 2.25
+    scaled = energies(Problem.create(1, 1, 3.0, omega_up=w, omega_down=w))[0]
+    assert scaled == pytest.approx(w * energies(Problem.create(1, 1, 3.0 / math.sqrt(w)))[0], abs=1e-12)
+
+
+@pytest.mark.parametrize("counts", [(2, 1), (3, 2), (0, 3), (4, 4)])
+def test_noninteracting_tower_matches_brute_force_enumeration(counts):
+    n_up, n_down = counts
+    problem = Problem.create(n_up, n_down, 0.0, omega_up=1.0, omega_down=1.5, states=30)
+    brute = []
+    for up in itertools.combinations(range(12), n_up):
+        for down in itertools.combinations(range(12), n_down):
+            brute.append((sum(n + 0.5 for n in up) + 1.5 * sum(n + 0.5 for n in down), (-1) ** (sum(up) + sum(down))))
+    brute.sort()
+    levels = noninteracting_levels(problem)
+    assert [e for e, _ in levels] == pytest.approx([e for e, _ in brute[:30]], abs=1e-12)
+    even = noninteracting_levels(problem.with_targets(parity="even"))
+    assert [e for e, _ in even] == pytest.approx([e for e, p in brute if p == 1][:30], abs=1e-12)
+
+
+def test_one_species_empty_is_free_at_any_g():
+    assert energies(Problem.create(3, 0, -2.0, states=2)) == pytest.approx([4.5, 5.5])
+
+
+# anchors Sec. 3.2: c1 * sqrt(2 pi) for equal masses
+FIRST_ORDER = {(1, 1): 1, (2, 1): 3 / 2, (3, 1): 15 / 8, (2, 2): 11 / 4, (4, 1): 35 / 16, (3, 2): 57 / 16,
+               (5, 1): 315 / 128, (4, 2): 135 / 32, (3, 3): 321 / 64}
+
+
+@pytest.mark.parametrize("counts", sorted(FIRST_ORDER))
+def test_first_order_coefficients_equal_masses(counts):
+    value = energies(Problem.create(*counts, 1.5), "slope_g0")[0]
+    assert value * math.sqrt(2 * math.pi) == pytest.approx(FIRST_ORDER[counts], abs=1e-12)
+
+
+def _hermite_density(n_particles, mass, x):
+    # sum of |phi_n(x)|^2 for the oscillator of mass m, omega = 1, from scipy's Hermite polynomials
+    xi = math.sqrt(mass) * x
+    total = 0.0
+    for n in range(n_particles):
+        norm = (mass / math.pi) ** 0.25 / math.sqrt(2.0**n * math.factorial(n))
+        total += (norm * special.eval_hermite(n, xi) * math.exp(-(xi**2) / 2)) ** 2
+    return total
+
+
+@pytest.mark.parametrize("counts,masses", [((2, 1), (40 / 6, 1.0)), ((1, 3), (1.0, 40 / 6)), ((2, 2), (1.0, 0.15))])
+def test_first_order_coefficients_unequal_masses_by_quadrature(counts, masses):
+    problem = Problem.create(*counts, 0.3, mass_up=masses[0], mass_down=masses[1])
+    expected, _ = integrate.quad(
+        lambda x: _hermite_density(counts[0], masses[0], x) * _hermite_density(counts[1], masses[1], x),
+        -15, 15, epsabs=1e-13, limit=200,
+    )
+    assert first_order_slope(problem) == pytest.approx(expected, abs=1e-11)
+
+
+def test_first_order_two_body_unequal_masses_closed_form():
+    # anchors Table 2.2: c1 = sqrt(mu/pi) for 1+1
+    mu = (40 / 6) / (1 + 40 / 6)
+    assert energies(Problem.create(1, 1, 1.0, mass_down=40 / 6), "slope_g0")[0] == pytest.approx(math.sqrt(mu / math.pi))
+
+
+def test_slope_omitted_when_ground_state_lies_in_the_other_parity_sector():
+    # 2+1 ground state has parity (-1)^(0+1+0) = -1
+    assert energies(Problem.create(2, 1, 1.0, parity="even"), "slope_g0") == []
+    assert len(energies(Problem.create(2, 1, 1.0, parity="odd"), "slope_g0")) == 1
+
+
+def test_strong_coupling_k_and_asymptote():
+    k = energies(Problem.create(2, 1, 30.0, states=3), "K")
+    assert k == pytest.approx([81 / (8 * math.sqrt(2 * math.pi)), 27 / (8 * math.sqrt(2 * math.pi)), 0.0], abs=1e-10)
+    refs = [r for r in references_for(Problem.create(2, 1, 30.0, states=3)) if r.quantity == "energy"]
+    assert [r.value for r in refs] == pytest.approx([4.5 - kk / 30 for kk in k], abs=1e-12)
+    assert all(r.kind == "derived" and r.uncertainty == pytest.approx(kk**2 / 900) for r, kk in zip(refs, k))
+    # no asymptote where g is not large against K (here g = 5 < 2 K)
+    assert energies(Problem.create(2, 1, 5.0)) == []
+
+
+def test_strong_coupling_uncertainty_covers_the_two_body_next_order():
+    # 1+1: the exact Busch energy minus the asymptote 2 - K/g is (1 - ln 2) K^2/g^2 + O(g^-3),
+    # well inside the K^2/g^2 quoted for N > 2
+    g = 200.0
+    k = 2 * math.sqrt(2 / math.pi)
+    exact = energies(Problem.create(1, 1, g))[0]
+    assert (exact - (2 - k / g)) * g**2 / k**2 == pytest.approx(1 - math.log(2), rel=2e-2)
+
+
+def test_every_reference_names_its_source_and_kind():
+    for r in references_for(Problem.create(1, 1, 2.0, states=3)) + references_for(Problem.create(3, 1, 40.0, states=2)):
+        assert r.source and r.kind in ("exact", "derived", "published", "recalled") and r.uncertainty >= 0
+
+
+def test_no_references_for_non_harmonic_traps():
+    problem = Problem.from_dict({"up": {"count": 1}, "down": {"count": 1}, "interaction": {"g": 1.0},
+                                 "trap": {"shape": "box", "half_width": 3.0}})
+    assert references_for(problem) == []
+
+
+def test_catalogue_covers_the_requested_configurations_and_regimes():
+    names = {e.name for e in entries()}
+    for n_up, n_down in CONFIGURATIONS:
+        for regime in ("strong-attractive", "weak", "intermediate", "strong-repulsive"):
+            assert f"{n_up}+{n_down}/equal/{regime}" in names
+    assert "2+1/40:6/weak" in names and "2+2/6:40/strong-repulsive" in names
+    entry = get("1+1/6:40/intermediate")
+    assert (entry.problem.up.mass, entry.problem.down.mass) == (1.0, pytest.approx(40 / 6))
+    assert entry.problem.coupling == 2.0
+    # the 1+1 entry's ground energy is the anchors' Table 2.2 value for kappa = 40/6 at g = 2
+    assert entry.references[0].value == pytest.approx(1.56467480944, abs=1e-10)
+
+
+def test_catalogue_unknown_name_suggests_the_closest():
+    with pytest.raises(SpecError, match="did you mean '2\\+1/equal/weak'"):
+        get("2+1/equal/waek")
