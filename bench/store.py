@@ -256,10 +256,10 @@ class Store:
                 rows.append(row)
         return pd.DataFrame(rows)
 
-    def export(self, path: str | Path, suite: str | None = None) -> Path:
+    def export(self, path: str | Path, suite: str | None = None, keys: list[str] | None = None) -> Path:
         """Write ``results_frame`` to CSV or Parquet (chosen by the file suffix)."""
         path = Path(path)
-        frame = self.results_frame(suite)
+        frame = self.results_frame(suite, keys)
         frame["params"] = [json.dumps(p, sort_keys=True) for p in frame["params"]]
         frame["problem"] = [json.dumps(p, sort_keys=True) for p in frame["problem"]]
         path.parent.mkdir(parents=True, exist_ok=True)

@@ -271,3 +271,126 @@ def test_peak_memory_is_the_tasks_own(toy_path):
     difference = (large.peak_rss_bytes - small.peak_rss_bytes) / runner.MIB
     assert 250 < difference < 350
     assert abs(again.peak_rss_bytes - small.peak_rss_bytes) < 50 * runner.MIB
+
+
+# ----------------------------------------------------------------------------- resume
+
+
+def ladder_suite(tmp_path: Path, rungs: int, work: int) -> Path:
+    ladder = ", ".join(f"{{ cutoff = {c} }}" for c in range(1, rungs + 1))
+    path = tmp_path / "ladder.toml"
+    path.write_text(suite_text(FREE_PROBLEMS + f"""
+        [[backends]]
+        name = "toy-exact"
+        params = {{ work = {work} }}
+        ladder = [{ladder}]
+        """, name="ladder"))
+    return path
+
+
+def stored_rows(store_path: Path) -> dict:
+    with Store.open(store_path) as store:
+        frame = store.tasks_frame()
+    return {r["task_key"]: r for r in frame.to_dict("records")}
+
+
+def test_killed_coordinator_resumes_without_recomputing(toy_path, tmp_path):
+    suite_path = ladder_suite(tmp_path, rungs=8, work=1_500_000)  # 16 tasks of ~0.1-0.3 s each
+    store_path = tmp_path / "resume.sqlite"
+    command = [sys.executable, "-m", "trapbench.bench.cli", "sweep", str(suite_path), "--store", str(store_path),
+               "--no-progress", "--tables", "none"]
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join([str(toy_path), os.environ.get("PYTHONPATH", "")])}
+    coordinator = subprocess.Popen(command, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    deadline = time.monotonic() + 60
+    while time.monotonic() < deadline:
+        time.sleep(0.1)
+        if store_path.exists() and len(stored_rows(store_path)) >= 4:
+            break
+    coordinator.send_signal(signal.SIGKILL)
+    coordinator.wait()
+    before = stored_rows(store_path)
+    assert 4 <= len(before) < 16, "the kill must land mid-sweep"
+    assert all(r["status"] == "ok" for r in before.values())
+
+    rerun = subprocess.run(command, env=env, capture_output=True, text=True, timeout=120)
+    assert rerun.returncode == 0, rerun.stderr
+    after = stored_rows(store_path)
+    assert len(after) == 16 and all(r["status"] == "ok" for r in after.values())
+    for key, row in before.items():  # finished work is neither lost nor recomputed
+        assert after[key]["run_id"] == row["run_id"] and after[key]["finished_utc"] == row["finished_utc"]
+    with Store.open(store_path) as store:
+        runs = store.runs_frame()
+    assert list(runs["status"]) == ["running", "finished"]  # the killed run never got to close itself
+    assert runs["tasks_skipped"].iloc[-1] == len(before)
+    assert runs["tasks_run"].iloc[-1] == 16 - len(before)
+
+
+def test_ctrl_c_keeps_finished_tasks(toy_path, tmp_path, monkeypatch):
+    from trapbench.bench import sweep as sweep_module
+
+    calls = []
+    real = sweep_module.run_isolated
+
+    def interrupted_on_third(payload, limits):
+        calls.append(payload)
+        if len(calls) == 3:
+            raise KeyboardInterrupt
+        return real(payload, limits)
+
+    monkeypatch.setattr(sweep_module, "run_isolated", interrupted_on_third)
+    suite = load_suite(ladder_suite(tmp_path, rungs=3, work=0))
+    store_path = tmp_path / "ctrl-c.sqlite"
+    report = run_sweep(suite, SweepOptions(store_path=store_path, progress=False))
+    assert report.interrupted and report.ran == 2 and "resume" in report.summary()
+    assert len(stored_rows(store_path)) == 2
+    monkeypatch.setattr(sweep_module, "run_isolated", real)
+    second = run_sweep(suite, SweepOptions(store_path=store_path, progress=False))
+    assert second.skipped == 2 and second.ran == 4 and not second.interrupted
+
+
+def test_rerun_and_larger_limits_recompute(toy_path, tmp_path):
+    suite = parse_suite(suite_text(FREE_PROBLEMS + """
+        [[backends]]
+        name = "toy-sleep"
+        problems = ["1+1 free"]
+        params = { seconds = 1.0 }
+        timeout = 0.3
+        """))
+    store_path = tmp_path / "limits.sqlite"
+    first = run_sweep(suite, SweepOptions(store_path=store_path, progress=False))
+    assert first.statuses["timeout"] == 1
+    same = run_sweep(suite, SweepOptions(store_path=store_path, progress=False))
+    assert same.skipped == 1 and same.ran == 0
+    larger = run_sweep(suite, SweepOptions(store_path=store_path, progress=False, timeout_s=20))
+    assert larger.statuses["ok"] == 1
+    forced = run_sweep(suite, SweepOptions(store_path=store_path, progress=False, timeout_s=20, rerun=True))
+    assert forced.ran == 1 and forced.skipped == 0
+
+
+# ----------------------------------------------------------------------------- Dask
+
+
+def test_dask_local_cluster_gives_the_serial_numbers(tmp_path):
+    """The exact two-body backend over a g scan: serial and a 2-worker LocalCluster store identical numbers."""
+    pytest.importorskip("trapbench.backends.two_body")
+    suite = parse_suite(suite_text("""
+        [[problems]]
+        name = "1+1 scan"
+        up = { count = 1 }
+        down = { count = 1, mass = 2.0 }
+        interaction = { g = [-3.0, -0.5, 0.7, 4.0, 20.0] }
+        targets = { states = 3 }
+
+        [[backends]]
+        name = "two-body"
+        """))
+    serial_path, dask_path = tmp_path / "serial.sqlite", tmp_path / "dask.sqlite"
+    serial = run_sweep(suite, SweepOptions(store_path=serial_path, progress=False))
+    parallel = run_sweep(suite, SweepOptions(store_path=dask_path, progress=False, workers=2))
+    assert serial.statuses["ok"] == parallel.statuses["ok"] == 5
+    a, b = stored_rows(serial_path), stored_rows(dask_path)
+    assert a.keys() == b.keys()
+    for key in a:
+        assert a[key]["energies"] == b[key]["energies"]  # bit for bit
+        assert a[key]["scalars"] == b[key]["scalars"]
+        assert b[key]["peak_rss_bytes"] > 0 and b[key]["cpu_time_s"] > 0
