@@ -28,7 +28,7 @@ import math
 from typing import Any
 
 import numpy as np
-from scipy import optimize, special
+from scipy import interpolate, optimize, special
 
 from ..problems.spec import Problem
 from .base import Backend, Parameter, Support
@@ -180,7 +180,7 @@ class TwoBodyBackend(Backend):
         e = state["relative_energy"] / omega
         r_max = 12 * rel_width  # psi decays like exp(-y^2/2) at large y for every level
         # psi is analytic on r > 0 (the cusp sits at r = 0): Gauss-Legendre on [0, r_max] converges fast
-        nodes, weights = np.polynomial.legendre.leggauss(points)
+        nodes, weights = special.roots_legendre(points)
         r, w = 0.5 * r_max * (nodes + 1), 0.5 * r_max * weights
         raw = relative_wavefunction(e, state["relative_parity"], np.concatenate([[0.0], r / rel_width]))
         norm = math.sqrt(2 * np.dot(w, raw[1:] ** 2))
@@ -214,14 +214,15 @@ class TwoBodyBackend(Backend):
         if "momentum" in wanted:
             p = np.linspace(-p_max, p_max, grid)
             k_max = p_max + 10 / com_width
-            k = np.linspace(0.0, k_max, 4 * grid)
+            k = np.linspace(0.0, k_max, 4 * grid)  # |psi~(k)|^2 is smooth: a cubic spline resolves it
             kernel = np.sin if state["relative_parity"] < 0 else np.cos
             transform = math.sqrt(2 / math.pi) * (kernel(k[:, None] * r[None, :]) @ (w * psi))
+            spline = interpolate.CubicSpline(k, transform**2)
             p_com = np.linspace(-10 / com_width, 10 / com_width, 801)
             com_density = hermite_function(n, p_com * com_width) ** 2 * com_width
             for label, fraction in (("up", m_up / total), ("down", m_down / total)):
                 rel_k = np.abs(p[:, None] - fraction * p_com[None, :])
-                rel_density = np.interp(rel_k, k, transform**2)
+                rel_density = spline(rel_k)
                 values = np.trapezoid(com_density[None, :] * rel_density, p_com, axis=1)
                 observables[f"momentum_{label}"] = Observable(
                     values, {"p": p}, "1/momentum", f"integral dp = 1 (one {label} particle)"

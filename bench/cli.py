@@ -43,9 +43,28 @@ def build_parser() -> tuple[argparse.ArgumentParser, dict]:
     return parser, runners
 
 
+NUMBER_LIST_OPTIONS = ("--g", "--a-bohr")
+
+
+def _join_negative_lists(argv: list[str]) -> list[str]:
+    """Let '--g -1,2' mean '--g=-1,2' (argparse takes '-1,2' for an option otherwise)."""
+    joined: list[str] = []
+    index = 0
+    while index < len(argv):
+        item = argv[index]
+        following = argv[index + 1] if index + 1 < len(argv) else ""
+        if item in NUMBER_LIST_OPTIONS and following.startswith("-") and (following[1:2].isdigit() or following[1:2] == "."):
+            joined.append(f"{item}={following}")
+            index += 2
+            continue
+        joined.append(item)
+        index += 1
+    return joined
+
+
 def main(argv: list[str] | None = None) -> int:
     parser, runners = build_parser()
-    args = parser.parse_args(argv)
+    args = parser.parse_args(_join_negative_lists(sys.argv[1:] if argv is None else list(argv)))
     if args.command is None:
         parser.print_help()
         return EXIT_INPUT_ERROR
