@@ -205,12 +205,13 @@ class SpinChainSpectrum:
         return (-1) ** (n * (n - 1) // 2) * self.reversal
 
 
-def spin_chain_spectrum(n_up: int, n_down: int) -> SpinChainSpectrum:
+@lru_cache(maxsize=64)
+def spin_chain_spectrum(n_up: int, n_down: int, tolerance: float = 1e-12) -> SpinChainSpectrum:
     """Diagonalize H_spin in the sector (n_up, n_down); degenerate levels are split by chain reversal."""
     n = n_up + n_down
     if n < 2:
         raise ValueError("a spin chain needs at least two particles")
-    couplings = exchange_coefficients(n)
+    couplings = exchange_coefficients(n, tolerance)
     configurations = spin_configurations(n_up, n_down)
     h = spin_chain_hamiltonian(couplings.values, configurations)
     # reversal commutes with H_spin (J_k = J_{N-k}): diagonalize within each reversal sector, whose

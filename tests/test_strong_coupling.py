@@ -1,0 +1,204 @@
+"""The strong-coupling spin chain and backend against independent numbers.
+
+Outside sources: Table 3.3a/3.3b of /work/shared/physics-anchors.md (J_k and K computed there
+independently, with the closed forms K(1+1) = 2 sqrt(2/pi) from Busch's equation and
+K(2+1) = 81/(8 sqrt(2 pi))); direct scipy quadrature of the defining integrals; the exact two-body
+backend (Busch's solution) at large g; SU(2) symmetry (the 2+2 chain contains the 3+1 spectrum).
+"""
+
+import math
+
+import numpy as np
+import pytest
+from scipy import integrate
+
+from trapbench.backends.base import Unsupported
+from trapbench.backends.registry import get
+from trapbench.backends.spin_chain import (
+    cumulative_overlaps,
+    exchange_coefficients,
+    ordered_densities,
+    oscillator_orbitals,
+    spin_chain_spectrum,
+)
+from trapbench.problems.spec import Problem
+
+ROOT_2PI = math.sqrt(2 * math.pi)
+# anchors Table 3.3a (J_1 .. J_{N-1}); the second half follows from J_k = J_{N-k}
+J_TABLE = {
+    2: [0.797884560803],
+    3: [1.346430196355, 1.346430196355],
+    4: [1.787645708037, 2.346508058635, 1.787645708037],
+    5: [2.166057718400, 3.177197531313, 3.177197531313, 2.166057718400],
+    6: [2.502178459271, 3.902098540177, 4.357116131391, 3.902098540177, 2.502178459271],
+}
+# anchors Table 3.3b, K descending
+K_TABLE = {
+    (3, 1): [7.0840312636, 3.5752914161, 1.1842762698, 0],
+    (2, 2): [9.0681241018, 7.0840312636, 3.5752914161, 2.7754748476, 1.1842762698, 0],
+    (4, 1): [10.6251768976, 6.4408158385, 3.2385311331, 1.0684971296, 0],
+    (3, 2): [15.3796526305, 12.3657603360, 10.6251768976, 7.9061276890, 6.4408158385, 4.6751452260,
+             3.2385311331, 2.4193561161, 1.0684971296, 0],
+    (5, 1): [14.5995242835, 9.8282400755, 5.9425699709, 2.9803139234, 0.9806920073, 0],
+    (4, 2): [22.6929069146, 18.9130978900, 16.1269554850, 14.5995242835, 13.8020868017, 11.1828040905,
+             9.8282400755, 7.1806345730, 6.6877634937, 5.9425699709, 4.2354382801, 2.9803139234,
+             2.1723332531, 0.9806920073, 0],
+    (3, 3): [24.9678072072, 22.6929069146, 18.9130978900, 18.1596890706, 16.1269554850, 14.5995242835,
+             13.8020868017, 12.8085539989, 11.1828040905, 9.8282400755, 9.0225878714, 7.1806345730,
+             6.6877634937, 5.9425699709, 4.2354382801, 3.7040423730, 2.9803139234, 2.1723332531,
+             0.9806920073, 0],
+}
+
+
+@pytest.mark.parametrize("n", sorted(J_TABLE))
+def test_exchange_coefficients_match_table(n):
+    coefficients = exchange_coefficients(n)
+    assert list(coefficients.values) == pytest.approx(J_TABLE[n], abs=1e-10)
+    assert coefficients.convergence < 1e-12
+
+
+def test_exchange_coefficients_closed_forms_and_mirror_symmetry():
+    assert exchange_coefficients(2).values[0] == pytest.approx(2 / ROOT_2PI, abs=1e-13)  # sqrt(2/pi)
+    assert exchange_coefficients(3).values[0] == pytest.approx(27 / (8 * ROOT_2PI), abs=1e-13)
+    for n in (7, 9, 12):
+        values = exchange_coefficients(n).values
+        assert values == pytest.approx(values[::-1], abs=1e-11)
+
+
+def test_three_body_exchange_by_direct_two_dimensional_quadrature():
+    # J_1(N=3) = int dz int_{y > z} |d/dx_1 det[phi_j(x_i)]|^2 at x_1 = x_2 = z, x_3 = y (Phi_F = det/sqrt(3!))
+    def integrand(y, z):
+        phi_z, dphi_z = oscillator_orbitals(3, np.array([z]))
+        phi_y, _ = oscillator_orbitals(3, np.array([y]))
+        return np.linalg.det(np.array([dphi_z[:, 0], phi_z[:, 0], phi_y[:, 0]])) ** 2
+
+    value, _ = integrate.dblquad(integrand, -9, 9, lambda z: z, lambda z: 9, epsabs=1e-11, epsrel=1e-11)
+    assert exchange_coefficients(3).values[0] == pytest.approx(value, abs=1e-9)
+
+
+def test_cumulative_overlaps_by_quadrature():
+    z = np.array([-1.3, 0.2, 2.1])
+    overlaps = cumulative_overlaps(5, z)
+    for a, point in zip(overlaps, z):
+        for j, l in [(0, 0), (3, 3), (4, 4), (1, 4), (2, 3)]:
+            expected, _ = integrate.quad(
+                lambda x: np.prod(oscillator_orbitals(5, np.array([x]))[0][[j, l], 0]), -np.inf, point, epsabs=1e-14
+            )
+            assert a[j, l] == pytest.approx(expected, abs=1e-12)
+
+
+def test_ordered_densities_two_particles_by_quadrature():
+    # rho_1(x) = int_{y > x} det[phi(x), phi(y)]^2 dy for Phi_F = det/sqrt(2)
+    x = np.array([-1.0, 0.0, 0.7])
+    rho = ordered_densities(2, x)
+    for i, point in enumerate(x):
+        def det2(y):
+            a, _ = oscillator_orbitals(2, np.array([point, y]))
+            return (a[0, 0] * a[1, 1] - a[1, 0] * a[0, 1]) ** 2
+        expected, _ = integrate.quad(det2, point, np.inf, epsabs=1e-14)
+        assert rho[0, i] == pytest.approx(expected, abs=1e-12)
+    grid = np.linspace(-9, 9, 3001)
+    rho = ordered_densities(4, grid)
+    assert np.trapezoid(rho, grid, axis=1) == pytest.approx([1, 1, 1, 1], abs=1e-10)
+    phi, _ = oscillator_orbitals(4, grid)
+    assert np.max(np.abs(rho.sum(axis=0) - (phi**2).sum(axis=0))) < 1e-12
+
+
+def test_k_two_body_and_three_body_closed_forms():
+    assert spin_chain_spectrum(1, 1).k_values == pytest.approx([2 * math.sqrt(2 / math.pi), 0], abs=1e-12)
+    assert spin_chain_spectrum(2, 1).k_values == pytest.approx([81 / (8 * ROOT_2PI), 27 / (8 * ROOT_2PI), 0], abs=1e-12)
+
+
+@pytest.mark.parametrize("counts", sorted(K_TABLE))
+def test_k_spectra_match_table(counts):
+    assert list(spin_chain_spectrum(*counts).k_values) == pytest.approx(K_TABLE[counts], abs=1e-8)
+
+
+def test_su2_multiplets_appear_in_every_sector():
+    # the (N_up, N_down) sector holds every multiplet with S >= |N_up - N_down|/2
+    small = spin_chain_spectrum(4, 1).k_values
+    large = spin_chain_spectrum(3, 2).k_values
+    for k in small:
+        assert np.min(np.abs(large - k)) < 1e-10
+
+
+@pytest.fixture(scope="module")
+def backend():
+    return get("strong-coupling")
+
+
+def test_backend_matches_exact_two_body_at_large_g(backend):
+    exact = get("two-body")
+    for g in (40.0, 200.0):
+        problem = Problem.create(1, 1, g, states=2)
+        strong = backend.solve(problem)
+        reference = exact.solve(problem)
+        assert [s["parity"] for s in strong.states] == [s["parity"] for s in reference.states]
+        for e, e_exact, error in zip(strong.energies, reference.energies, strong.energy_errors):
+            assert abs(e - e_exact) <= error
+        # the deviation is the known next order (1 - ln 2) K^2/g^2 (expansion of Busch's equation)
+        k = 2 * math.sqrt(2 / math.pi)
+        next_order = (reference.energies[0] - strong.energies[0]) * g**2 / k**2
+        assert next_order == pytest.approx(1 - math.log(2), rel=4 / g)  # O(1/g^3) remainder
+        assert strong.energies[1] == 2.0  # the spin-symmetric state is exact at every g
+
+
+def test_backend_parities_agree_with_weak_coupling_ground_state(backend):
+    # the g = 0 ground state of N_up + N_down has parity (-1)^(N_up(N_up-1)/2 + N_down(N_down-1)/2),
+    # and parity is conserved along g, so the g -> inf ground state has the same parity
+    for counts in ((2, 1), (3, 1), (2, 2), (3, 2), (3, 3), (4, 4)):
+        expected = (-1) ** (counts[0] * (counts[0] - 1) // 2 + counts[1] * (counts[1] - 1) // 2)
+        assert backend.solve(Problem.create(*counts, 100.0)).states[0]["parity"] == expected
+
+
+def test_backend_units_scale_with_mass_and_frequency(backend):
+    # E = omega (N^2/2 - K / (g sqrt(m/omega))) by dimensional analysis
+    m, w = 2.0, 3.0
+    result = backend.solve(Problem.create(2, 1, 30.0, mass_up=m, mass_down=m, omega_up=w, omega_down=w))
+    k = 81 / (8 * ROOT_2PI)
+    assert result.energies[0] == pytest.approx(w * (4.5 - k / (30.0 * math.sqrt(m / w))), abs=1e-12)
+    assert result.scalars["contact"] == pytest.approx((m * w) ** 1.5 * k, rel=1e-12)
+
+
+def test_backend_spin_resolved_densities(backend):
+    result = backend.solve(Problem.create(2, 1, 50.0, states=3, observables=["density"]))
+    x = result.observables["density_up"].axes["x"]
+    phi, _ = oscillator_orbitals(3, x)
+    total = (phi**2).sum(axis=0)
+    for state in range(3):
+        suffix = "" if state == 0 else f"@{state}"
+        up, down = result.observables["density_up" + suffix].values, result.observables["density_down" + suffix].values
+        assert np.trapezoid(up, x) == pytest.approx(2, abs=1e-6) and np.trapezoid(down, x) == pytest.approx(1, abs=1e-6)
+        assert np.max(np.abs(up + down - total)) < 1e-12
+    # K = 0: spin-symmetric amplitudes (1, 1, 1)/sqrt(3), so the impurity density is a third of the total
+    assert np.max(np.abs(result.observables["density_down@2"].values - total / 3)) < 1e-12
+    # ground state amplitudes (1, -2, 1)/sqrt(6): impurity at the centre with probability 2/3
+    rho = ordered_densities(3, x)
+    assert np.max(np.abs(result.observables["density_down"].values - (rho[0] + 4 * rho[1] + rho[2]) / 6)) < 1e-12
+
+
+def test_backend_density_approaches_exact_two_body_density(backend):
+    problem = Problem.create(1, 1, 2000.0, observables=["density"], grid_points=101)
+    strong = backend.solve(problem).observables["density_up"].values
+    exact = get("two-body").solve(problem).observables["density_up"].values
+    assert np.max(np.abs(strong - exact)) < 5e-3
+
+
+@pytest.mark.parametrize(
+    "problem,reason",
+    [
+        (Problem.create(2, 1, 5.0, mass_up=40 / 6), "unequal masses"),
+        (Problem.create(2, 1, -5.0), "repulsive branch"),
+        (Problem.create(2, 1, 5.0, omega_up=2.0), "frequencies"),
+        (Problem.create(2, 1, 5.0, states=4), "ask for targets.states <= 3"),
+        (Problem.create(2, 0, 5.0), "both species"),
+    ],
+)
+def test_backend_refuses_with_reasons(backend, problem, reason):
+    with pytest.raises(Unsupported, match=reason):
+        backend.solve(problem)
+
+
+def test_backend_warns_when_g_is_not_large(backend):
+    assert backend.solve(Problem.create(3, 3, 5.0)).warnings
+    assert not backend.solve(Problem.create(1, 1, 50.0)).warnings
