@@ -32,6 +32,9 @@ import pandas as pd
 from .suite import DEFAULT_TOLERANCES, Tolerance
 
 THRESHOLDS = (1e-2, 1e-3, 1e-4, 1e-6)
+# Round-off allowed on top of tolerances and error bars when comparing with a reference: a few ulps of
+# |E| (a result exactly on the edge of its bar must not fail by the last bit of a subtraction).
+ROUNDING = 8 * float(np.finfo(float).eps)
 MIB = 1024 * 1024
 
 
@@ -59,8 +62,9 @@ def attach_references(
     """Add reference and error columns to a results frame (one row per task and state).
 
     Added: ``ref_value``, ``ref_uncertainty``, ``ref_source``, ``ref_kind``, ``abs_error``,
-    ``rel_error`` (vs the reference), ``allowed`` (tolerance abs + rel |ref|), ``within_tolerance``,
-    ``within_error_bar`` (|E - ref| <= own error bar + reference uncertainty; None without a bar),
+    ``rel_error`` (vs the reference), ``allowed`` (tolerance abs + rel |ref|), ``within_tolerance``
+    (|E - ref| <= allowed + reference uncertainty), ``within_error_bar`` (|E - ref| <= own error bar
+    + reference uncertainty; None without a bar), both with ``ROUNDING`` |ref| of round-off slack,
     ``error_bar`` (the backend's energy_error, else error_estimate), ``accuracy`` (relative error
     used for cost tables) and ``error_basis``.
     """
@@ -91,11 +95,12 @@ def attach_references(
         if ref is not None:
             diff = abs(float(energy) - ref.value)
             allowed = tolerance("energy", row.get("backend")).allowed(ref.value)
+            slack = ref.uncertainty + ROUNDING * abs(ref.value)
             values.update(
                 ref_value=ref.value, ref_uncertainty=ref.uncertainty, ref_source=ref.source, ref_kind=ref.kind,
                 abs_error=diff, rel_error=diff / abs(ref.value) if ref.value else diff, allowed=allowed,
-                within_tolerance=diff <= allowed + ref.uncertainty,
-                within_error_bar=None if bar is None else diff <= bar + ref.uncertainty,
+                within_tolerance=diff <= allowed + slack,
+                within_error_bar=None if bar is None else diff <= bar + slack,
             )
             values["accuracy"], values["error_basis"] = values["rel_error"], "reference"
         elif bar is not None and energy is not None and not _missing(energy):

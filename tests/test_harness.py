@@ -394,3 +394,156 @@ def test_dask_local_cluster_gives_the_serial_numbers(tmp_path):
         assert a[key]["energies"] == b[key]["energies"]  # bit for bit
         assert a[key]["scalars"] == b[key]["scalars"]
         assert b[key]["peak_rss_bytes"] > 0 and b[key]["cpu_time_s"] > 0
+
+
+# ----------------------------------------------------------------------------- gate
+
+
+GATE_SUITE = FREE_PROBLEMS + """
+[tolerances]
+energy = { abs = 1e-12, rel = 1e-10 }
+
+[[backends]]
+name = "toy-exact"
+ladder = [{ cutoff = 3 }, { cutoff = 7 }]
+"""
+
+
+def test_check_passes_on_the_true_baseline_and_fails_on_a_perturbed_one(toy_path, tmp_path, capsys):
+    from trapbench.bench.cli import main
+
+    suite_path = tmp_path / "gate.toml"
+    suite_path.write_text(suite_text(GATE_SUITE, name="gate"))
+    baseline = tmp_path / "baseline.json"
+    store = ["--store", str(tmp_path / "gate.sqlite"), "--no-progress"]
+    assert main(["check", str(suite_path), "--baseline", str(baseline), "--update-baseline", *store]) == 0
+    document = json.loads(baseline.read_text())
+    assert len(document["tasks"]) == 4
+    for entry in document["tasks"].values():  # the baseline holds the true numbers: E0 + 1/cutoff^2
+        n_up, n_down = (1, 1) if entry["problem_name"] == "1+1 free" else (2, 1)
+        assert entry["energies"][0] == pytest.approx((n_up**2 + n_down**2) / 2 + 1 / entry["params"]["cutoff"] ** 2)
+    capsys.readouterr()
+    assert main(["check", str(suite_path), "--baseline", str(baseline), *store]) == 0
+    assert "PASSED" in capsys.readouterr().out
+
+    perturbed = json.loads(baseline.read_text())
+    key = next(iter(perturbed["tasks"]))
+    perturbed["tasks"][key]["energies"][0] += 1e-8  # beyond 1e-12 + 1e-10 |E|
+    baseline.write_text(json.dumps(perturbed))
+    assert main(["check", str(suite_path), "--baseline", str(baseline), *store]) == 1
+    out = capsys.readouterr().out
+    assert "FAILED: 1 regression" in out and "changed" in out
+
+    within = json.loads(baseline.read_text())
+    within["tasks"][key]["energies"][0] -= 1e-8 - 1e-11  # back to within tolerance
+    baseline.write_text(json.dumps(within))
+    assert main(["check", str(suite_path), "--baseline", str(baseline), "--no-run", *store]) == 0
+
+
+def test_gate_flags_new_failures_and_missing_results(toy_path, tmp_path):
+    from trapbench.bench.gate import REGRESSIONS, baseline_from_tasks, compare
+
+    suite = parse_suite(suite_text(GATE_SUITE))
+    store_path = tmp_path / "g.sqlite"
+    run_sweep(suite, SweepOptions(store_path=store_path, progress=False))
+    with Store.open(store_path) as store:
+        tasks = store.tasks_frame()
+    baseline = baseline_from_tasks(tasks, "t", suite.tolerance_table)
+    assert set(compare(tasks, baseline)["verdict"]) == {"ok"}
+
+    broken = tasks.copy()
+    broken.loc[0, "status"] = "crashed"
+    broken = broken.drop(index=1)
+    diff = compare(broken, baseline, suite.tolerance)
+    verdicts = diff.set_index("task_key")["verdict"]
+    assert verdicts[tasks.loc[0, "task_key"]] == "new failure"
+    assert verdicts[tasks.loc[1, "task_key"]] == "missing"
+    assert diff["verdict"].isin(REGRESSIONS).sum() == 2
+
+    fewer_levels = tasks.copy()
+    fewer_levels.at[2, "energies"] = []
+    assert "missing" in set(compare(fewer_levels, baseline)["verdict"])
+
+
+def test_malformed_baseline_is_an_input_error(tmp_path):
+    from trapbench.bench.gate import read_baseline
+
+    path = tmp_path / "b.json"
+    path.write_text('{"tasks": {}}')
+    with pytest.raises(SpecError, match="not a trapbench baseline"):
+        read_baseline(path)
+    with pytest.raises(SpecError, match="--update-baseline"):
+        read_baseline(tmp_path / "absent.json")
+
+
+# ----------------------------------------------------------------------------- tables
+
+
+class InlineReference:
+    """Reference values for the toy suite: E0 = (N_up^2 + N_down^2)/2 exactly (closed form, g = 0)."""
+
+    def __init__(self, quantity, state, value, uncertainty, source, kind):
+        self.quantity, self.state, self.value = quantity, state, value
+        self.uncertainty, self.source, self.kind = uncertainty, source, kind
+
+
+def free_references(problem):
+    if problem.coupling != 0.0:
+        return []
+    value = (problem.up.count**2 + problem.down.count**2) / 2
+    return [InlineReference("energy", 0, value, 0.0, "filled oscillator levels (closed form)", "exact")]
+
+
+def test_agreement_and_accuracy_vs_cost_tables(toy_path, tmp_path):
+    from trapbench.bench.tables import (accuracy_vs_cost_table, agreement_table, attach_references,
+                                        cost_vs_particle_number_table, plot_error_vs_cost, suite_tables_markdown,
+                                        write_tables)
+
+    suite = parse_suite(suite_text(FREE_PROBLEMS + """
+        [tolerances]
+        energy = { abs = 0.0, rel = 1e-3 }
+
+        [[backends]]
+        name = "toy-exact"
+        ladder = [{ cutoff = 3, work = 0 }, { cutoff = 30, work = 100000 }, { cutoff = 300, work = 1000000 },
+                  { cutoff = 900, work = 2000000 }]
+
+        [[backends]]
+        name = "toy-abort"
+        problems = ["1+1 free"]
+        """))
+    store_path = tmp_path / "t.sqlite"
+    run_sweep(suite, SweepOptions(store_path=store_path, progress=False))
+    with Store.open(store_path) as store:
+        frame = attach_references(store.results_frame(), free_references, suite.tolerance)
+
+    agreement = agreement_table(frame)
+    assert len(agreement) == 8
+    for row in agreement.itertuples():
+        cutoff = int(row.params.split("cutoff=")[1].split(",")[0])
+        exact = 1.0 if row.problem_name == "1+1 free" else 2.5
+        assert row.ref_value == exact
+        assert row.abs_error == pytest.approx(1 / cutoff**2, rel=1e-9)
+        assert row.within_tolerance == (1 / cutoff**2 <= 1e-3 * exact)
+        assert row.within_error_bar  # the toy's error estimate is exactly its error
+
+    cost = accuracy_vs_cost_table(frame)
+    pick = cost[(cost["problem_name"] == "1+1 free")].set_index("target")
+    # relative errors of the rungs for E0 = 1: 1/9, 1/900, 1/90000, 1/810000
+    assert pick.loc[1e-2, "params"].startswith("cutoff=30,")
+    assert pick.loc[1e-3, "params"].startswith("cutoff=300,")
+    assert pick.loc[1e-4, "params"].startswith("cutoff=300,")
+    assert pick.loc[1e-6, "params"] == "not reached"
+    assert pick.loc[1e-6, "accuracy"] == pytest.approx(1 / 810000)
+    assert pick.loc[1e-4, "peak_mib"] > 0 and pick.loc[1e-4, "cpu_s"] > 0
+
+    by_n = cost_vs_particle_number_table(frame, accuracy=1e-4).set_index("n")
+    assert list(by_n.index) == [2, 3] and list(by_n["problems_reached"]) == ["1/1", "1/1"]
+
+    text = suite_tables_markdown(frame, suite, free_references)
+    assert "| problem_name |" in text and "SIGABRT" in text
+    figure = plot_error_vs_cost(frame, "1+1 free")
+    assert len(figure.axes) == 2 and len(figure.axes[0].lines) == 1
+    written = write_tables(frame, tmp_path / "tables", suite, free_references)
+    names = {p.name for p in written}
+    assert {"agreement.md", "accuracy_vs_cost.csv", "cost_vs_n.html", "error_vs_cost_1_1_free.png"} <= names
