@@ -1,0 +1,91 @@
+"""Results round-trip through JSON and pandas; a third-party backend plugs in through an entry point."""
+
+import json
+import os
+import subprocess
+import sys
+import textwrap
+
+import numpy as np
+import pytest
+
+from trapbench.backends import Observable, Result, get
+from trapbench.problems import Problem
+
+
+def test_json_round_trip_is_lossless():
+    problem = Problem.create(1, 1, 2.0, mass_down=40 / 6, states=3, observables=["density", "momentum"], grid_points=64)
+    result = get("two-body").solve(problem)
+    result.observables["complex_check"] = Observable(np.array([1 + 2j, 3.5 - 1e-300j]), {"k": np.array([0.1, 0.2])}, "-", "-")
+    again = Result.from_json(result.to_json())
+    assert again.energies == result.energies and again.states == result.states
+    assert again.provenance == result.provenance and again.params == result.params
+    for name, observable in result.observables.items():
+        assert np.array_equal(again.observables[name].values, observable.values)
+        assert again.observables[name].values.dtype == observable.values.dtype
+        assert all(np.array_equal(again.observables[name].axes[k], v) for k, v in observable.axes.items())
+    frame = result.to_dataframe()
+    assert list(frame["energy"]) == result.energies and set(frame["backend"]) == {"two-body"}
+    assert frame["mass_down"].iloc[0] == pytest.approx(40 / 6)
+
+
+PLUGIN = '''
+"""A user's own solver: the non-interacting energy, exact only at g = 0."""
+from trapbench.backends import Backend, Solution, Support
+
+
+class FreeFermions(Backend):
+    name = "free-fermions"
+    version = "0.1"
+    summary = "non-interacting reference"
+
+    def supports(self, problem):
+        return Support.yes() if problem.coupling == 0 else Support.no("only g = 0")
+
+    def compute(self, problem, params):
+        return Solution(energies=[(problem.up.count ** 2 + problem.down.count ** 2) / 2])
+'''
+
+
+@pytest.fixture(scope="module")
+def installed_plugin(tmp_path_factory):
+    source = tmp_path_factory.mktemp("plugin-src")
+    (source / "free_fermions_plugin.py").write_text(PLUGIN)
+    (source / "pyproject.toml").write_text(textwrap.dedent('''
+        [build-system]
+        requires = ["setuptools>=61"]
+        build-backend = "setuptools.build_meta"
+        [project]
+        name = "free-fermions-plugin"
+        version = "0.1"
+        [tool.setuptools]
+        py-modules = ["free_fermions_plugin"]
+        [project.entry-points."trapbench.backends"]
+        free-fermions = "free_fermions_plugin:FreeFermions"
+    '''))
+    target = tmp_path_factory.mktemp("plugin-site")
+    subprocess.run(
+        [sys.executable, "-m", "pip", "install", "--quiet", "--no-deps", "--no-build-isolation", "--target", str(target), str(source)],
+        check=True,
+        capture_output=True,
+        timeout=300,
+    )
+    return target
+
+
+def test_plugin_found_through_entry_point(installed_plugin):
+    env = {**os.environ, "PYTHONPATH": str(installed_plugin)}
+    listing = subprocess.run([sys.executable, "-m", "trapbench.bench.cli", "backends"], env=env, capture_output=True, text=True, timeout=120)
+    assert "free-fermions" in listing.stdout
+    solved = subprocess.run(
+        [sys.executable, "-m", "trapbench.bench.cli", "solve", "--up", "3", "--down", "2", "--g", "0", "-b", "free-fermions", "--json"],
+        env=env, capture_output=True, text=True, timeout=120,
+    )
+    assert solved.returncode == 0, solved.stderr
+    # (N_up^2 + N_down^2)/2 = 6.5 (anchors section 1)
+    assert json.loads(solved.stdout)["energies"] == [6.5]
+    refused = subprocess.run(
+        [sys.executable, "-m", "trapbench.bench.cli", "solve", "--up", "3", "--down", "2", "--g", "1", "-b", "free-fermions"],
+        env=env, capture_output=True, text=True, timeout=120,
+    )
+    assert refused.returncode == 2 and "only g = 0" in refused.stderr
