@@ -47,6 +47,11 @@ def _split_params(pairs: list[str] | None, backends: list[str]) -> dict[str, dic
 
 def run(args: argparse.Namespace) -> int:
     problem = problem_from_args(args)
+    if problem.physical is not None:
+        for a, conversion in zip(problem.physical.scattering_length_bohr, problem.physical.conversions()):
+            print(f"a_3D = {a:g} a_0 -> g = {conversion.g:.10g}", file=sys.stderr)
+            for warning in conversion.warnings:
+                print(f"  warning: {warning}", file=sys.stderr)
     if args.backend:
         names = [n for item in args.backend for n in item.split(",") if n]
         backends = [registry.get(n) for n in names]
