@@ -547,3 +547,62 @@ def test_agreement_and_accuracy_vs_cost_tables(toy_path, tmp_path):
     written = write_tables(frame, tmp_path / "tables", suite, free_references)
     names = {p.name for p in written}
     assert {"agreement.md", "accuracy_vs_cost.csv", "cost_vs_n.html", "error_vs_cost_1_1_free.png"} <= names
+
+
+# ----------------------------------------------------------------------------- advisor
+
+
+def synthetic_row(backend, n_up, n_down, g, params, accuracy, cpu, peak_mib, within=True, basis="reference"):
+    return {"backend": backend, "n_up": n_up, "n_down": n_down, "mass_up": 1.0, "mass_down": 1.0, "g": g,
+            "params_text": params, "status": "ok", "state": 0, "solve_cpu_s": cpu, "cpu_time_s": cpu,
+            "solve_wall_s": cpu, "peak_rss_bytes": peak_mib * runner.MIB, "accuracy": accuracy,
+            "error_basis": basis, "within_error_bar": within, "problem_name": f"{n_up}+{n_down}"}
+
+
+def test_advisor_prefers_measured_cheap_reliable_and_extrapolates_cost():
+    import pandas as pd
+
+    from trapbench.bench.advisor import Query, advise
+
+    rows = [
+        synthetic_row("grid", 2, 2, 1.0, "a=0.2", 3e-3, 1.0, 100),
+        synthetic_row("grid", 2, 2, 1.0, "a=0.1", 5e-5, 4.0, 200),
+        synthetic_row("grid", 2, 2, 1.0, "a=0.05", 1e-6, 16.0, 400),
+        synthetic_row("overconfident", 2, 2, 1.0, "fast", 1e-5, 0.5, 50, within=False),
+        synthetic_row("basis", 2, 2, 1.0, "cut=10", 1e-3, 0.1, 60),
+    ]
+    # cost doubling with each particle: 2^N seconds and 10 * 2^N MiB at N = 2, 3, 4
+    rows += [synthetic_row("scaling", n_up, n_down, 0.0, f"cut={n_up + n_down}", 1e-5, 2.0 ** (n_up + n_down),
+                           10 * 2.0 ** (n_up + n_down)) for n_up, n_down in ((1, 1), (2, 1), (2, 2))]
+    frame = pd.DataFrame(rows)
+
+    advice = advise(frame, Query(2, 2, g=1.0, accuracy=1e-4))
+    assert advice.best.backend == "grid" and advice.best.params == "a=0.1"
+    assert advice.best.confidence == "high" and advice.best.cpu_s == 4.0
+    order = [r.backend for r in advice.recommendations]
+    assert order.index("overconfident") == len(order) - 1  # cheapest, but its error bars missed the reference
+    assert "outside the backend's own error bar" in " ".join(advice.recommendations[-1].reasons)
+    assert "best stored relative error 0.001" in advice.rejected["basis"]
+
+    nearby = advise(frame, Query(2, 2, g=1.3, accuracy=1e-4)).best
+    assert nearby.evidence == "nearby g" and nearby.confidence == "medium"
+
+    far = advise(frame, Query(3, 3, g=0.0, accuracy=1e-4))
+    scaling = next(r for r in far.recommendations if r.backend == "scaling")
+    assert scaling.evidence == "extrapolated" and scaling.confidence == "low"
+    assert scaling.cpu_s == pytest.approx(2.0**6, rel=1e-9)  # the exponential model is exact on 2^N
+    assert scaling.peak_mib == pytest.approx(10 * 2.0**6, rel=1e-9)
+    assert scaling.params == "cut=4"
+    assert "Recommended" in far.explain()
+
+
+def test_advisor_drops_backends_that_do_not_support_the_problem():
+    import pandas as pd
+
+    pytest.importorskip("trapbench.backends.two_body")
+    from trapbench.bench.advisor import Query, advise
+
+    frame = pd.DataFrame([synthetic_row("two-body", 1, 1, 1.0, "", 1e-14, 0.01, 80)])
+    assert advise(frame, Query(1, 1, g=1.0, accuracy=1e-10)).best.backend == "two-body"
+    advice = advise(frame, Query(2, 1, g=1.0, accuracy=1e-4))
+    assert advice.best is None and "does not support" in advice.rejected["two-body"]
