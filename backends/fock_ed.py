@@ -1,0 +1,660 @@
+"""Shared exact-diagonalization engine for two species of fermions in any orbital basis.
+
+The model (units of ``problems.spec``): species s in {up, down} has orbitals a = 0..M_s-1 and a
+one-body Hamiltonian h_s (an M_s x M_s matrix); the contact interaction is supplied in factorized
+form through quadrature points x_q with weights w_q and orbital values phi_a(x_q):
+
+    H = sum_s sum_ab (h_s)_ab c+_{s,a} c_{s,b}  +  g sum_q w_q rho_up(x_q) rho_down(x_q),
+    rho_s(x) = sum_ab conj(phi_a(x)) phi_b(x) c+_{s,a} c_{s,b}.
+
+This is exact for g delta(x_up - x_down) whenever the quadrature integrates every product
+phi_a phi_b chi_c chi_d exactly (Gauss-Hermite for oscillator orbitals), and it is the lattice
+interaction U sum_i n_{i,up} n_{i,down} (U = g/a) with points = sites, w_q = a and
+phi_a(x_q) = delta_aq / sqrt(a).
+
+Building blocks (all vectorised over configurations; loops run at most over orbital pairs,
+quadrature points or basis blocks):
+
+- ``FockSpace``: N fermions in M orbitals, configurations as sorted occupied-orbital lists ranked
+  by the combinatorial number system (no 64-orbital limit); vectorised index lookup;
+  ``hops`` gives c+_a c_b with fermion signs; ``one_body`` builds sum_ab h_ab c+_a c_b as CSR;
+  ``transform`` applies an orbital map with phases (parity) including the reordering sign.
+- ``ProductBasis``: up configurations x down configurations, either the full product or a union of
+  rectangles (up range x down range) with disjoint up ranges. An energy-truncated basis with up
+  configurations grouped by energy and down configurations sorted by energy is such a union
+  ("staircase"); so is one parity sector when orbitals have definite parity.
+- ``ProductHamiltonian``: the matrix-free H acting on the padded coefficient matrix Psi[i_up, i_down]:
+  H Psi = h_up Psi + Psi h_down^T + g sum_q w_q D_up(q) Psi D_down(q)^T (masked to the basis),
+  with a diagonal fast path when every D(q) is diagonal (lattice) and parity folding of the points
+  q, -q when orbitals have definite parity. ``as_linear_operator``, ``to_dense``.
+- ``parity_isometry``: the sector +-1 of a parity given as an orbital map with phases, for bases
+  where parity is not diagonal (lattice reflection i -> L-1-i).
+- ``lowest_eigenpairs``: scipy ``eigsh`` (which='SA', one BLAS thread) or dense ``eigh`` for small
+  dimensions; ``degeneracies`` groups levels closer than a tolerance.
+- Observables of a state: ``one_body_density_matrices`` rho_ab = <c+_a c_b>, ``pair_tensor``
+  Gamma_{ab,cd} = <c+_a c_b d+_c d_d>, and their evaluation on grids of (possibly complex) orbital
+  values in position or momentum: densities, one-body density matrices, pair correlations,
+  noise correlation C = G - n_up n_down and its integral of C^2, <sum delta> and <V_trap>.
+
+Fermion ordering convention: all up modes precede all down modes; one-body operators of either
+species are even, so no sign crosses species.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from itertools import combinations
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.linalg import LinearOperator, eigsh
+from scipy.special import comb
+
+DENSE_LIMIT = 400  # below this dimension the dense eigensolver is faster and fully robust
+SCRATCH_ELEMENTS = 2.5e7  # bound on intermediate arrays of the matvec (8 bytes each)
+
+
+# ----------------------------------------------------------------------------- single species
+
+
+def _ranks(occupied: np.ndarray) -> np.ndarray:
+    """Combinatorial-number-system rank sum_k C(o_k, k+1) of sorted occupied lists (one per row)."""
+    occupied = np.asarray(occupied, dtype=np.int64)
+    if occupied.shape[1] == 0:
+        return np.zeros(occupied.shape[0], dtype=np.int64)
+    ranks = np.zeros(occupied.shape[0], dtype=np.int64)
+    for k in range(occupied.shape[1]):
+        ranks += comb(occupied[:, k], k + 1, exact=False).round().astype(np.int64)
+    return ranks
+
+
+def all_configurations(n_orbitals: int, n_particles: int) -> np.ndarray:
+    """Every sorted occupied list of ``n_particles`` among ``n_orbitals`` (rows, lexicographic)."""
+    if n_particles > n_orbitals:
+        raise ValueError(f"{n_particles} fermions do not fit in {n_orbitals} orbitals")
+    count = math.comb(n_orbitals, n_particles)
+    flat = np.fromiter(
+        (o for combo in combinations(range(n_orbitals), n_particles) for o in combo),
+        dtype=np.int32,
+        count=count * n_particles,
+    )
+    return flat.reshape(count, n_particles)
+
+
+@dataclass(frozen=True)
+class Hops:
+    """All nonzero c+_a c_b |source> = sign |target> within one Fock space (flat arrays)."""
+
+    target: np.ndarray
+    source: np.ndarray
+    sign: np.ndarray
+    a: np.ndarray
+    b: np.ndarray
+
+
+class FockSpace:
+    """N fermions in M orbitals; configuration i is the sorted occupied list ``occupied[i]``.
+
+    The order of configurations is the caller's (e.g. sorted by energy); ``index`` maps any
+    occupied lists to positions (-1 when a configuration is not in this, possibly truncated, space).
+    """
+
+    def __init__(self, n_orbitals: int, n_particles: int, occupied: np.ndarray | None = None):
+        self.n_orbitals = int(n_orbitals)
+        self.n_particles = int(n_particles)
+        if occupied is None:
+            occupied = all_configurations(self.n_orbitals, self.n_particles)
+        occupied = np.asarray(occupied, dtype=np.int32).reshape(-1, self.n_particles)
+        if occupied.size and (occupied.min() < 0 or occupied.max() >= self.n_orbitals):
+            raise ValueError("occupied orbitals out of range")
+        if self.n_particles > 1 and np.any(np.diff(occupied, axis=1) <= 0):
+            raise ValueError("each configuration must list distinct orbitals in ascending order")
+        self.occupied = occupied
+        self.ranks = _ranks(occupied)
+        self._order = np.argsort(self.ranks, kind="stable")
+        self._sorted_ranks = self.ranks[self._order]
+        if np.any(np.diff(self._sorted_ranks) == 0):
+            raise ValueError("duplicate configurations")
+        self._hops: dict[tuple[int, ...] | None, Hops] = {}
+
+    @property
+    def dim(self) -> int:
+        return self.occupied.shape[0]
+
+    @property
+    def occupations(self) -> np.ndarray:
+        """n[i, a] in {0, 1} as float (dim x M)."""
+        n = np.zeros((self.dim, self.n_orbitals))
+        np.put_along_axis(n, self.occupied.astype(np.int64), 1.0, axis=1)
+        return n
+
+    def index(self, occupied: np.ndarray) -> np.ndarray:
+        """Positions of sorted occupied lists (rows) in this space; -1 where absent."""
+        ranks = _ranks(np.asarray(occupied).reshape(-1, self.n_particles))
+        pos = np.searchsorted(self._sorted_ranks, ranks)
+        pos = np.minimum(pos, max(self.dim - 1, 0))
+        found = self._sorted_ranks[pos] == ranks if self.dim else np.zeros(len(ranks), bool)
+        return np.where(found, self._order[pos], -1)
+
+    def hops(self, pairs: np.ndarray | None = None) -> Hops:
+        """Every c+_a c_b acting inside the space, restricted to orbital ``pairs`` (k x 2) if given.
+
+        Sign: (-1)^(number of occupied orbitals strictly between a and b), the Jordan-Wigner
+        string of moving one fermion from b to a in the ordered product of creation operators.
+        """
+        key = None if pairs is None else tuple(np.asarray(pairs).ravel().tolist())
+        if key in self._hops:
+            return self._hops[key]
+        M, N, dim = self.n_orbitals, self.n_particles, self.dim
+        occ = self.occupations
+        below = np.zeros((dim, M + 1))
+        np.cumsum(occ, axis=1, out=below[:, 1:])
+        allowed = np.ones((M, M), bool)
+        if pairs is not None:
+            allowed[:] = False
+            pairs = np.asarray(pairs, dtype=np.int64).reshape(-1, 2)
+            allowed[pairs[:, 0], pairs[:, 1]] = True
+        pieces = []
+        for k in range(N):
+            b = self.occupied[:, k].astype(np.int64)
+            for a in range(M):
+                ok = allowed[a, b] & ((occ[:, a] == 0) | (b == a))
+                src = np.nonzero(ok)[0]
+                if not len(src):
+                    continue
+                bb = b[src]
+                lo, hi = np.minimum(a, bb), np.maximum(a, bb)
+                between = below[src, hi] - below[src, np.minimum(lo + 1, hi)]
+                new = self.occupied[src].copy()
+                new[:, k] = a
+                new.sort(axis=1)
+                tgt = self.index(new)
+                keep = tgt >= 0
+                pieces.append(
+                    (tgt[keep], src[keep], 1.0 - 2.0 * (between[keep] % 2), np.full(keep.sum(), a), bb[keep])
+                )
+        if pieces:
+            arrays = [np.concatenate([p[i] for p in pieces]) for i in range(5)]
+        else:
+            arrays = [np.zeros(0, np.int64)] * 2 + [np.zeros(0)] + [np.zeros(0, np.int64)] * 2
+        result = Hops(arrays[0].astype(np.int64), arrays[1].astype(np.int64), arrays[2], arrays[3], arrays[4])
+        self._hops[key] = result
+        return result
+
+    def one_body(self, matrix: np.ndarray) -> sp.csr_matrix:
+        """sum_ab matrix[a, b] c+_a c_b as a CSR matrix on this space (pairs with zero entries skipped)."""
+        matrix = np.asarray(matrix)
+        pairs = np.argwhere(matrix != 0)
+        hops = self.hops(pairs)
+        data = hops.sign * matrix[hops.a, hops.b]
+        return sp.csr_matrix((data, (hops.target, hops.source)), shape=(self.dim, self.dim))
+
+    def transform(self, orbital_map: Sequence[int], orbital_phase: Sequence[float]) -> tuple[np.ndarray, np.ndarray]:
+        """U c+_a U^-1 = phase[a] c+_{map[a]}: returns (target index, sign) for every configuration.
+
+        The sign is the product of phases times the parity of the permutation that re-sorts the
+        mapped creation operators; target is -1 when the image leaves a truncated space.
+        """
+        orbital_map = np.asarray(orbital_map, dtype=np.int64)
+        phase = np.asarray(orbital_phase, dtype=float)
+        mapped = orbital_map[self.occupied]
+        inversions = np.zeros(self.dim, dtype=np.int64)
+        for k in range(self.n_particles):
+            for m in range(k + 1, self.n_particles):
+                inversions += mapped[:, k] > mapped[:, m]
+        sign = np.prod(phase[self.occupied], axis=1) * (1.0 - 2.0 * (inversions % 2))
+        return self.index(np.sort(mapped, axis=1)), sign
+
+
+# ----------------------------------------------------------------------------- product basis
+
+
+@dataclass
+class ProductBasis:
+    """States |i_up> |i_down> kept in rectangles rows [r0, r1) x columns [c0, c1) of the padded
+    coefficient matrix Psi (dim_up x dim_down); row ranges of different rectangles are disjoint.
+
+    The coefficient vector lists the rectangles one after another, each row-major.
+    """
+
+    up: FockSpace
+    down: FockSpace
+    rectangles: np.ndarray  # (n_rect, 4) int: r0, r1, c0, c1
+    flat: np.ndarray = field(init=False)
+
+    def __post_init__(self):
+        rect = np.asarray(self.rectangles, dtype=np.int64).reshape(-1, 4)
+        rect = rect[(rect[:, 1] > rect[:, 0]) & (rect[:, 3] > rect[:, 2])]
+        self.rectangles = rect
+        rows = np.zeros(self.up.dim, int)
+        for r0, r1, c0, c1 in rect:
+            if r0 < 0 or r1 > self.up.dim or c0 < 0 or c1 > self.down.dim:
+                raise ValueError("rectangle outside the product space")
+            rows[r0:r1] += 1
+        if np.any(rows > 1):
+            raise ValueError("rectangles must have disjoint row ranges")
+        parts = [
+            (np.arange(r0, r1)[:, None] * self.down.dim + np.arange(c0, c1)[None, :]).ravel() for r0, r1, c0, c1 in rect
+        ]
+        self.flat = np.concatenate(parts) if parts else np.zeros(0, np.int64)
+
+    @classmethod
+    def full(cls, up: FockSpace, down: FockSpace) -> ProductBasis:
+        return cls(up, down, np.array([[0, up.dim, 0, down.dim]]))
+
+    @property
+    def dim(self) -> int:
+        return len(self.flat)
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return (self.up.dim, self.down.dim)
+
+    @property
+    def up_index(self) -> np.ndarray:
+        return self.flat // self.down.dim
+
+    @property
+    def down_index(self) -> np.ndarray:
+        return self.flat % self.down.dim
+
+    def to_matrix(self, vector: np.ndarray) -> np.ndarray:
+        """Padded coefficient matrix Psi[i_up, i_down] (zeros outside the basis)."""
+        psi = np.zeros(self.up.dim * self.down.dim, dtype=np.result_type(vector, float))
+        psi[self.flat] = vector
+        return psi.reshape(self.shape)
+
+    def from_matrix(self, matrix: np.ndarray) -> np.ndarray:
+        return np.asarray(matrix).reshape(-1)[self.flat]
+
+
+# ----------------------------------------------------------------------------- Hamiltonian
+
+
+@dataclass(frozen=True)
+class ContactFactorization:
+    """g delta(x_up - x_down) as g sum_q w_q rho_up(x_q) rho_down(x_q).
+
+    ``values_up[q, a]`` = phi_a(x_q) (real); ``parity_up[a]`` = +-1 when orbitals have definite
+    parity and the points are symmetric (x_q = -x_{Q-1-q}, equal weights): the engine then folds
+    q and -q into terms that conserve parity (half the work).
+    """
+
+    points: np.ndarray
+    weights: np.ndarray
+    values_up: np.ndarray
+    values_down: np.ndarray
+    parity_up: np.ndarray | None = None
+    parity_down: np.ndarray | None = None
+
+
+def _density_operator(space: FockSpace, values: np.ndarray, pair_parity: np.ndarray | None, sector: int):
+    """D(q) = sum_ab phi_a(x_q) phi_b(x_q) c+_a c_b for one point (values = phi(x_q), length M),
+    keeping only orbital pairs whose parity product equals ``sector`` when ``pair_parity`` is given.
+
+    Off-diagonal hops (a != b) map each source to a distinct target, so the CSR pattern is fixed;
+    the diagonal is n . phi^2.
+    """
+    M = space.n_orbitals
+    allowed = ~np.eye(M, dtype=bool)
+    if pair_parity is not None:
+        allowed &= np.outer(pair_parity, pair_parity) == sector
+    hops = space.hops(np.argwhere(allowed))
+    data = hops.sign * values[hops.a] * values[hops.b]
+    diag = space.occupations @ (values**2)
+    if pair_parity is not None and sector != 1:
+        diag = np.zeros(space.dim)
+    rows = np.concatenate([hops.target, np.arange(space.dim)])
+    cols = np.concatenate([hops.source, np.arange(space.dim)])
+    return sp.csr_matrix((np.concatenate([data, diag]), (rows, cols)), shape=(space.dim, space.dim))
+
+
+class ProductHamiltonian:
+    """H on a ``ProductBasis``: one-body matrices per species plus the factorized contact term.
+
+    h_up, h_down: M_s x M_s one-body matrices (kinetic + trap) in the orbital basis.
+    ``terms_per_chunk`` bounds the intermediate memory to terms x dim_up x dim_down x 8 bytes
+    (default: as many terms as fit in SCRATCH_ELEMENTS).
+    """
+
+    def __init__(
+        self,
+        basis: ProductBasis,
+        h_up: np.ndarray,
+        h_down: np.ndarray,
+        g: float,
+        contact: ContactFactorization | None,
+        terms_per_chunk: int | None = None,
+    ):
+        self.basis = basis
+        self.g = float(g)
+        n_u, n_d = basis.shape
+        self._diag_one_body = _is_diagonal(h_up) and _is_diagonal(h_down)
+        if self._diag_one_body:
+            e_u = basis.up.occupations @ np.diag(h_up).real
+            e_d = basis.down.occupations @ np.diag(h_down).real
+            self._one_body_diag = e_u[:, None] + e_d[None, :]
+        else:
+            self._h_up = basis.up.one_body(h_up)
+            self._h_down_t = basis.down.one_body(h_down).T.tocsr()
+        self._interaction_diag = None
+        self._chunks: list = []
+        if contact is not None and self.g != 0.0:
+            self._prepare_contact(contact, terms_per_chunk)
+        mask = np.zeros(n_u * n_d, bool)
+        mask[basis.flat] = True
+        self._mask = mask.reshape(n_u, n_d)
+        self.matvec_count = 0
+
+    # -------------------------------------------------------------- setup
+    def _prepare_contact(self, c: ContactFactorization, per_chunk: int) -> None:
+        vu, vd, w = np.asarray(c.values_up), np.asarray(c.values_down), np.asarray(c.weights, float)
+        if np.iscomplexobj(vu) or np.iscomplexobj(vd):
+            raise ValueError("the contact factorization needs real orbital values at the points")
+        if np.all(np.count_nonzero(vu, axis=1) <= 1) and np.all(np.count_nonzero(vd, axis=1) <= 1):
+            # every D(q) is diagonal: V[i, j] = sum_q w_q (n_up[i] . phi^2(q)) (n_down[j] . chi^2(q))
+            du = self.basis.up.occupations @ (vu**2).T
+            dd = self.basis.down.occupations @ (vd**2).T
+            self._interaction_diag = self.g * (du * w[None, :]) @ dd.T
+            return
+        terms = []  # (weight, values_up row, values_down row, parity sector)
+        x = np.asarray(c.points, float)
+        fold = (
+            c.parity_up is not None
+            and c.parity_down is not None
+            and np.allclose(x, -x[::-1], atol=1e-13)
+            and np.allclose(w, w[::-1], rtol=1e-12)
+        )
+        if fold:
+            for q in range(len(x)):
+                if x[q] > 0:
+                    terms += [(2 * w[q], vu[q], vd[q], +1), (2 * w[q], vu[q], vd[q], -1)]
+                elif x[q] == 0:
+                    terms.append((w[q], vu[q], vd[q], +1))
+        else:
+            terms = [(w[q], vu[q], vd[q], 0) for q in range(len(x))]
+        n_u, n_d = self.basis.shape
+        if per_chunk is None:
+            per_chunk = max(1, min(len(terms), int(SCRATCH_ELEMENTS // max(1, n_u * n_d))))
+        for start in range(0, len(terms), per_chunk):
+            chunk = terms[start : start + per_chunk]
+            ups, downs, weights = [], [], []
+            for weight, ru, rd, sector in chunk:
+                pu = c.parity_up if sector else None
+                pd = c.parity_down if sector else None
+                ups.append(_density_operator(self.basis.up, ru, pu, sector))
+                downs.append(_density_operator(self.basis.down, rd, pd, sector))
+                weights.append(weight)
+            down_stack = sp.vstack(downs).tocsc()  # (K n_d) x n_d
+            k = len(chunk)
+            # step 1 per rectangle: T[:, rows] = down_stack[:, cols] @ Psi[rows, cols]^T
+            step1 = [down_stack[:, c0:c1].tocsr() for _, _, c0, c1 in self.basis.rectangles]
+            # step 2 per rectangle: out[rows, cols] += hstack_k(w_k U_k[rows, :]) @ T2[:, cols]
+            up_rows = [
+                sp.hstack([wk * U[r0:r1, :] for wk, U in zip(weights, ups)]).tocsr()
+                for r0, r1, _, _ in self.basis.rectangles
+            ]
+            self._chunks.append((k, step1, up_rows))
+        del n_u, n_d
+
+    # -------------------------------------------------------------- action
+    def apply_matrix(self, psi: np.ndarray) -> np.ndarray:
+        """H acting on padded coefficient matrices psi[i_up, i_down, v] (zeros outside the basis)."""
+        n_u, n_d, nv = psi.shape
+        if self._diag_one_body:
+            out = self._one_body_diag[:, :, None] * psi
+        else:
+            out = (self._h_up @ psi.reshape(n_u, n_d * nv)).reshape(n_u, n_d, nv)
+            down = self._h_down_t.T @ psi.transpose(1, 0, 2).reshape(n_d, n_u * nv)
+            out += down.reshape(n_d, n_u, nv).transpose(1, 0, 2)
+        if self._interaction_diag is not None:
+            out += self._interaction_diag[:, :, None] * psi
+        rect = self.basis.rectangles
+        for k, step1, up_rows in self._chunks:
+            tt = np.zeros((k * n_d, n_u, nv), dtype=psi.dtype)
+            for (r0, r1, c0, c1), s1 in zip(rect, step1):
+                block = psi[r0:r1, c0:c1, :].transpose(1, 0, 2).reshape(c1 - c0, (r1 - r0) * nv)
+                tt[:, r0:r1, :] = (s1 @ block).reshape(k * n_d, r1 - r0, nv)
+            t2 = tt.reshape(k, n_d, n_u, nv).transpose(0, 2, 1, 3).reshape(k * n_u, n_d, nv)
+            for (r0, r1, c0, c1), s2 in zip(rect, up_rows):
+                block = t2[:, c0:c1, :].reshape(k * n_u, (c1 - c0) * nv)
+                out[r0:r1, c0:c1, :] += self.g * (s2 @ block).reshape(r1 - r0, c1 - c0, nv)
+        out[~self._mask] = 0.0
+        return out
+
+    def matmat(self, vectors: np.ndarray) -> np.ndarray:
+        """H applied to columns of ``vectors`` (dim x nv), in batches that bound the scratch memory."""
+        vectors = np.asarray(vectors)
+        if vectors.ndim == 1:
+            vectors = vectors[:, None]
+        dim, nv = vectors.shape
+        n_u, n_d = self.basis.shape
+        terms = max((k for k, _, _ in self._chunks), default=1)
+        batch = max(1, int(SCRATCH_ELEMENTS // max(1, terms * n_u * n_d)))
+        out = np.empty((dim, nv), dtype=np.result_type(vectors, float))
+        for s in range(0, nv, batch):
+            part = vectors[:, s : s + batch]
+            psi = np.zeros((n_u * n_d, part.shape[1]), dtype=out.dtype)
+            psi[self.basis.flat] = part
+            result = self.apply_matrix(psi.reshape(n_u, n_d, -1))
+            out[:, s : s + batch] = result.reshape(n_u * n_d, -1)[self.basis.flat]
+        self.matvec_count += nv
+        return out
+
+    def matvec(self, vector: np.ndarray) -> np.ndarray:
+        return self.matmat(np.asarray(vector).reshape(-1, 1))[:, 0]
+
+    def as_linear_operator(self, dtype=float) -> LinearOperator:
+        return LinearOperator(
+            (self.basis.dim, self.basis.dim), matvec=self.matvec, matmat=self.matmat, dtype=dtype
+        )
+
+    def diagonal(self) -> np.ndarray:
+        """The diagonal of H in the basis (for preconditioners and checks)."""
+        n_u, n_d = self.basis.shape
+        if self._diag_one_body:
+            diag = self._one_body_diag.copy()
+        else:
+            diag = self._h_up.diagonal()[:, None] + self._h_down_t.diagonal()[None, :]
+        if self._interaction_diag is not None:
+            diag = diag + self._interaction_diag
+        elif self._chunks:
+            raise NotImplementedError("diagonal of a non-diagonal factorized interaction is not needed here")
+        return self.basis.from_matrix(diag)
+
+    def to_dense(self) -> np.ndarray:
+        """The full matrix (small bases only): H applied to every unit vector."""
+        dim = self.basis.dim
+        if dim > 20000:
+            raise ValueError(f"dimension {dim} is too large for a dense matrix")
+        matrix = self.matmat(np.eye(dim))
+        return 0.5 * (matrix + matrix.T)
+
+
+def _is_diagonal(matrix: np.ndarray) -> bool:
+    matrix = np.asarray(matrix)
+    return bool(np.all(matrix == np.diag(np.diag(matrix))))
+
+
+# ----------------------------------------------------------------------------- parity sectors
+
+
+def parity_isometry(basis: ProductBasis, up: tuple, down: tuple, sector: int) -> sp.csr_matrix:
+    """Columns spanning the parity sector ``sector`` (+1/-1) of ``basis``.
+
+    ``up`` and ``down`` are ``FockSpace.transform`` results (target, sign). The product parity is
+    P|i, j> = s_up(i) s_down(j) |P i, P j> (no sign between species: each species is mapped onto
+    itself). Each orbit {b, P b} gives (|b> + sector * P|b>)/sqrt(2), or |b> when P b = +-b.
+    """
+    t_u, s_u = up
+    t_d, s_d = down
+    i, j = basis.up_index, basis.down_index
+    if np.any(t_u[i] < 0) or np.any(t_d[j] < 0):
+        raise ValueError("the basis is not closed under parity")
+    image_flat = t_u[i] * basis.down.dim + t_d[j]
+    position = np.full(basis.up.dim * basis.down.dim, -1, dtype=np.int64)
+    position[basis.flat] = np.arange(basis.dim)
+    image = position[image_flat]
+    if np.any(image < 0):
+        raise ValueError("the basis is not closed under parity")
+    sign = s_u[i] * s_d[j]
+    me = np.arange(basis.dim)
+    fixed = image == me
+    keep_fixed = fixed & (sign == sector)
+    pair = (~fixed) & (me < image)
+    rows = np.concatenate([me[keep_fixed], me[pair], image[pair]])
+    n_fixed, n_pair = int(keep_fixed.sum()), int(pair.sum())
+    cols = np.concatenate([np.arange(n_fixed), n_fixed + np.arange(n_pair), n_fixed + np.arange(n_pair)])
+    vals = np.concatenate([np.ones(n_fixed), np.full(n_pair, 1 / math.sqrt(2)), sector * sign[pair] / math.sqrt(2)])
+    return sp.csr_matrix((vals, (rows, cols)), shape=(basis.dim, n_fixed + n_pair))
+
+
+def project(operator: LinearOperator, isometry: sp.spmatrix) -> LinearOperator:
+    """V^T H V as a LinearOperator (V real, orthonormal columns)."""
+    vt = isometry.T.tocsr()
+    return LinearOperator(
+        (isometry.shape[1], isometry.shape[1]), matvec=lambda v: vt @ (operator @ (isometry @ v)), dtype=float
+    )
+
+
+# ----------------------------------------------------------------------------- eigensolver
+
+
+def lowest_eigenpairs(
+    operator, k: int, tol: float = 1e-12, v0: np.ndarray | None = None, dense_limit: int = DENSE_LIMIT
+) -> tuple[np.ndarray, np.ndarray]:
+    """The k lowest eigenvalues (ascending) and eigenvectors (columns) of a real symmetric operator.
+
+    Dense ``eigh`` below ``dense_limit``; otherwise Lanczos (ARPACK ``eigsh``, which='SA',
+    ncv = max(2k+1, 24)). BLAS runs on one thread (shared machines; common practice).
+    """
+    from threadpoolctl import threadpool_limits
+
+    dim = operator.shape[0]
+    k = min(k, dim)
+    with threadpool_limits(limits=1):
+        if dim <= dense_limit:
+            if isinstance(operator, np.ndarray):
+                matrix = operator
+            else:
+                matrix = operator @ np.eye(dim)
+                matrix = 0.5 * (matrix + matrix.T)
+            values, vectors = np.linalg.eigh(matrix)
+            return values[:k], vectors[:, :k]
+        ncv = min(dim, max(2 * k + 1, 24))
+        values, vectors = eigsh(operator, k=k, which="SA", tol=tol, v0=v0, ncv=ncv)
+    order = np.argsort(values)
+    return values[order], vectors[:, order]
+
+
+def degeneracies(energies: Sequence[float], tol: float) -> list[int]:
+    """For each level, how many levels (itself included) lie in its cluster of spacing < tol."""
+    energies = np.asarray(energies, float)
+    labels = np.zeros(len(energies), int)
+    for i in range(1, len(energies)):
+        labels[i] = labels[i - 1] + (energies[i] - energies[i - 1] >= tol)
+    counts = np.bincount(labels) if len(labels) else np.zeros(0, int)
+    return [int(counts[label]) for label in labels]
+
+
+# ----------------------------------------------------------------------------- observables
+
+
+def one_body_density_matrices(basis: ProductBasis, vector: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """rho_s[a, b] = <c+_{s,a} c_{s,b}> for a normalized state; trace rho_s = N_s."""
+    psi = basis.to_matrix(vector)
+    r_up = psi @ psi.conj().T  # R[s, t] = sum_j psi[s, j] conj(psi[t, j])
+    r_down = psi.T @ psi.conj()
+    result = []
+    for space, r in ((basis.up, r_up), (basis.down, r_down)):
+        hops = space.hops()
+        M = space.n_orbitals
+        contrib = hops.sign * r[hops.source, hops.target]
+        rho = np.zeros(M * M, dtype=r.dtype)
+        np.add.at(rho, hops.a * M + hops.b, contrib)
+        result.append(rho.reshape(M, M))
+    return result[0], result[1]
+
+
+def pair_tensor(basis: ProductBasis, vector: np.ndarray) -> np.ndarray:
+    """Gamma[a, b, c, d] = <c+_{up,a} c_{up,b} c+_{down,c} c_{down,d}> (M_up, M_up, M_down, M_down).
+
+    Cost ~ dim_down^2 x (number of up hops), as one matrix product per up orbital pair.
+    """
+    psi = basis.to_matrix(vector)
+    up_hops, down_hops = basis.up.hops(), basis.down.hops()
+    M_u, M_d = basis.up.n_orbitals, basis.down.n_orbitals
+    gamma = np.zeros((M_u * M_u, M_d * M_d), dtype=psi.dtype)
+    pair_u = up_hops.a * M_u + up_hops.b
+    pair_d = down_hops.a * M_d + down_hops.b
+    order = np.argsort(pair_u, kind="stable")
+    bounds = np.searchsorted(pair_u[order], np.arange(M_u * M_u + 1))
+    for ab in range(M_u * M_u):
+        sel = order[bounds[ab] : bounds[ab + 1]]
+        if not len(sel):
+            continue
+        # X[t', s'] = sum_h sign_h conj(psi[target_h, t']) psi[source_h, s']
+        x = psi[up_hops.target[sel]].conj().T @ (up_hops.sign[sel, None] * psi[up_hops.source[sel]])
+        contrib = down_hops.sign * x[down_hops.target, down_hops.source]
+        gamma[ab] = np.bincount(pair_d, weights=contrib.real, minlength=M_d * M_d)
+        if np.iscomplexobj(contrib):
+            gamma[ab] += 1j * np.bincount(pair_d, weights=contrib.imag, minlength=M_d * M_d)
+    return gamma.reshape(M_u, M_u, M_d, M_d)
+
+
+def orbital_products(values: np.ndarray) -> np.ndarray:
+    """F[x, a, b] = conj(phi_a(x)) phi_b(x) for orbital values (n_x x M)."""
+    values = np.asarray(values)
+    return values.conj()[:, :, None] * values[:, None, :]
+
+
+def density_on_grid(rho: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """n(x) = sum_ab conj(phi_a(x)) phi_b(x) rho[a, b] (real for a Hermitian rho)."""
+    return np.einsum("xa,ab,xb->x", np.asarray(values).conj(), rho, values).real
+
+
+def obdm_on_grid(rho: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """rho(x, x') = <psi+(x) psi(x')> = sum_ab conj(phi_a(x)) rho[a, b] phi_b(x')."""
+    values = np.asarray(values)
+    return values.conj() @ rho @ values.T
+
+
+def pair_on_grid(gamma: np.ndarray, values_up: np.ndarray, values_down: np.ndarray) -> np.ndarray:
+    """G(x1, x2) = <n_up(x1) n_down(x2)> = sum F_up[x1, ab] Gamma[ab, cd] F_down[x2, cd]."""
+    M_u, M_d = gamma.shape[0], gamma.shape[2]
+    f_u = orbital_products(values_up).reshape(len(values_up), M_u * M_u)
+    f_d = orbital_products(values_down).reshape(len(values_down), M_d * M_d)
+    return (f_u @ gamma.reshape(M_u * M_u, M_d * M_d) @ f_d.T).real
+
+
+def noise_on_grid(gamma, rho_up, rho_down, values_up, values_down) -> np.ndarray:
+    """C(p1, p2) = G(p1, p2) - n_up(p1) n_down(p2)."""
+    return pair_on_grid(gamma, values_up, values_down) - np.outer(
+        density_on_grid(rho_up, values_up), density_on_grid(rho_down, values_down)
+    )
+
+
+def noise_integral(gamma, rho_up, rho_down, values_up, weights_up, values_down, weights_down) -> float:
+    """integral dp1 dp2 C(p1, p2)^2 as the quadrature sum_{p1, p2} w1 w2 C^2.
+
+    Exact when the quadrature integrates the squared products of orbital values exactly
+    (Gauss-Hermite for oscillator orbitals); a Riemann/trapezoid sum on a uniform grid otherwise.
+    """
+    c = noise_on_grid(gamma, rho_up, rho_down, values_up, values_down)
+    return float(np.asarray(weights_up) @ (c**2) @ np.asarray(weights_down))
+
+
+def contact_expectation(gamma: np.ndarray, contact: ContactFactorization) -> float:
+    """<sum_{i up, j down} delta(x_i - x_j)> = sum_q w_q G(x_q, x_q) with the Hamiltonian's points."""
+    M_u, M_d = gamma.shape[0], gamma.shape[2]
+    f_u = orbital_products(contact.values_up).reshape(len(contact.weights), M_u * M_u)
+    f_d = orbital_products(contact.values_down).reshape(len(contact.weights), M_d * M_d)
+    g2 = gamma.reshape(M_u * M_u, M_d * M_d)
+    return float(np.einsum("q,qa,ab,qb->", np.asarray(contact.weights), f_u, g2, f_d).real)
+
+
+def one_body_expectation(rho: np.ndarray, matrix: np.ndarray) -> float:
+    """<sum_ab O_ab c+_a c_b> = sum_ab O_ab rho[a, b] (e.g. the trap energy with O = V_trap)."""
+    return float(np.sum(np.asarray(matrix) * rho).real)

@@ -1,0 +1,245 @@
+"""Checks of the shared Fock-space ED engine against independent constructions.
+
+The reference for every operator is a brute-force Jordan-Wigner construction on the full 2^M
+(or 2^(M_up + M_down)) Fock space with dense matrices (textbook second quantization, common
+practice), restricted to fixed particle numbers; it shares no code with the engine.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from trapbench.backends import fock_ed as fe
+
+
+# ----------------------------------------------------------------------------- brute force
+
+
+def jordan_wigner_annihilators(n_modes: int) -> list[np.ndarray]:
+    """Dense c_k on 2^n_modes states; basis state bits: bit k = occupation of mode k.
+
+    c_k |..n_k..> = (-1)^(sum_{j<k} n_j) |..n_k - 1..> (modes ordered 0 < 1 < ...).
+    """
+    dim = 2**n_modes
+    ops = []
+    for k in range(n_modes):
+        c = np.zeros((dim, dim))
+        for state in range(dim):
+            if state >> k & 1:
+                sign = (-1) ** bin(state & ((1 << k) - 1)).count("1")
+                c[state ^ (1 << k), state] = sign
+        ops.append(c)
+    return ops
+
+
+def fixed_number_states(n_modes: int, occupied_lists: np.ndarray, offset: int = 0) -> list[int]:
+    return [sum(1 << (o + offset) for o in occ) for occ in occupied_lists]
+
+
+# ----------------------------------------------------------------------------- single species
+
+
+def test_one_body_operator_matches_jordan_wigner():
+    rng = np.random.default_rng(1)
+    M, N = 6, 3
+    h = rng.normal(size=(M, M))
+    space = fe.FockSpace(M, N)
+    c = jordan_wigner_annihilators(M)
+    full = sum(h[a, b] * c[a].T @ c[b] for a in range(M) for b in range(M))
+    states = fixed_number_states(M, space.occupied)
+    expected = full[np.ix_(states, states)]
+    assert np.allclose(space.one_body(h).toarray(), expected, atol=1e-13)
+
+
+def test_truncated_space_index_and_transform_sign():
+    M, N = 7, 3
+    space = fe.FockSpace(M, N)
+    # a truncated, reordered subspace finds its members and rejects the others
+    keep = space.occupied[::3][::-1]
+    sub = fe.FockSpace(M, N, keep)
+    assert np.array_equal(sub.index(keep), np.arange(len(keep)))
+    missing = space.occupied[1:2]
+    assert sub.index(missing)[0] == -1
+    # reflection i -> M-1-i of three fermions reverses their order: sign (-1)^(3*2/2) = -1
+    target, sign = space.transform(np.arange(M)[::-1], np.ones(M))
+    assert np.all(sign == -1)
+    # brute force: P c+_i P^-1 = c+_{M-1-i}, P|0> = |0>
+    c = jordan_wigner_annihilators(M)
+    states = fixed_number_states(M, space.occupied)
+    for i, occ in enumerate(space.occupied[:10]):
+        vec = np.zeros(2**M)
+        vec[0] = 1.0
+        for o in occ[::-1]:  # c+_{o1} c+_{o2} c+_{o3}|0> with the mapped modes
+            vec = c[M - 1 - o].T @ vec
+        j = states[target[i]]
+        assert vec[j] == pytest.approx(sign[i])
+
+
+# ----------------------------------------------------------------------------- two species
+
+
+def lattice_one_body(L: int, a: float, mass: float) -> np.ndarray:
+    x = (np.arange(L) - (L - 1) / 2) * a
+    t = 1 / (2 * mass * a * a)
+    return np.diag(2 * t + 0.5 * mass * x**2) - t * (np.eye(L, k=1) + np.eye(L, k=-1))
+
+
+def brute_force_two_species(h_up, h_down, U, n_up, n_down):
+    """Dense H on 2^(2L) modes (up modes 0..L-1 first), restricted to (n_up, n_down)."""
+    L = h_up.shape[0]
+    c = jordan_wigner_annihilators(2 * L)
+    n = [ci.T @ ci for ci in c]
+    H = sum(h_up[a, b] * c[a].T @ c[b] + h_down[a, b] * c[L + a].T @ c[L + b] for a in range(L) for b in range(L))
+    H = H + U * sum(n[i] @ n[L + i] for i in range(L))
+    up = fe.FockSpace(L, n_up)
+    down = fe.FockSpace(L, n_down)
+    states = [su + sd for su in fixed_number_states(L, up.occupied) for sd in fixed_number_states(L, down.occupied, L)]
+    return H[np.ix_(states, states)], up, down
+
+
+@pytest.mark.parametrize("n_up,n_down", [(1, 1), (2, 1), (2, 2)])
+def test_lattice_hamiltonian_matches_brute_force(n_up, n_down):
+    L, a, g = 4, 0.7, -1.3
+    h_u, h_d = lattice_one_body(L, a, 1.0), lattice_one_body(L, a, 40 / 6)
+    expected, up, down = brute_force_two_species(h_u, h_d, g / a, n_up, n_down)
+    x = (np.arange(L) - (L - 1) / 2) * a
+    sites = np.eye(L) / math.sqrt(a)
+    contact = fe.ContactFactorization(x, np.full(L, a), sites, sites)
+    ham = fe.ProductHamiltonian(fe.ProductBasis.full(up, down), h_u, h_d, g, contact)
+    assert ham._interaction_diag is not None  # the lattice takes the diagonal fast path
+    assert np.allclose(ham.to_dense(), expected, atol=1e-12)
+
+
+def test_rotated_orbitals_use_the_general_path_and_agree():
+    """The same lattice model in a rotated orbital basis phi'_a(x_q) = O_qa/sqrt(a) has the same spectrum."""
+    L, a, g = 6, 0.6, 2.0
+    h = lattice_one_body(L, a, 1.0)
+    x = (np.arange(L) - (L - 1) / 2) * a
+    up, down = fe.FockSpace(L, 2), fe.FockSpace(L, 2)
+    basis = fe.ProductBasis.full(up, down)
+    sites = np.eye(L) / math.sqrt(a)
+    diag = fe.ProductHamiltonian(basis, h, h, g, fe.ContactFactorization(x, np.full(L, a), sites, sites))
+    rot, _ = np.linalg.qr(np.random.default_rng(3).normal(size=(L, L)))
+    general = fe.ProductHamiltonian(
+        basis, rot.T @ h @ rot, rot.T @ h @ rot, g, fe.ContactFactorization(x, np.full(L, a), sites @ rot, sites @ rot)
+    )
+    assert general._interaction_diag is None and general._chunks
+    assert np.allclose(np.linalg.eigvalsh(general.to_dense()), np.linalg.eigvalsh(diag.to_dense()), atol=1e-11)
+
+
+def test_rectangle_basis_is_the_restriction_of_the_full_product():
+    rng = np.random.default_rng(7)
+    M = 5
+    up, down = fe.FockSpace(M, 2), fe.FockSpace(M, 2)
+    h = rng.normal(size=(M, M))
+    h = h + h.T
+    x = np.linspace(-1, 1, 7)
+    values = rng.normal(size=(7, M))
+    contact = fe.ContactFactorization(x, rng.uniform(0.1, 1, 7), values, values)
+    full = fe.ProductHamiltonian(fe.ProductBasis.full(up, down), h, h, 1.7, contact).to_dense()
+    rects = np.array([[0, 3, 2, 9], [3, 4, 0, 10], [6, 10, 1, 4]])
+    sub = fe.ProductBasis(up, down, rects)
+    restricted = fe.ProductHamiltonian(sub, h, h, 1.7, contact, terms_per_chunk=3).to_dense()
+    assert np.allclose(restricted, full[np.ix_(sub.flat, sub.flat)], atol=1e-12)
+
+
+def test_parity_folding_equals_unfolded_sum():
+    """Orbitals of definite parity at symmetric points: folded terms give the same matrix."""
+    M = 6
+    parity = 1 - 2 * (np.arange(M) % 2)
+    t, w = np.polynomial.hermite.hermgauss(9)
+    values = np.polynomial.hermite.hermvander(t, M - 1)  # H_n(t): parity (-1)^n
+    up, down = fe.FockSpace(M, 2), fe.FockSpace(M, 1)
+    basis = fe.ProductBasis.full(up, down)
+    h = np.diag(np.arange(M) + 0.5)
+    plain = fe.ProductHamiltonian(basis, h, h, 0.3, fe.ContactFactorization(t, w, values, values)).to_dense()
+    folded = fe.ProductHamiltonian(
+        basis, h, h, 0.3, fe.ContactFactorization(t, w, values, values, parity, parity)
+    ).to_dense()
+    assert np.allclose(plain, folded, atol=1e-9 * np.abs(plain).max())
+
+
+def test_parity_sectors_split_the_spectrum():
+    L, a, g = 6, 0.5, 3.0
+    h = lattice_one_body(L, a, 1.0)
+    x = (np.arange(L) - (L - 1) / 2) * a
+    up, down = fe.FockSpace(L, 2), fe.FockSpace(L, 1)
+    basis = fe.ProductBasis.full(up, down)
+    sites = np.eye(L) / math.sqrt(a)
+    dense = fe.ProductHamiltonian(basis, h, h, g, fe.ContactFactorization(x, np.full(L, a), sites, sites)).to_dense()
+    refl = np.arange(L)[::-1]
+    parts = []
+    for sector in (+1, -1):
+        v = fe.parity_isometry(basis, up.transform(refl, np.ones(L)), down.transform(refl, np.ones(L)), sector)
+        assert np.allclose((v.T @ v).toarray(), np.eye(v.shape[1]))
+        parts.append(np.linalg.eigvalsh(v.T @ dense @ v))
+    assert sum(len(p) for p in parts) == basis.dim
+    assert np.allclose(np.sort(np.concatenate(parts)), np.linalg.eigvalsh(dense), atol=1e-11)
+
+
+def test_lanczos_and_dense_agree_and_degeneracies():
+    L, a = 9, 0.4
+    h = lattice_one_body(L, a, 1.0)
+    x = (np.arange(L) - (L - 1) / 2) * a
+    sites = np.eye(L) / math.sqrt(a)
+    up, down = fe.FockSpace(L, 2), fe.FockSpace(L, 2)
+    ham = fe.ProductHamiltonian(fe.ProductBasis.full(up, down), h, h, 1.0, fe.ContactFactorization(x, np.full(L, a), sites, sites))
+    dense = np.linalg.eigvalsh(ham.to_dense())[:4]
+    values, vectors = fe.lowest_eigenpairs(ham.as_linear_operator(), 4, tol=1e-12, dense_limit=10)
+    assert np.allclose(values, dense, atol=1e-9)
+    assert fe.degeneracies([0.0, 1.0, 1.0 + 1e-9, 2.0], 1e-6) == [1, 2, 2, 1]
+
+
+# ----------------------------------------------------------------------------- observables
+
+
+def test_observables_of_a_product_of_slater_determinants():
+    """For a single determinant pair: rho = projector on occupied orbitals, Gamma = rho_up x rho_down,
+    the noise vanishes and G integrates to N_up N_down (Wick's theorem, textbook)."""
+    M = 5
+    up, down = fe.FockSpace(M, 2), fe.FockSpace(M, 3)
+    basis = fe.ProductBasis.full(up, down)
+    psi = np.zeros(basis.shape)
+    i_u = up.index(np.array([[1, 3]]))[0]
+    i_d = down.index(np.array([[0, 2, 4]]))[0]
+    psi[i_u, i_d] = 1.0
+    vec = basis.from_matrix(psi)
+    rho_u, rho_d = fe.one_body_density_matrices(basis, vec)
+    assert np.allclose(rho_u, np.diag([0, 1, 0, 1, 0]))
+    assert np.allclose(rho_d, np.diag([1, 0, 1, 0, 1]))
+    gamma = fe.pair_tensor(basis, vec)
+    assert np.allclose(gamma, np.einsum("ab,cd->abcd", rho_u, rho_d))
+    grid = np.linspace(-6, 6, 61)
+    phi = np.polynomial.hermite.hermvander(grid, M - 1) * np.exp(-(grid**2) / 2)[:, None]
+    phi /= np.sqrt(np.sqrt(np.pi) * 2.0 ** np.arange(M) * np.array([math.factorial(n) for n in range(M)]))
+    c = fe.noise_on_grid(gamma, rho_u, rho_d, phi, phi)
+    assert np.abs(c).max() < 1e-12
+    density = fe.density_on_grid(rho_u, phi)
+    assert np.allclose(density, phi[:, 1] ** 2 + phi[:, 3] ** 2)
+
+
+def test_observables_of_a_correlated_state_match_brute_force():
+    """rho and Gamma of a random state against <c+ c> and <c+ c d+ d> built with Jordan-Wigner matrices."""
+    rng = np.random.default_rng(5)
+    M = 4
+    up, down = fe.FockSpace(M, 2), fe.FockSpace(M, 1)
+    basis = fe.ProductBasis.full(up, down)
+    vec = rng.normal(size=basis.dim) + 1j * rng.normal(size=basis.dim)
+    vec /= np.linalg.norm(vec)
+    c = jordan_wigner_annihilators(2 * M)
+    states = [su + sd for su in fixed_number_states(M, up.occupied) for sd in fixed_number_states(M, down.occupied, M)]
+    full = np.zeros(2 ** (2 * M), complex)
+    full[states] = vec
+    rho_u, rho_d = fe.one_body_density_matrices(basis, vec)
+    gamma = fe.pair_tensor(basis, vec)
+    for a in range(M):
+        for b in range(M):
+            assert rho_u[a, b] == pytest.approx(full.conj() @ c[a].T @ c[b] @ full, abs=1e-12)
+            assert rho_d[a, b] == pytest.approx(full.conj() @ c[M + a].T @ c[M + b] @ full, abs=1e-12)
+            for cc in range(M):
+                for d in range(M):
+                    op = c[a].T @ c[b] @ c[M + cc].T @ c[M + d]
+                    assert gamma[a, b, cc, d] == pytest.approx(full.conj() @ op @ full, abs=1e-12)
