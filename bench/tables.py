@@ -66,7 +66,8 @@ def attach_references(
     (|E - ref| <= allowed + reference uncertainty), ``within_error_bar`` (|E - ref| <= own error bar
     + reference uncertainty; None without a bar), both with ``ROUNDING`` |ref| of round-off slack,
     ``error_bar`` (the backend's energy_error, else error_estimate), ``accuracy`` (relative error
-    used for cost tables) and ``error_basis``.
+    used for cost tables: (|E - ref| + reference uncertainty) / |ref|, a bound on the true relative
+    error, else own error bar / |E|) and ``error_basis``.
     """
     references = references if references is not None else default_references()
     tolerance = tolerance or (lambda quantity, backend: DEFAULT_TOLERANCES["energy"])
@@ -102,7 +103,10 @@ def attach_references(
                 within_tolerance=diff <= allowed + slack,
                 within_error_bar=None if bar is None else diff <= bar + slack,
             )
-            values["accuracy"], values["error_basis"] = values["rel_error"], "reference"
+            # the true error is bounded by the distance to the reference plus the reference's own uncertainty
+            bound = diff + ref.uncertainty
+            values["accuracy"] = bound / abs(ref.value) if ref.value else bound
+            values["error_basis"] = "reference"
         elif bar is not None and energy is not None and not _missing(energy):
             values["accuracy"] = bar / abs(float(energy)) if energy else bar
             values["error_basis"] = "own estimate"
@@ -150,10 +154,12 @@ def accuracy_vs_cost_table(frame: pd.DataFrame, thresholds: Iterable[float] = TH
         for threshold in thresholds:
             reached = measured[measured["accuracy"] <= threshold]
             row = {"problem_name": name, "g": g, "backend": backend, "target": threshold}
-            if reached.empty:
-                best = measured["accuracy"].min() if not measured.empty else None
-                row.update(params="not reached", accuracy=best, error_basis=None, cpu_s=None, wall_s=None,
-                           peak_mib=None)
+            if measured.empty:
+                row.update(params="no error measure (no reference, no error bar)", accuracy=None, error_basis=None,
+                           cpu_s=None, wall_s=None, peak_mib=None)
+            elif reached.empty:
+                row.update(params="not reached", accuracy=measured["accuracy"].min(), error_basis=None, cpu_s=None,
+                           wall_s=None, peak_mib=None)
             else:
                 pick = reached.loc[reached["cost_cpu_s"].idxmin()]
                 row.update(params=pick["params_text"], accuracy=pick["accuracy"], error_basis=pick["error_basis"],
