@@ -1,0 +1,54 @@
+"""``trapbench validate --backend NAME``: solver-independent physics checks and the catalogue's references."""
+
+from __future__ import annotations
+
+import argparse
+import json
+from dataclasses import asdict
+
+from ...backends import registry
+from ...problems.errors import SpecError
+from .problem_options import parse_params
+
+NAME = "validate"
+HELP = "check a backend against exact physics (virial, Hellmann-Feynman, towers, symmetries) and the references"
+ORDER = 40
+
+
+def register(parser: argparse.ArgumentParser) -> None:
+    from ..validation import CHECKS, Tolerance
+
+    default = Tolerance()
+    parser.add_argument("--backend", "-b", required=True, metavar="NAME", help="the backend to validate")
+    parser.add_argument("--param", "-p", action="append", metavar="KEY=VALUE",
+                        help="numerical parameter of the backend (repeatable)")
+    parser.add_argument("--check", action="append", metavar="NAME", choices=list(CHECKS),
+                        help="run only this check (repeatable); default: all of " + ", ".join(CHECKS))
+    parser.add_argument("--catalogue", type=int, default=2, metavar="N",
+                        help="also compare with the references of every catalogue entry with at most N particles"
+                             " (default 2; 0 turns it off)")
+    parser.add_argument("--absolute", type=float, default=default.absolute, metavar="TOL",
+                        help=f"absolute tolerance in hbar*omega (default {default.absolute:g})")
+    parser.add_argument("--relative", type=float, default=default.relative, metavar="TOL",
+                        help=f"relative tolerance (default {default.relative:g})")
+    parser.add_argument("--error-factor", type=float, default=default.error_factor, metavar="K",
+                        help=f"multiple of the backend's own error estimate added to the tolerance (default {default.error_factor:g})")
+    parser.add_argument("--json", action="store_true", help="print the verdicts as JSON")
+
+
+def run(args: argparse.Namespace) -> int:
+    from ..validation import Tolerance, validate, verdict_table
+
+    for field in ("absolute", "relative", "error_factor"):
+        if getattr(args, field) < 0:
+            raise SpecError(f"--{field.replace('_', '-')}", f"got {getattr(args, field)}; must be >= 0")
+    backend = registry.get(args.backend)
+    tolerance = Tolerance(args.absolute, args.relative, args.error_factor)
+    verdicts = validate(backend, params=parse_params(args.param), tolerance=tolerance, checks=args.check,
+                        catalogue_max_particles=args.catalogue)
+    if args.json:
+        print(json.dumps([asdict(v) for v in verdicts], indent=1))
+    else:
+        print(f"validation of backend '{backend.name}' (energies in hbar*omega)")
+        print(verdict_table(verdicts))
+    return 1 if any(v.failed for v in verdicts) else 0

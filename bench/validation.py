@@ -1,0 +1,405 @@
+"""Solver-independent physics checks for any backend, and the verdict table of ``trapbench validate``.
+
+Each check states an exact property of H = sum_s sum_i [p^2/(2 m_s) + V_s(x_i)] + g sum delta(x_up - x_down)
+(units hbar = omega_ref = m0 = 1) and tests a backend's Results against it, solving extra variants
+(g +- h, swapped species, g = 0, parity sectors) through the backend protocol only, so a plug-in
+backend is checked exactly like a built-in one. A check whose inputs the backend does not provide
+(a scalar it does not report, a problem it does not support) is skipped with the reason.
+
+Checks (the property, and where it holds):
+
+- ``non-interacting``: at g = 0 the levels are the oscillator towers sum_s omega_s sum_i (n_i + 1/2),
+  with their parities (harmonic trap).
+- ``references``: energies against ``problems.references.references_for`` (exact two-body roots,
+  towers, strong-coupling asymptotes with their stated uncertainty).
+- ``weak-coupling-slope``: dE0/dg at g = 0 by central differences (Richardson-extrapolated, steps h
+  and h/2) against first-order perturbation theory c1 = sum_ij int phi_i^2 phi_j^2.
+- ``hellmann-feynman``: the reported <sum delta> ("delta") equals dE0/dg by central differences.
+- ``virial``: E = 2 <V_trap> + (g/2) dE/dg for a harmonic trap with contact interaction (from the
+  scaling x -> x/L: T ~ L^-2, V ~ L^2, delta ~ L^-1; common practice, e.g. anchors file Sec. 3.4).
+- ``com-tower``: with one trap frequency omega the centre of mass separates, so every level E has
+  a partner at E + omega with at least the same multiplicity.
+- ``parity-labels``: levels labelled even/odd in the full spectrum equal the levels of the even/odd
+  sectors, and at g = 0 the labels match the exact parities (-1)^(sum of occupied n).
+- ``antisymmetric-state``: for equal masses and frequencies the totally antisymmetric spatial state
+  (all N particles in orbitals 0..N-1) feels no contact interaction, so E = omega N^2/2 is a level at
+  every g (checked at |g|, where levels only rise from g = 0 and the state count is bounded).
+- ``species-swap``: relabelling up <-> down (counts, masses, frequencies) leaves the spectrum unchanged.
+
+Tolerances: a value passes when |measured - expected| <= absolute + relative |expected| +
+error_factor (backend's own error estimate for the values involved + reference uncertainty);
+finite differences add error_factor * error / h. A backend that reports no error estimate is judged
+at the absolute and relative tolerances alone.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass, replace
+from typing import Any
+
+from ..backends.base import Unsupported
+from ..backends.result import Result
+from ..problems.catalogue import entries as catalogue_entries
+from ..problems.references import noninteracting_levels, references_for
+from ..problems.spec import Problem
+
+MAX_ANTISYMMETRIC_STATES = 40
+MIN_TOWER_STATES = 6
+DIFFERENCE_STEP = 0.02
+
+
+@dataclass(frozen=True)
+class Tolerance:
+    """How close is close enough (see the module docstring)."""
+
+    absolute: float = 1e-6
+    relative: float = 1e-6
+    error_factor: float = 3.0
+
+    def allowed(self, expected: float, error: float = 0.0) -> float:
+        return self.absolute + self.relative * abs(expected) + self.error_factor * error
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """One check on one problem: status "pass", "fail", "skip" or "error", and why."""
+
+    check: str
+    problem: str
+    status: str
+    reason: str
+    deviation: float | None = None
+    allowed: float | None = None
+
+    @property
+    def failed(self) -> bool:
+        return self.status in ("fail", "error")
+
+
+class Skip(Exception):
+    """The check cannot run here; the message says why."""
+
+
+class Runner:
+    """Solves problems with one backend through the protocol, caching by problem key."""
+
+    def __init__(self, backend: Any, params: dict[str, Any] | None = None):
+        self.backend = backend
+        self.params = dict(params or {})
+        self._cache: dict[str, Result] = {}
+
+    def solve(self, problem: Problem) -> Result:
+        if problem.key not in self._cache:
+            support = self.backend.supports(problem)
+            if not support:
+                raise Skip(f"{self.backend.name} does not support {problem.describe()}: {support.reason}")
+            try:
+                self._cache[problem.key] = self.backend.solve(problem, **self.params)
+            except Unsupported as exc:
+                raise Skip(str(exc)) from None
+        return self._cache[problem.key]
+
+
+# ----------------------------------------------------------------------------- helpers
+
+
+def level_error(result: Result, index: int) -> float:
+    """The backend's own error bar for level ``index`` (0 when it gives none)."""
+    if result.energy_errors is not None and index < len(result.energy_errors):
+        return abs(result.energy_errors[index])
+    return abs(result.error_estimate) if result.error_estimate is not None else 0.0
+
+
+def _with_states(problem: Problem, states: int, parity: str | None = None) -> Problem:
+    changes = {"states": states, "observables": []}
+    if parity is not None:
+        changes["parity"] = parity
+    return problem.with_targets(**changes)
+
+
+def _compare_levels(
+    measured: Result, expected: Sequence[float], tolerance: Tolerance, extra_errors: Sequence[float] | None = None
+) -> tuple[float, float, int]:
+    """Worst |E_i - expected_i| / allowed_i over the common levels: (deviation, allowed, index)."""
+    worst = (0.0, tolerance.absolute, -1)
+    ratio_worst = -1.0
+    for i, (e, ref) in enumerate(zip(measured.energies, expected)):
+        extra = extra_errors[i] if extra_errors is not None else 0.0
+        allowed = tolerance.allowed(ref, level_error(measured, i) + extra)
+        ratio = abs(e - ref) / allowed
+        if ratio > ratio_worst:
+            ratio_worst, worst = ratio, (abs(e - ref), allowed, i)
+    return worst
+
+
+def _derivative(runner: Runner, problem: Problem, g: float, step: float) -> tuple[float, float]:
+    """dE0/dg at g by Richardson-extrapolated central differences (steps h, h/2), and its error bar."""
+    values, errors = {}, []
+    for h in (step, step / 2):
+        for sign in (1, -1):
+            result = runner.solve(_with_states(problem.at(g + sign * h), 1))
+            values[sign * h] = result.energies[0]
+            errors.append(level_error(result, 0))
+    coarse = (values[step] - values[-step]) / (2 * step)
+    fine = (values[step / 2] - values[-step / 2]) / step
+    # propagated backend error: each energy enters with weight <= (4/3) / h
+    return (4 * fine - coarse) / 3, max(errors) * 4 / step
+
+
+def _verdict(name: str, problem: Problem, deviation: float, allowed: float, what: str) -> Verdict:
+    status = "pass" if deviation <= allowed else "fail"
+    return Verdict(name, problem.describe(), status, f"{what}: |deviation| {deviation:.2e} vs allowed {allowed:.2e}",
+                   deviation, allowed)
+
+
+# ----------------------------------------------------------------------------- the checks
+
+
+def check_noninteracting(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "non-interacting"
+    if not problem.trap.is_harmonic:
+        raise Skip("exact levels at g = 0 are known here for the harmonic trap only")
+    free = _with_states(problem.at(0.0), max(problem.targets.states, 3))
+    result = runner.solve(free)
+    exact = noninteracting_levels(free, len(result.energies))
+    deviation, allowed, index = _compare_levels(result, [e for e, _ in exact], tolerance)
+    if deviation > allowed:
+        return _verdict(name, problem, deviation, allowed, f"level {index} at g = 0 vs the oscillator tower")
+    labels = [s.get("parity") if isinstance(s, dict) else None for s in result.states]
+    if len(labels) == len(result.energies) and None not in labels:
+        wrong = _parity_groups_mismatch(result.energies, labels, exact, tolerance)
+        if wrong:
+            return Verdict(name, problem.describe(), "fail", f"parity labels at g = 0: {wrong}")
+    return _verdict(name, problem, deviation, allowed, f"{len(result.energies)} levels at g = 0 vs the oscillator tower")
+
+
+def _parity_groups_mismatch(energies, labels, exact, tolerance: Tolerance) -> str:
+    """Compare the count of even labels per complete degenerate group with the exact count ("" if all agree)."""
+    top = energies[-1]
+    groups: dict[float, list[int]] = {}
+    for e, p in exact:
+        if e < top - tolerance.allowed(top):  # the top group may be incomplete
+            groups.setdefault(round(e, 9), []).append(p)
+    for level, parities in groups.items():
+        found = [lab for e, lab in zip(energies, labels) if abs(e - level) <= tolerance.allowed(level)]
+        if sorted(found) != sorted(parities):
+            return f"at E = {level:g} the labels are {sorted(found)}, exact {sorted(parities)}"
+    return ""
+
+
+def check_references(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "references"
+    refs = sorted((r for r in references_for(problem) if r.quantity == "energy"), key=lambda r: r.state)
+    if not refs:
+        raise Skip("no reference energies are known for this problem")
+    result = runner.solve(problem)
+    count = min(len(refs), len(result.energies))
+    deviation, allowed, index = _compare_levels(
+        result, [r.value for r in refs[:count]], tolerance, [r.uncertainty for r in refs[:count]]
+    )
+    return _verdict(name, problem, deviation, allowed, f"{count} levels vs {refs[0].kind} references (worst: level {index})")
+
+
+def check_weak_coupling_slope(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "weak-coupling-slope"
+    slopes = [r for r in references_for(problem.at(0.0).with_targets(parity="any")) if r.quantity == "slope_g0"]
+    if not slopes:
+        raise Skip("first-order perturbation theory is available for the harmonic trap only")
+    measured, error = _derivative(runner, problem.with_targets(parity="any"), 0.0, DIFFERENCE_STEP)
+    expected = slopes[0].value
+    deviation = abs(measured - expected)
+    allowed = tolerance.allowed(expected, error) + abs(expected) * 1e-5  # O(h^4) remainder of the difference
+    return _verdict(name, problem, deviation, allowed, f"dE0/dg at g = 0 = {measured:.8g}, first order {expected:.8g}")
+
+
+def check_hellmann_feynman(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "hellmann-feynman"
+    base = _with_states(problem, 1)
+    result = runner.solve(base)
+    if "delta" not in result.scalars:
+        raise Skip(f"{result.backend} does not report the scalar 'delta' = <sum delta(x_up - x_down)>")
+    g = problem.coupling
+    step = DIFFERENCE_STEP * max(1.0, abs(g))
+    slope, error = _derivative(runner, base, g, step)
+    reported = result.scalars["delta"]
+    deviation = abs(reported - slope)
+    allowed = tolerance.allowed(slope, error) + abs(slope) * 1e-5
+    return _verdict(name, problem, deviation, allowed, f"<sum delta> = {reported:.8g}, dE0/dg = {slope:.8g}")
+
+
+def check_virial(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "virial"
+    if not problem.trap.is_harmonic:
+        raise Skip("the virial relation E = 2<V> + (g/2) dE/dg needs a harmonic trap")
+    base = _with_states(problem, 1)
+    result = runner.solve(base)
+    if "trap_energy" not in result.scalars:
+        raise Skip(f"{result.backend} does not report the scalar 'trap_energy' = <V_trap>")
+    g = problem.coupling
+    error = level_error(result, 0)
+    if "delta" in result.scalars:
+        slope = result.scalars["delta"]
+    else:
+        slope, difference_error = _derivative(runner, base, g, DIFFERENCE_STEP * max(1.0, abs(g)))
+        error += abs(g) / 2 * difference_error
+    predicted = 2 * result.scalars["trap_energy"] + g / 2 * slope
+    deviation = abs(result.energies[0] - predicted)
+    return _verdict(name, problem, deviation, tolerance.allowed(predicted, error),
+                    f"E0 = {result.energies[0]:.8g}, 2<V> + (g/2) dE/dg = {predicted:.8g}")
+
+
+def check_com_tower(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "com-tower"
+    if not (problem.trap.is_harmonic and problem.equal_frequencies):
+        raise Skip("the centre of mass separates only in a harmonic trap with one frequency")
+    omega = problem.up.omega
+    result = runner.solve(_with_states(problem, max(problem.targets.states, MIN_TOWER_STATES), "any"))
+    energies = result.energies
+    errors = [level_error(result, i) for i in range(len(energies))]
+    top = energies[-1]
+    tested = 0
+    for i, e in enumerate(energies):
+        target = e + omega
+        allowed = tolerance.allowed(target, 2 * errors[i])
+        if target > top - 2 * allowed:
+            continue  # the partner's group may be cut off by the number of computed states
+        tested += 1
+        lower = sum(1 for f, err in zip(energies, errors) if abs(f - e) <= tolerance.allowed(e, errors[i] + err))
+        upper = sum(1 for f, err in zip(energies, errors) if abs(f - target) <= tolerance.allowed(target, errors[i] + err))
+        if upper < lower:
+            return Verdict(name, problem.describe(), "fail",
+                           f"level {i} (E = {e:.8g}, multiplicity {lower}) has {upper} partners at E + omega = {target:.8g}")
+    if not tested:
+        raise Skip(f"no computed level lies one quantum below the highest one ({len(energies)} levels up to {top:.6g})")
+    return Verdict(name, problem.describe(), "pass", f"{tested} levels have their centre-of-mass partner at E + omega")
+
+
+def check_parity_labels(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "parity-labels"
+    if not problem.trap.is_symmetric:
+        raise Skip("parity is not conserved in an asymmetric trap")
+    full = runner.solve(_with_states(problem, problem.targets.states, "any"))
+    labels = [s.get("parity") if isinstance(s, dict) else None for s in full.states]
+    if len(labels) != len(full.energies) or None in labels:
+        raise Skip(f"{full.backend} does not label its states with 'parity'")
+    worst = (0.0, tolerance.absolute)
+    for sector, sign in (("even", 1), ("odd", -1)):
+        labelled = [e for e, p in zip(full.energies, labels) if p == sign]
+        errors = [level_error(full, i) for i, p in enumerate(labels) if p == sign]
+        if not labelled:
+            continue
+        part = runner.solve(_with_states(problem, len(labelled), sector))
+        for i, (e, f) in enumerate(zip(labelled, part.energies)):
+            allowed = tolerance.allowed(e, errors[i] + level_error(part, i))
+            if abs(e - f) > allowed:
+                return Verdict(name, problem.describe(), "fail",
+                               f"level labelled {sector} at E = {e:.8g} but the {sector} sector's level {i} is {f:.8g}",
+                               abs(e - f), allowed)
+            if abs(e - f) / allowed > worst[0] / worst[1]:
+                worst = (abs(e - f), allowed)
+    return _verdict(name, problem, *worst, "labelled levels equal the parity sectors' levels")
+
+
+def check_antisymmetric_state(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "antisymmetric-state"
+    if not (problem.trap.is_harmonic and problem.equal_masses and problem.equal_frequencies):
+        raise Skip("the g-independent antisymmetric state needs equal masses and one harmonic frequency")
+    if problem.up.count == 0 or problem.down.count == 0:
+        raise Skip("with one species only, no level depends on g")
+    omega, n = problem.up.omega, problem.n_particles
+    target = omega * n * n / 2
+    g = abs(problem.coupling) or 1.0
+    free = _with_states(problem.at(0.0), MAX_ANTISYMMETRIC_STATES + 1, "any")
+    needed = sum(1 for e, _ in noninteracting_levels(free) if e <= target + 1e-9)
+    if needed > MAX_ANTISYMMETRIC_STATES:
+        raise Skip(f"E = N^2/2 lies above the lowest {MAX_ANTISYMMETRIC_STATES} levels; too many states to compute")
+    result = runner.solve(_with_states(problem.at(g), needed, "any"))
+    if len(result.energies) < needed:
+        raise Skip(f"{result.backend} returned {len(result.energies)} of the {needed} levels needed")
+    deviations = [(abs(e - target), tolerance.allowed(target, level_error(result, i))) for i, e in enumerate(result.energies)]
+    deviation, allowed = min(deviations, key=lambda d: d[0] / d[1])
+    return _verdict(name, problem.at(g), deviation, allowed, f"nearest of {needed} levels to E = N^2/2 = {target:g}")
+
+
+def check_species_swap(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "species-swap"
+    swapped = replace(problem, up=replace(problem.down, name=problem.up.name), down=replace(problem.up, name=problem.down.name))
+    if swapped.key == problem.key:
+        raise Skip("the problem is symmetric under the swap; nothing to compare")
+    original = runner.solve(problem)
+    mirrored = runner.solve(swapped)
+    count = min(len(original.energies), len(mirrored.energies))
+    extra = [level_error(mirrored, i) for i in range(count)]
+    deviation, allowed, index = _compare_levels(original, mirrored.energies[:count], tolerance, extra)
+    return _verdict(name, problem, deviation, allowed, f"{count} levels with up and down exchanged (worst: level {index})")
+
+
+CHECKS: dict[str, Callable[[Runner, Problem, Tolerance], Verdict]] = {
+    "non-interacting": check_noninteracting,
+    "references": check_references,
+    "weak-coupling-slope": check_weak_coupling_slope,
+    "hellmann-feynman": check_hellmann_feynman,
+    "virial": check_virial,
+    "com-tower": check_com_tower,
+    "parity-labels": check_parity_labels,
+    "antisymmetric-state": check_antisymmetric_state,
+    "species-swap": check_species_swap,
+}
+
+
+def default_problems() -> list[Problem]:
+    """Small problems that exercise every check: 1+1 and 2+1 at equal and unequal masses, both signs of g."""
+    heavy = 40 / 6
+    return [
+        Problem.create(1, 1, 1.0, states=6, label="1+1 g=1"),
+        Problem.create(1, 1, -2.0, states=6, label="1+1 g=-2"),
+        Problem.create(1, 1, 2.0, mass_up=heavy, states=4, label="1+1 40:6 g=2"),
+        Problem.create(2, 1, 1.5, states=4, label="2+1 g=1.5"),
+        Problem.create(2, 1, 1.0, mass_up=heavy, states=3, label="2+1 40:6 g=1"),
+        Problem.create(2, 1, 30.0, states=3, label="2+1 g=30"),
+        Problem.create(2, 2, 2.0, states=3, label="2+2 g=2"),
+    ]
+
+
+def run_check(name: str, runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    """One check on one problem; skips and failures of the solver become verdicts, never exceptions."""
+    try:
+        return CHECKS[name](runner, problem, tolerance)
+    except Skip as exc:
+        return Verdict(name, problem.describe(), "skip", str(exc))
+    except Exception as exc:  # a solver failure is a finding of the validation, reported as such
+        return Verdict(name, problem.describe(), "error", f"{exc.__class__.__name__}: {exc}")
+
+
+def validate(
+    backend: Any,
+    problems: Iterable[Problem] | None = None,
+    params: dict[str, Any] | None = None,
+    tolerance: Tolerance = Tolerance(),
+    checks: Sequence[str] | None = None,
+    catalogue_max_particles: int = 0,
+) -> list[Verdict]:
+    """Run the checks on each problem, then the references of the catalogue entries up to that size."""
+    if hasattr(backend, "resolve_params"):
+        backend.resolve_params(params or {})  # unknown or malformed parameters: SpecError before any work
+    runner = Runner(backend, params)
+    names = list(checks) if checks else list(CHECKS)
+    verdicts = [run_check(name, runner, problem, tolerance) for problem in (problems or default_problems()) for name in names]
+    for entry in catalogue_entries():
+        if entry.problem.n_particles <= catalogue_max_particles:
+            verdict = run_check("references", runner, entry.problem, tolerance)
+            verdicts.append(replace(verdict, problem=entry.name))
+    return verdicts
+
+
+def verdict_table(verdicts: Sequence[Verdict]) -> str:
+    """A plain-text table, one line per verdict, and a summary line."""
+    width = max([len(v.problem) for v in verdicts] + [7])
+    lines = [f"{'check':22s} {'problem':{width}s} {'verdict':7s} reason", "-" * (40 + width)]
+    for v in verdicts:
+        lines.append(f"{v.check:22s} {v.problem:{width}s} {v.status.upper():7s} {v.reason}")
+    counts = {status: sum(1 for v in verdicts if v.status == status) for status in ("pass", "fail", "error", "skip")}
+    lines.append(", ".join(f"{count} {status}" for status, count in counts.items()))
+    return "\n".join(lines)

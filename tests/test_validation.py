@@ -1,0 +1,164 @@
+"""The solver-independent checks pass correct backends and flag deliberately broken ones.
+
+Correct: the exact two-body backend (Busch's solution, written independently of these checks) and
+the strong-coupling backend within its own error bars; the exact properties themselves (virial,
+Hellmann-Feynman, centre-of-mass tower, ...) are stated in bench/validation.py with their origin.
+Broken toys wrap the exact two-body solution with one physical mistake each.
+"""
+
+import json
+import math
+from dataclasses import replace
+
+import pytest
+
+from trapbench.backends.registry import get
+from trapbench.backends.result import Solution
+from trapbench.backends.two_body import TwoBodyBackend
+from trapbench.bench.cli import main
+from trapbench.bench.validation import Tolerance, validate
+from trapbench.problems.errors import SpecError
+from trapbench.problems.spec import Problem
+
+TWO_BODY_PROBLEMS = [
+    Problem.create(1, 1, 1.0, states=6),
+    Problem.create(1, 1, -2.0, states=6),
+    Problem.create(1, 1, 2.0, mass_up=40 / 6, states=4),
+]
+
+
+class WrongSignToy(TwoBodyBackend):
+    """Builds H with -g (a sign error in the interaction) but reports <delta> as computed."""
+
+    name = "toy-wrong-sign"
+
+    def compute(self, problem, params):
+        return super().compute(problem.at(-problem.coupling), params)
+
+
+class TrapFactorToy(TwoBodyBackend):
+    """Uses V = m omega^2 x^2 (the factor 1/2 missing), i.e. a trap stiffer by a factor 2."""
+
+    name = "toy-trap-factor"
+
+    def compute(self, problem, params):
+        w = math.sqrt(2.0)
+        stiff = replace(problem, up=replace(problem.up, omega=w * problem.up.omega),
+                        down=replace(problem.down, omega=w * problem.down.omega))
+        return super().compute(stiff, params)
+
+
+class DroppedStateToy(TwoBodyBackend):
+    """Loses the second level of every spectrum (e.g. a basis that misses a symmetry class)."""
+
+    name = "toy-dropped-state"
+
+    def compute(self, problem, params):
+        full = super().compute(problem.with_targets(states=problem.targets.states + 1), params)
+        keep = [i for i in range(len(full.energies)) if i != 1]
+        return replace(full, energies=[full.energies[i] for i in keep], states=[full.states[i] for i in keep],
+                       energy_errors=[full.energy_errors[i] for i in keep])
+
+
+class OffsetToy(TwoBodyBackend):
+    """Exact energies shifted by 1e-4, with or without admitting it in the error estimate."""
+
+    name = "toy-offset"
+    honest = True
+
+    def compute(self, problem, params):
+        exact = super().compute(problem, params)
+        errors = [2e-4] * len(exact.energies) if self.honest else None
+        return Solution([e + 1e-4 for e in exact.energies], exact.states, exact.observables, exact.scalars,
+                        2e-4 if self.honest else None, errors)
+
+
+class PlugIn:
+    """A third-party object with only name, supports and solve (no Backend base class)."""
+
+    name = "plug-in"
+
+    def __init__(self):
+        self._inner = TwoBodyBackend()
+
+    def supports(self, problem):
+        return self._inner.supports(problem)
+
+    def solve(self, problem, **params):
+        return self._inner.solve(problem, **params)
+
+
+def statuses(verdicts, check=None):
+    return {v.status for v in verdicts if check is None or v.check == check}
+
+
+def failed_checks(verdicts):
+    return {v.check for v in verdicts if v.failed}
+
+
+def test_exact_two_body_backend_passes_every_check():
+    verdicts = validate(get("two-body"), TWO_BODY_PROBLEMS, catalogue_max_particles=2)
+    assert not failed_checks(verdicts)
+    ran = {v.check for v in verdicts if v.status == "pass"}
+    assert ran == {"non-interacting", "references", "weak-coupling-slope", "hellmann-feynman", "virial",
+                   "com-tower", "parity-labels", "antisymmetric-state", "species-swap"}
+
+
+def test_plug_in_without_base_class_is_checked_alike():
+    verdicts = validate(PlugIn(), TWO_BODY_PROBLEMS[:1])
+    assert not failed_checks(verdicts) and "pass" in statuses(verdicts, "virial")
+
+
+def test_wrong_interaction_sign_is_flagged():
+    flagged = failed_checks(validate(WrongSignToy(), TWO_BODY_PROBLEMS))
+    assert {"references", "weak-coupling-slope", "hellmann-feynman", "virial"} <= flagged
+    # g = 0 and the symmetries cannot see a sign error
+    assert not flagged & {"non-interacting", "com-tower", "species-swap"}
+
+
+def test_missing_factor_two_in_the_trap_is_flagged():
+    flagged = failed_checks(validate(TrapFactorToy(), TWO_BODY_PROBLEMS))
+    assert {"non-interacting", "references", "com-tower", "antisymmetric-state"} <= flagged
+
+
+def test_dropped_state_is_flagged():
+    flagged = failed_checks(validate(DroppedStateToy(), TWO_BODY_PROBLEMS))
+    assert {"references", "antisymmetric-state", "non-interacting"} <= flagged
+
+
+def test_error_estimates_widen_the_tolerance_only_when_reported():
+    honest = OffsetToy()
+    assert not failed_checks(validate(honest, TWO_BODY_PROBLEMS[:1], checks=["references"]))
+    silent = OffsetToy()
+    silent.honest = False
+    assert failed_checks(validate(silent, TWO_BODY_PROBLEMS[:1], checks=["references"])) == {"references"}
+    # a wide enough user tolerance accepts it
+    assert not failed_checks(validate(silent, TWO_BODY_PROBLEMS[:1], checks=["references"],
+                                      tolerance=Tolerance(absolute=2e-4)))
+
+
+def test_strong_coupling_backend_passes_where_it_applies():
+    problems = [Problem.create(2, 1, 30.0, states=3), Problem.create(1, 2, 40.0, states=3)]
+    verdicts = validate(get("strong-coupling"), problems)
+    assert not failed_checks(verdicts)
+    assert statuses(verdicts, "references") == {"pass"}
+    assert statuses(verdicts, "hellmann-feynman") == {"pass"}
+    assert statuses(verdicts, "parity-labels") == {"pass"}
+    # it reports no <V_trap> and cannot reach g = 0: skipped, with the reason
+    skipped = {v.check: v.reason for v in verdicts if v.status == "skip"}
+    assert "trap_energy" in skipped["virial"] and "g > 0" in skipped["non-interacting"]
+
+
+def test_unknown_parameter_is_an_input_error():
+    with pytest.raises(SpecError, match="param.bogus"):
+        validate(get("two-body"), TWO_BODY_PROBLEMS[:1], params={"bogus": 1})
+
+
+def test_command_line_verdict_table_and_exit_code(capsys):
+    assert main(["validate", "--backend", "two-body", "--catalogue", "0", "--check", "virial"]) == 0
+    out = capsys.readouterr().out
+    assert "virial" in out and "PASS" in out and "FAIL" not in out
+    assert main(["validate", "-b", "two-body", "--catalogue", "0", "--check", "com-tower", "--json"]) == 0
+    verdicts = json.loads(capsys.readouterr().out)
+    assert {v["status"] for v in verdicts} <= {"pass", "skip"} and any(v["status"] == "pass" for v in verdicts)
+    assert main(["validate", "--backend", "two-body", "--absolute", "-1"]) == 2
