@@ -24,6 +24,7 @@ several tasks share a machine) with threadpoolctl.
 
 from __future__ import annotations
 
+import contextlib
 import datetime as _dt
 import multiprocessing
 import os
@@ -47,7 +48,8 @@ STATUSES = (OK, FAILED, UNSUPPORTED, CRASHED, TIMEOUT, OUT_OF_MEMORY, MISSING_BA
 
 POLL_S = 0.02
 MIB = 1024 * 1024
-BASE_PRELOAD = ("numpy", "scipy", "scipy.sparse", "scipy.sparse.linalg", "trapbench.backends", "trapbench.bench.runner")
+BASE_PRELOAD = ("numpy", "scipy", "scipy.sparse", "scipy.sparse.linalg", "threadpoolctl", "trapbench.backends",
+                "trapbench.bench.runner", "trapbench.bench.warm")
 
 
 @dataclass(frozen=True)
@@ -171,6 +173,27 @@ def _signal_name(code: int) -> str:
         return f"signal {-code}"
 
 
+@contextlib.contextmanager
+def _main_module_hidden():
+    """Keep multiprocessing from re-running the caller's main script in the child.
+
+    The child's entry point lives in trapbench, so it needs nothing from ``__main__``; without this,
+    a script without an ``if __name__ == "__main__"`` guard (or code read from stdin) would be
+    re-executed, or fail, in every task process.
+    """
+    main = sys.modules.get("__main__")
+    if main is None:
+        yield
+        return
+    saved = {k: main.__dict__[k] for k in ("__spec__", "__file__") if k in main.__dict__}
+    main.__dict__["__spec__"] = None
+    main.__dict__.pop("__file__", None)
+    try:
+        yield
+    finally:
+        main.__dict__.update(saved)
+
+
 def run_isolated(payload: dict, limits: Limits, sys_path: list[str] | None = None) -> Outcome:
     """Solve ``payload`` (``backend``, ``problem`` as a dict, ``params``) in a child; never raises for the task's faults.
 
@@ -185,7 +208,8 @@ def run_isolated(payload: dict, limits: Limits, sys_path: list[str] | None = Non
     process = ctx.Process(target=_child_main, args=(sender, payload, list(sys.path) if sys_path is None else sys_path))
     started = _now()
     start = time.perf_counter()
-    process.start()
+    with _main_module_hidden():
+        process.start()
     sender.close()
     cap = limits.memory_mib * MIB
     polled_peak, polled_cpu = 0, 0.0
