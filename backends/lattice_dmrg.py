@@ -1,0 +1,257 @@
+"""``lattice-dmrg``: two-site DMRG (tenpy) on the lattice discretization, extrapolated to the continuum.
+
+Method: the lattice Hamiltonian of ``backends/lattice.py`` (species-dependent hopping
+t_s = 1/(2 m_s a^2), on-site 2 t_s + V_s(x_j), U = g/a on n_up n_down, open chain) as a matrix-product
+operator on tenpy's ``SpinHalfFermionSite`` with N_up and N_down conserved separately; the ground
+state by two-site DMRG (S. R. White, Phys. Rev. Lett. 69, 2863 (1992)) and excited states by DMRG
+orthogonal to the lower ones. Each state is converged at every bond dimension of a ladder
+chi_1 < chi_2 < ..., restarting from the previous MPS; the energy is extrapolated linearly in the
+discarded weight of the last sweep (common practice) with an error bar. The continuum limit over the
+spacing ladder follows (``lattice_ladder``). Energies in hbar omega_ref.
+
+Not computed (refused by ``supports``): momentum-pair correlations and noise maps (they need
+four-point functions at all site quadruples), and parity sectors (the MPS carries no reflection
+quantum number).
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+from typing import Any
+
+import numpy as np
+from threadpoolctl import threadpool_limits
+
+from ..problems.errors import SpecError
+from ..problems.spec import Problem
+from . import lattice, lattice_observables
+from .base import Backend, Parameter, Support
+from .extrapolation import extrapolate_polynomial
+from .lattice_ladder import LatticeLevels, resolve_ladder, solve_ladder
+from .result import Solution
+
+UNSUPPORTED_OBSERVABLES = {
+    "pair_momentum": "momentum pair correlations need four-point functions over all site quadruples",
+    "noise": "noise correlations need four-point functions over all site quadruples",
+}
+# Discarded weights below this count as no truncation at all.
+NO_TRUNCATION = 1e-14
+
+
+def _tenpy():
+    """Import tenpy lazily (it is slow to import) and quiet its per-sweep log."""
+    import tenpy
+    from tenpy.algorithms import dmrg
+    from tenpy.models.model import CouplingMPOModel
+    from tenpy.networks.mps import MPS
+    from tenpy.networks.site import SpinHalfFermionSite
+
+    logging.getLogger("tenpy").setLevel(logging.WARNING)
+    return tenpy, dmrg, CouplingMPOModel, MPS, SpinHalfFermionSite
+
+
+def lattice_model(problem: Problem, grid: lattice.Grid, constant: float = 0.0):
+    """The tenpy model of the lattice Hamiltonian on ``grid`` (an open chain of ``grid.sites`` sites).
+
+    ``constant`` is added to H (spread evenly over the sites): orthogonal DMRG projects the lower
+    states out to energy zero, so the wanted excited state must lie below zero.
+    """
+    _, _, CouplingMPOModel, _, SpinHalfFermionSite = _tenpy()
+
+    class TrappedLatticeModel(CouplingMPOModel):
+        def init_sites(self, model_params):
+            return SpinHalfFermionSite(cons_N="N", cons_Sz="Sz")
+
+        def init_terms(self, model_params):
+            for species, number, create, annihilate in (
+                (problem.up, "Nu", "Cdu", "Cu"),
+                (problem.down, "Nd", "Cdd", "Cd"),
+            ):
+                t = lattice.hopping(species, grid.spacing)
+                self.add_onsite(2 * t + problem.trap.potential(grid.x, species), 0, number)
+                self.add_coupling(-t, 0, create, 0, annihilate, 1, plus_hc=True)
+            self.add_onsite(lattice.onsite_coupling(problem.coupling, grid.spacing), 0, "NuNd")
+            if constant:
+                self.add_onsite(constant / grid.sites, 0, "Id")
+
+    return TrappedLatticeModel({"L": grid.sites, "lattice": "Chain", "bc_MPS": "finite", "bc_x": "open"})
+
+
+def initial_occupations(problem: Problem, grid: lattice.Grid) -> list[str]:
+    """A product state with the particles spread over the trap, the species offset by half a spacing.
+
+    Species s puts its N_s particles at evenly spaced points inside its classical region
+    |x| < sqrt(2 N_s + 1) b_s (a quarter of a particle spacing to either side for up and down).
+    """
+    up, down = set(), set()
+    for species, taken, shift in ((problem.up, up, -0.25), (problem.down, down, 0.25)):
+        n = species.count
+        if n == 0:
+            continue
+        reach = min(math.sqrt(2 * n + 1) * species.oscillator_length, grid.x[-1])
+        points = reach * (2 * (np.arange(n) + 0.5 + shift) / n - 1)
+        for x in points:
+            j = int(np.argmin(np.abs(grid.x - x)))
+            while j in taken:
+                j = (j + 1) % grid.sites
+            taken.add(j)
+    names = {(False, False): "empty", (True, False): "up", (False, True): "down", (True, True): "full"}
+    return [names[(j in up, j in down)] for j in range(grid.sites)]
+
+
+def extrapolate_truncation(stages: list[dict]) -> tuple[float, float]:
+    """(E, error) at zero discarded weight from the chi ladder of one state.
+
+    Linear in the discarded weight eps (E = E0 + c eps, common practice) when the two largest chi
+    still truncate; otherwise the largest-chi energy with the change from the previous chi as error.
+    """
+    energies = [s["energy"] for s in stages]
+    weights = [s["truncation_error"] for s in stages]
+    if len(stages) == 1:
+        if weights[0] > NO_TRUNCATION:
+            raise SpecError(
+                "param.chi",
+                f"a single bond dimension {stages[0]['chi']} truncates (discarded weight {weights[0]:.2e});"
+                " give a ladder of at least two so that the truncation error can be estimated",
+            )
+        return energies[0], 0.0
+    if min(weights[-2:]) > NO_TRUNCATION and len(set(weights)) == len(weights):
+        fit = extrapolate_polynomial(weights, energies, powers=(1.0,))
+        return fit.value, max(fit.error, abs(energies[-1] - fit.value) * 0.5)
+    return energies[-1], abs(energies[-1] - energies[-2])
+
+
+class LatticeDMRGBackend(Backend):
+    name = "lattice-dmrg"
+    version = "1"
+    summary = "Two-site DMRG (tenpy) on a finite-difference lattice, extrapolated in discarded weight and spacing"
+    libraries = ("tenpy",)
+    parameters = (
+        Parameter("spacings", tuple, None, "lattice spacings (>= 2; default: fractions of the shortest length)"),
+        Parameter("x_max", float, None, "lattice half width (default: widest occupied orbital plus a margin)"),
+        Parameter("chi", tuple, (32, 64, 128), "ladder of bond dimensions, ascending"),
+        Parameter("max_sweeps", int, 40, "sweep limit per bond dimension", minimum=2),
+        Parameter("tolerance", float, 1e-10, "stop sweeping when |dE| / max(|E|, 1) falls below this", minimum=0.0),
+        Parameter("mixer", bool, False, "subspace expansion (slows convergence on fine grids)"),
+        Parameter("threads", int, 1, "BLAS threads", minimum=1),
+    )
+
+    def supports(self, problem: Problem) -> Support:
+        for name in problem.targets.observables:
+            if name in UNSUPPORTED_OBSERVABLES:
+                return Support.no(f"observable '{name}' is not computed: {UNSUPPORTED_OBSERVABLES[name]}; use lattice-ed")
+        if problem.targets.parity != "any":
+            return Support.no("parity sectors are not resolved by the MPS; ask for parity 'any' or use lattice-ed")
+        return Support.yes()
+
+    def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
+        chis = tuple(int(c) for c in params["chi"])
+        if not chis or any(c < 1 for c in chis) or list(chis) != sorted(set(chis)):
+            raise SpecError("param.chi", f"got {list(params['chi'])}; give distinct positive bond dimensions, ascending")
+        spacings, half_width = resolve_ladder(problem, params["spacings"], params["x_max"])
+        with threadpool_limits(params["threads"]):
+            return solve_ladder(
+                problem, spacings, half_width, lambda grid, final: solve_on_grid(problem, grid, final, chis, params)
+            )
+
+
+def solve_on_grid(problem: Problem, grid: lattice.Grid, final: bool, chis, params) -> LatticeLevels:
+    """The k lowest levels on one lattice, each converged over the chi ladder (observables if ``final``)."""
+    _, dmrg, _, MPS, _ = _tenpy()
+    model = lattice_model(problem, grid)
+    start = MPS.from_product_state(
+        model.lat.mps_sites(), initial_occupations(problem, grid), bc="finite", unit_cell_width=grid.sites
+    )
+    n_states = problem.targets.states
+    found: list = []  # MPS of the lower levels at the current chi
+    stages: list[list[dict]] = [[] for _ in range(n_states)]
+    warnings: list[str] = []
+    previous = [start.copy() for _ in range(n_states)]
+    shift, shifted = 0.0, None
+    for chi in chis:
+        found = []
+        for level in range(n_states):
+            psi = previous[level]
+            if level == 1 and shifted is None:
+                # put every wanted level below zero, where the projected-out ones sit
+                shift = 2 * abs(stages[0][-1]["energy"]) + 50.0 * n_states
+                shifted = lattice_model(problem, grid, constant=-shift)
+            options = {
+                "trunc_params": {"chi_max": chi, "svd_min": 1e-14},
+                "mixer": params["mixer"],
+                "max_E_err": params["tolerance"],
+                "max_S_err": 1.0,
+                "min_sweeps": 2,
+                "max_sweeps": params["max_sweeps"],
+                "combine": True,
+                "max_trunc_err": None,
+                "P_tol_to_trunc": None,
+                "lanczos_params": {"P_tol": 1e-14, "E_tol": 1e-15},
+            }
+            engine = dmrg.TwoSiteDMRGEngine(psi, shifted if level else model, options, orthogonal_to=list(found))
+            energy, psi = engine.run()
+            energy += shift if level else 0.0
+            stats = engine.sweep_stats
+            change = abs(stats["E"][-1] - stats["E"][-2]) if len(stats["E"]) > 1 else math.inf
+            converged = change <= params["tolerance"] * max(abs(energy), 1.0)
+            stages[level].append(
+                {
+                    "chi": chi,
+                    "energy": float(energy),
+                    "truncation_error": float(stats["max_trunc_err"][-1]),
+                    "sweeps": int(stats["sweep"][-1]),
+                    "last_change": float(change),
+                    "converged": bool(converged),
+                    "max_bond": int(max(psi.chi)),
+                }
+            )
+            if not converged:
+                warnings.append(
+                    f"DMRG did not converge: level {level}, L = {grid.sites}, chi = {chi}: energy still moved"
+                    f" {change:.2e} in the last of {stats['sweep'][-1]} sweeps (max_sweeps = {params['max_sweeps']})"
+                )
+            psi.canonical_form()
+            found.append(psi)
+            previous[level] = psi.copy()
+
+    energies, errors = [], []
+    for level in range(n_states):
+        value, error = extrapolate_truncation(stages[level])
+        last = stages[level][-1]
+        energies.append(value)
+        errors.append(error + (0.0 if last["converged"] else last["last_change"]))
+
+    sites = [_expectations(problem, psi, final) for psi in found]
+    levels = LatticeLevels(
+        energies=energies,
+        solver_errors=errors,
+        states=[{"level": k} for k in range(n_states)],
+        scalars=[
+            lattice_observables.scalars(problem, grid, site, stage[-1]["energy"])
+            for site, stage in zip(sites, stages)
+        ],
+        site_densities=sites[0].densities,
+        diagnostics={"sites": grid.sites, "spacing": grid.spacing, "chi_ladder": stages},
+        warnings=warnings,
+    )
+    if final:
+        for k, site in enumerate(sites):
+            observables, notes = lattice_observables.observables(problem, grid, site, k)
+            levels.observables.update(observables)
+            levels.warnings.extend(n for n in notes if n not in levels.warnings)
+    return levels
+
+def _expectations(problem: Problem, psi, final: bool) -> lattice_observables.SiteExpectations:
+    want_obdm = final and lattice_observables.needs_obdm(problem)
+    want_pair = final and lattice_observables.needs_pair(problem)
+    return lattice_observables.SiteExpectations(
+        densities=(np.real(psi.expectation_value("Nu")), np.real(psi.expectation_value("Nd"))),
+        double_occupancy=np.real(psi.expectation_value("NuNd")),
+        obdm=(
+            (np.real(psi.correlation_function("Cdu", "Cu")), np.real(psi.correlation_function("Cdd", "Cd")))
+            if want_obdm
+            else None
+        ),
+        pair=np.real(psi.correlation_function("Nu", "Nd")) if want_pair else None,
+    )

@@ -1,0 +1,109 @@
+"""lattice-dmrg against independent references: quspin's lattice Hamiltonian, closed forms, Busch."""
+
+from __future__ import annotations
+
+import math
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+sys.path.insert(0, str(Path(__file__).parent))
+from lattice_reference import quspin_levels  # noqa: E402
+
+from trapbench.backends import lattice  # noqa: E402
+from trapbench.backends.lattice_dmrg import LatticeDMRGBackend, solve_on_grid  # noqa: E402
+from trapbench.problems.spec import Problem  # noqa: E402
+
+pytestmark = pytest.mark.filterwarnings("ignore::UserWarning")
+
+BACKEND = LatticeDMRGBackend()
+
+
+def on_grid(problem, spacing, half_width, chi=(16, 64), final=False):
+    params = BACKEND.resolve_params({"chi": chi})
+    grid = lattice.make_grid(problem, spacing, half_width)
+    return grid, solve_on_grid(problem, grid, final, params["chi"], params)
+
+
+@pytest.mark.parametrize("g", [-2.0, 2.0])
+def test_dmrg_equals_lattice_diagonalization_by_quspin_on_the_same_lattice(g):
+    # Reference: quspin's spinful_fermion_basis_1d Hamiltonian built term by term (an independent code path).
+    problem = Problem.create(2, 2, g, mass_down=40 / 6, states=2)
+    grid, levels = on_grid(problem, 0.6, 3.3)
+    assert grid.sites == 12
+    exact, _, _ = quspin_levels(problem, grid, 2)
+    np.testing.assert_allclose(levels.energies, exact, rtol=0, atol=1e-8)
+    assert max(levels.solver_errors) < 1e-7
+
+
+def test_dmrg_free_fermions_in_a_box_equal_the_closed_form_lattice_spectrum():
+    # g = 0: E = sum of the lowest N_s levels 2 t_s (1 - cos(n pi / (L + 1))) per species (closed form).
+    problem = Problem.from_dict(
+        {
+            "up": {"count": 2},
+            "down": {"count": 1, "mass": 40 / 6},
+            "trap": {"shape": "box", "half_width": 2.0},
+            "interaction": {"g": 0.0},
+        }
+    )
+    grid, levels = on_grid(problem, 0.25, 2.0)
+    n = np.arange(1, grid.sites + 1)
+    level = lambda s: 2 * lattice.hopping(s, grid.spacing) * (1 - np.cos(n * np.pi / (grid.sites + 1)))  # noqa: E731
+    expected = level(problem.up)[:2].sum() + level(problem.down)[0]
+    assert levels.energies[0] == pytest.approx(expected, abs=1e-10)
+
+
+def test_dmrg_contact_density_is_the_derivative_of_the_energy():
+    # Hellmann-Feynman: <sum delta> = dE/dg; compared with a central difference of two more DMRG runs.
+    g, h = 2.0, 1e-3
+    problem = Problem.create(1, 1, g, observables=["density", "obdm", "momentum", "pair_position"])
+    grid, levels = on_grid(problem, 0.5, 4.0, final=True)
+    plus = on_grid(Problem.create(1, 1, g + h), 0.5, 4.0)[1].energies[0]
+    minus = on_grid(Problem.create(1, 1, g - h), 0.5, 4.0)[1].energies[0]
+    assert levels.scalars[0]["delta"] == pytest.approx((plus - minus) / (2 * h), abs=1e-6)
+    # normalizations of the continuum-normalized observables (OBSERVABLE_NAMES)
+    a = grid.spacing
+    obs = levels.observables
+    assert np.sum(obs["density_up"].values) * a == pytest.approx(1.0, abs=1e-10)
+    assert np.trace(obs["obdm_down"].values) * a == pytest.approx(1.0, abs=1e-10)
+    assert np.sum(obs["pair_position"].values) * a * a == pytest.approx(1.0, abs=1e-10)
+    np.testing.assert_allclose(np.diag(obs["obdm_up"].values), obs["density_up"].values, atol=1e-12)
+
+
+def test_dmrg_density_matches_quspin_ground_state():
+    problem = Problem.create(2, 1, 1.5, observables=["density"])
+    grid, levels = on_grid(problem, 0.6, 3.3, final=True)
+    _, vectors, basis = quspin_levels(problem, grid, 1)
+    from quspin.operators import hamiltonian
+
+    for name, term in (("density_up", "n|"), ("density_down", "|n")):
+        site_density = []
+        for j in range(grid.sites):
+            op = hamiltonian([[term, [[1.0, j]]]], [], basis=basis, dtype=np.float64, check_symm=False, check_herm=False)
+            site_density.append(op.expt_value(vectors[:, 0]).real)
+        np.testing.assert_allclose(levels.observables[name].values * grid.spacing, site_density, atol=1e-8)
+
+
+@pytest.mark.slow
+def test_dmrg_continuum_limit_matches_busch_within_its_error_bar():
+    # Busch et al., Found. Phys. 28, 549 (1998): E(1+1, g = 2) = 1.487402354161 (anchors table 2.1,
+    # an exact root; the two-body backend solves the same equation).
+    # chi = 32 does not truncate 1+1 here (largest bond 26), so the chi error is zero, not guessed
+    result = BACKEND.solve(Problem.create(1, 1, 2.0), spacings=(0.4, 0.32, 0.25), x_max=5.0, chi=(32,))
+    assert all(s[-1]["truncation_error"] < 1e-14 for run in result.diagnostics["per_spacing"] for s in run["chi_ladder"])
+    exact = 1.487402354161
+    assert abs(result.energies[0] - exact) <= result.error_estimate
+    assert abs(result.energies[0] - exact) <= 1e-4 * exact
+    assert result.scalars["delta"] == pytest.approx(0.1397611296, rel=1e-3)  # anchors 3.4: dE/dg at g = 2
+
+
+def test_dmrg_refuses_what_it_does_not_compute():
+    assert not BACKEND.supports(Problem.create(1, 1, 1.0, observables=["noise"]))
+    assert "four-point" in BACKEND.supports(Problem.create(1, 1, 1.0, observables=["pair_momentum"])).reason
+    assert not BACKEND.supports(Problem.create(1, 1, 1.0, parity="even"))
+    assert BACKEND.supports(Problem.create(1, 1, 1.0, observables=["density", "momentum"]))
+    with pytest.raises(Exception, match="param.chi"):
+        BACKEND.solve(Problem.create(1, 1, 1.0), chi=(64, 32))
+    assert math.isfinite(lattice.half_width(Problem.create(1, 1, 1.0)))
