@@ -1,0 +1,228 @@
+"""The generated report: files written, figures present, tables holding the stored numbers.
+
+A tiny store is built with the real ``two-body`` (exact, Busch et al.) and ``perturbative``
+(first order in g) backends through the sweep harness. The checks compare the report's tables with
+the numbers in the store, and the report's own arithmetic (odd-even staggering, noise slope) with
+closed forms: the first-order coefficients c1 = sum_ij int phi_i^2 phi_j^2 dx of 1+1, 2+1 and 2+2
+(1, 3/2 and 11/4 in units of 1/sqrt(2 pi); oscillator-orbital integrals, first-order perturbation
+theory, a textbook result) and a synthetic quadratic.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import textwrap
+from pathlib import Path
+
+import matplotlib
+import numpy as np
+import pandas as pd
+import pytest
+
+matplotlib.use("Agg")
+
+from trapbench.bench import report, report_figures  # noqa: E402
+from trapbench.bench.cli import main  # noqa: E402
+from trapbench.bench.store import Store  # noqa: E402
+from trapbench.bench.suite import load_suite  # noqa: E402
+from trapbench.bench.sweep import SweepOptions, run_sweep  # noqa: E402
+
+SUITE = """
+name = "report-test"
+timeout = 120
+
+[[problems]]
+name = "1+1 scan"
+up = { count = 1 }
+down = { count = 1 }
+interaction = { g = [0.0, 1.0, 3.0] }
+
+[[problems]]
+name = "1+1 heavy up"
+up = { count = 1, mass = 6.666666666666667 }
+down = { count = 1 }
+interaction = { g = [0.0, 3.0, 10.0] }
+targets = { observables = ["density"], grid_points = 101, x_max = 5.0 }
+
+[[problems]]
+name = "spectrum 2+1 equal"
+up = { count = 2 }
+down = { count = 1 }
+interaction = { g = [0.0, 0.1, 0.2] }
+targets = { states = 6 }
+
+[[problems]]
+name = "spectrum 2+1 heavy"
+up = { count = 2, mass = 6.666666666666667 }
+down = { count = 1 }
+interaction = { g = [0.0, 0.1, 0.2] }
+targets = { states = 6 }
+
+[[problems]]
+name = "odd-even 1+0"
+up = { count = 1 }
+down = { count = 0 }
+interaction = { g = 0.0 }
+
+[[problems]]
+name = "odd-even"
+up = { count = 2 }
+down = { count = 2 }
+interaction = { g = [0.0, -0.1] }
+
+[[problems]]
+name = "odd-even 2+1"
+up = { count = 2 }
+down = { count = 1 }
+interaction = { g = [0.0, -0.1] }
+
+[[problems]]
+name = "odd-even 1+1"
+up = { count = 1 }
+down = { count = 1 }
+interaction = { g = -0.1 }
+
+[[backends]]
+name = "two-body"
+problems = ["1+1 scan", "1+1 heavy up"]
+ladder = [{ relative_points = 200 }, { relative_points = 800 }]
+
+[[backends]]
+name = "perturbative"
+problems = ["spectrum 2+1 equal", "spectrum 2+1 heavy", "odd-even 1+0", "odd-even", "odd-even 2+1", "odd-even 1+1"]
+"""
+
+
+@pytest.fixture(scope="module")
+def built(tmp_path_factory):
+    """The store filled by a sweep of SUITE and the report written from it."""
+    folder = tmp_path_factory.mktemp("report")
+    suite_path = folder / "suite.toml"
+    suite_path.write_text(textwrap.dedent(SUITE))
+    store_path = folder / "results.sqlite"
+    suite = load_suite(suite_path)
+    sweep = run_sweep(suite, SweepOptions(store_path=store_path, progress=False))
+    assert set(sweep.statuses) == {"ok"}, sweep.summary()
+    output = folder / "out"
+    with Store.open(store_path) as store:
+        written = report.write_report(store, output, suite, set(sweep.task_keys))
+        frame = store.results_frame(keys=sweep.task_keys)
+    return {"folder": folder, "suite_path": suite_path, "store": store_path, "output": output, "written": written,
+            "frame": frame, "keys": sweep.task_keys}
+
+
+def test_markdown_html_and_every_linked_figure_are_written(built):
+    output = built["output"]
+    markdown = (output / "report.md").read_text()
+    page = (output / "report.html").read_text()
+    linked = re.findall(r"!\[Figure (\d+)\]\((figures/[^)]+\.png)\)", markdown)
+    assert len(linked) >= 4  # cost trade-off, cost vs N, spectra, densities, odd-even
+    for number, path in linked:
+        assert (output / path).stat().st_size > 10_000, path
+        assert f"*Figure {number}: " in markdown  # every figure has a caption
+    assert sorted(p.name for p in (output / "figures").glob("*.png")) == sorted(Path(p).name for _, p in linked)
+    assert page.count('src="data:image/png;base64,') == len(linked)  # self-contained HTML
+    assert page.count("<figcaption>") == len(linked)
+    for title in ("Method map", "Agreement with reference values", "Accuracy against cost", "Cost against particle number",
+                  "Spectra against g", "Heavy and light densities", "Odd-even energy differences",
+                  "Machine, library versions and source revision"):
+        assert f"## {title}" in markdown or f"### {title}" in markdown
+        assert title in page
+    for written in built["written"]:
+        assert written.exists()
+
+
+def test_missing_figure_data_is_named_with_the_command_to_run(built):
+    markdown = (built["output"] / "report.md").read_text()
+    # no backend in the test store computes momentum noise maps
+    for title in ("Momentum noise correlations at attractive g", "Integrated noise correlation against g"):
+        section = markdown.split(f"### {title}")[1].split("###")[0]
+        assert "No data for this figure" in section
+        assert "`trapbench sweep figures`" in section
+
+
+def test_agreement_tables_hold_the_stored_energies_and_busch_reference(built):
+    frame, output = built["frame"], built["output"]
+    markdown = (output / "report.md").read_text()
+    assert "Busch" in markdown and "Found. Phys. 28, 549 (1998)" in markdown
+    tables = [pd.read_csv(p) for p in sorted((output / "tables").glob("agreement_*.csv"))]
+    agreement = pd.concat(tables)
+    stored = frame[frame["state"] >= 0]
+    for row in agreement.itertuples():
+        match = stored[(stored["problem_name"] == row.problem) & np.isclose(stored["g"], row.g)
+                       & (stored["state"] == row.state) & (stored["backend"] == row.backend)]
+        assert not match.empty
+        assert np.any(match["energy"].to_numpy() == row.energy)  # the exact stored float
+    # the exact two-body ground state at g = 1 (physics anchors table 2.1: 1.306745541231, Busch's equation)
+    busch = agreement[(agreement["problem"] == "1+1 scan") & (agreement["g"] == 1.0) & (agreement["state"] == 0)]
+    assert busch["reference"].iloc[0] == pytest.approx(1.306745541231, abs=1e-11)
+    assert busch["energy"].iloc[0] == pytest.approx(1.306745541231, abs=1e-10)
+
+
+def test_method_map_names_the_exact_two_body_solution_for_n2(built):
+    table = pd.read_csv(built["output"] / "tables" / "method_map.csv")
+    row = table[(table["N"] == 2) & (table["mass ratio"] == "1")].iloc[0]
+    assert row["cheapest at 1e-05"] == "two-body"
+    stored = built["frame"]
+    runs = stored[(stored["backend"] == "two-body") & (stored["n_up"] == 1) & (stored["mass_up"] == 1.0)
+                  & (stored["state"] == 0)]
+    # the map's cost is the largest over the problems of the cheapest run: a stored CPU time
+    per_problem = runs.groupby("problem_key")["solve_cpu_s"].min()
+    assert row["CPU s at 1e-05"] == pytest.approx(per_problem.max(), rel=1e-9)
+
+
+def test_odd_even_staggering_matches_first_order_closed_form(built):
+    table = pd.read_csv(built["output"] / "tables" / "odd_even.csv")
+    by = {(int(r.n), float(r.g)): r.Delta for r in table.itertuples()}
+    # g = 0: E(a, b) = (a^2 + b^2)/2, so Delta = 0 for every n
+    assert by[(0, 0.0)] == pytest.approx(0.0, abs=1e-12)
+    assert by[(1, 0.0)] == pytest.approx(0.0, abs=1e-12)
+    # first order: E(a, b) = E0 + c1(a, b) g with c1 sqrt(2 pi) = 1 (1+1), 3/2 (2+1), 11/4 (2+2), 0 (1+0)
+    g, unit = -0.1, 1 / math.sqrt(2 * math.pi)
+    assert by[(0, g)] == pytest.approx(-0.5 * 1.0 * unit * g, abs=1e-12)
+    assert by[(1, g)] == pytest.approx((1.5 - (1.0 + 2.75) / 2) * unit * g, abs=1e-12)
+
+
+def test_spectra_and_density_tables_are_the_stored_numbers(built):
+    frame, output = built["frame"], built["output"]
+    spectra = pd.read_csv(output / "tables" / "spectra.csv")
+    assert set(spectra["mass ratio"]) == {"1", "6.667 (40/6)"}
+    assert len(spectra) == 2 * 3 * 6  # two mass ratios, three g, six levels
+    stored = frame[(frame["backend"] == "perturbative") & (frame["n_up"] == 2) & (frame["n_down"] == 1)
+                   & frame["problem_name"].str.startswith("spectrum")]
+    assert sorted(spectra["energy"]) == sorted(stored["energy"])
+    densities = pd.read_csv(output / "tables" / "densities.csv")
+    # each density integrates to its particle number (1 each here) on the stored grid
+    assert np.allclose(densities["integral n dx"], 1.0, atol=2e-3)
+    # the heavy particle (mass 20/3) is narrower: at g = 0 <x^2> = 1/(2 m omega) per particle
+    free = densities[densities["g"] == 0.0].set_index("species")["<x^2>"]
+    heavy = [v for k, v in free.items() if k.startswith("heavy")][0]
+    light = [v for k, v in free.items() if k.startswith("light")][0]
+    assert heavy == pytest.approx(1 / (2 * 20 / 3), rel=1e-3)
+    assert light == pytest.approx(0.5, rel=1e-3)
+
+
+def test_noise_slope_recovers_a_known_quadratic():
+    g = np.array([-0.5, -0.25, 0.0, 0.25, 0.5, 1.0])
+    integral = 0.09 * g**2 + 0.02 * g**3  # s = 0.3 exactly
+    s, error, used = report_figures.noise_slope(g, integral)
+    assert s == pytest.approx(0.3, rel=1e-12)
+    assert used == 4  # 0 < |g| <= 0.5
+    assert error == pytest.approx(0.0, abs=1e-10)
+    assert report_figures.noise_slope(np.array([0.0, 1.0]), np.array([0.0, 1.0])) is None
+
+
+def test_command_reads_the_store_and_empty_store_says_what_to_run(built, tmp_path, capsys):
+    output = tmp_path / "again"
+    code = main(["report", "--suite", str(built["suite_path"]), "--store", str(built["store"]), "--output", str(output),
+                 "--from-store"])
+    assert code == 0
+    assert (output / "report.md").read_text().count("![Figure") == (built["output"] / "report.md").read_text().count("![Figure")
+    empty = tmp_path / "empty"
+    code = main(["report", "--suite", str(built["suite_path"]), "--store", str(tmp_path / "none.sqlite"),
+                 "--output", str(empty), "--from-store"])
+    assert code == 0
+    assert "holds no results for this suite" in (empty / "report.md").read_text()
+    assert main(["report", "--suite", "no-such-suite", "--store", str(tmp_path / "x.sqlite"), "--from-store"]) == 2
+    assert "no built-in suite 'no-such-suite'" in capsys.readouterr().err
