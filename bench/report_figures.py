@@ -399,56 +399,64 @@ def _rank(entry) -> float:
 
 
 def odd_even_table(frame: pd.DataFrame) -> pd.DataFrame:
-    """Odd-even staggering Delta(n, g) = E(n+1, n) - [E(n, n) + E(n+1, n+1)] / 2, E(0, 0) = 0.
+    """Odd-even staggering Delta(N+1) = E(N+1) - [E(N) + E(N+2)]/2 (N even) from the best stored ground energies.
 
-    The three-point odd-even (pairing-gap) formula, common practice for few-fermion systems. It
-    vanishes at g = 0 for any n (E(a, b) = (a^2 + b^2)/2 there) and is positive when pairing
-    lowers the even systems. Error bar: E(n+1, n)'s plus half of the other two (linear sum).
+    The definition and its error propagation are ``bench.pairing.pairing_gaps`` (three-point formula,
+    common practice; N_up = ceil(N/2), N_down = floor(N/2), E(0) = 0). Delta vanishes at g = 0 for
+    every N and is positive when pairing lowers the even systems.
     """
+    from .pairing import balanced_counts, pairing_gaps
+
     energies = ground_energies(frame)
-
-    def energy(n_up: int, n_down: int, g: float):
-        if n_up == 0 and n_down == 0:
-            return (0.0, 0.0, "definition")
-        return energies.get((n_up, n_down, None if n_down == 0 else g))
-
-    rows = []
     couplings = sorted({k[2] for k in energies if k[2] is not None})
-    for n in range(0, 8):
-        for g in couplings:
-            odd, low, high = energy(n + 1, n, g), energy(n, n, g), energy(n + 1, n + 1, g)
-            if odd is None or low is None or high is None:
-                continue
-            bars = [odd[1], low[1], high[1]]
-            bar = None if any(b is None for b in bars) else bars[0] + (bars[1] + bars[2]) / 2
-            rows.append({"n": n, "odd N": 2 * n + 1, "g": g, "E(n+1,n)": odd[0], "E(n,n)": low[0], "E(n+1,n+1)": high[0],
-                         "Delta": odd[0] - (low[0] + high[0]) / 2, "error bar": bar,
-                         "backends": ", ".join(dict.fromkeys(e[2] for e in (odd, low, high)))})
-    return pd.DataFrame(rows, columns=["n", "odd N", "g", "E(n+1,n)", "E(n,n)", "E(n+1,n+1)", "Delta", "error bar",
-                                       "backends"])
+    rows = []
+    for g in couplings:
+        for n in range(0, max(k[0] + k[1] for k in energies) + 1):
+            n_up, n_down = balanced_counts(n)
+            entry = (0.0, 0.0, "E(0) = 0") if n == 0 else energies.get((n_up, n_down, None if n_down == 0 else g))
+            if entry is not None:
+                rows.append({"backend": "best stored", "N": n, "g": g, "energy": entry[0],
+                             "error": math.nan if entry[1] is None else entry[1], "status": "ok", "source": entry[2]})
+    if not rows:
+        return pd.DataFrame(columns=["N", "g", "E(N-1)", "E(N)", "E(N+1)", "Delta", "error bar", "backends"])
+    stored = pd.DataFrame(rows)
+    gaps = pairing_gaps(stored)
+    by = stored.set_index(["N", "g"])
+    table = []
+    for gap in gaps.itertuples():
+        n, g = int(gap.N), gap.g
+        sources = [by.loc[(m, g), "source"] for m in (n - 1, n, n + 1)]
+        table.append({"N": n, "g": g, "E(N-1)": by.loc[(n - 1, g), "energy"], "E(N)": by.loc[(n, g), "energy"],
+                      "E(N+1)": by.loc[(n + 1, g), "energy"], "Delta": gap.gap,
+                      "error bar": None if math.isnan(gap.error) else gap.error,
+                      "backends": ", ".join(dict.fromkeys(sources))})
+    return pd.DataFrame(table, columns=["N", "g", "E(N-1)", "E(N)", "E(N+1)", "Delta", "error bar", "backends"])
 
 
 def odd_even_figure(frame: pd.DataFrame) -> FigureOutcome:
     key, title = "odd_even", "Odd-even energy differences"
     table = odd_even_table(frame)
     if table.empty:
-        return _missing(key, title, "ground energies of n+n, (n+1)+n and (n+1)+(n+1) at equal masses and the same g")
-    figure, axes = _figure(7, 4.4, 1)
+        return _missing(key, title, "ground energies of N-1, N and N+1 particles (N odd, spins balanced) at equal masses"
+                        " and the same g")
+    figure, axes = _figure(7.5, 4.6, 1)
     ax = axes[0]
-    for n, part in table.groupby("n"):
+    for n, part in table.groupby("N"):
         part = part.sort_values("g")
         bars = pd.to_numeric(part["error bar"], errors="coerce").fillna(0.0)
+        n_up, n_down = (n + 1) // 2, n // 2
         ax.errorbar(part["g"], part["Delta"], yerr=bars, fmt="o-", ms=4, capsize=3,
-                    label=f"N = {2 * n + 1}: {n + 1}+{n} against {n}+{n} and {n + 1}+{n + 1}")
+                    label=f"N = {n} ({n_up}+{n_down})")
     ax.axhline(0.0, color="0.4", lw=0.8)
     ax.set_xlabel(G_LABEL)
-    ax.set_ylabel(r"$\Delta = E_{n+1,n} - (E_{n,n} + E_{n+1,n+1})/2$ [$\hbar\omega$]")
+    ax.set_ylabel(r"$\Delta(N) = E(N) - [E(N-1) + E(N+1)]/2$ [$\hbar\omega$]")
     ax.legend(fontsize="small")
     ax.grid(True, alpha=0.3)
-    caption = ("Odd-even staggering of the ground-state energy, Delta(N = 2n+1) = E(n+1, n) - [E(n, n) + E(n+1, n+1)]/2"
-               " (three-point formula, common practice), equal masses, E(0, 0) = 0. Delta vanishes at g = 0 and grows"
-               " with attraction, where the odd particle cannot pair. Error bars: the energies' own error bars"
-               " (linear sum). Backends per point in the table.")
+    caption = ("Odd-even staggering of the ground-state energy at odd N, Delta(N) = E(N) - [E(N-1) + E(N+1)]/2"
+               " (three-point formula, common practice; spins as balanced as possible, equal masses, E(0) = 0)."
+               " Delta vanishes at g = 0 and grows with attraction, where the odd particle is left unpaired. Error"
+               " bars: the energies' own error bars (linear sum; none drawn where a backend gives none). The backend"
+               " of each energy is in the table.")
     return FigureOutcome(key, title, caption, figure, table)
 
 

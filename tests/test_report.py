@@ -174,14 +174,14 @@ def test_method_map_names_the_exact_two_body_solution_for_n2(built):
 
 def test_odd_even_staggering_matches_first_order_closed_form(built):
     table = pd.read_csv(built["output"] / "tables" / "odd_even.csv")
-    by = {(int(r.n), float(r.g)): r.Delta for r in table.itertuples()}
-    # g = 0: E(a, b) = (a^2 + b^2)/2, so Delta = 0 for every n
-    assert by[(0, 0.0)] == pytest.approx(0.0, abs=1e-12)
+    by = {(int(r.N), float(r.g)): r.Delta for r in table.itertuples()}
+    # g = 0: E(a, b) = (a^2 + b^2)/2, so Delta = 0 for every odd N
     assert by[(1, 0.0)] == pytest.approx(0.0, abs=1e-12)
+    assert by[(3, 0.0)] == pytest.approx(0.0, abs=1e-12)
     # first order: E(a, b) = E0 + c1(a, b) g with c1 sqrt(2 pi) = 1 (1+1), 3/2 (2+1), 11/4 (2+2), 0 (1+0)
     g, unit = -0.1, 1 / math.sqrt(2 * math.pi)
-    assert by[(0, g)] == pytest.approx(-0.5 * 1.0 * unit * g, abs=1e-12)
-    assert by[(1, g)] == pytest.approx((1.5 - (1.0 + 2.75) / 2) * unit * g, abs=1e-12)
+    assert by[(1, g)] == pytest.approx(-0.5 * 1.0 * unit * g, abs=1e-12)
+    assert by[(3, g)] == pytest.approx((1.5 - (1.0 + 2.75) / 2) * unit * g, abs=1e-12)
 
 
 def test_spectra_and_density_tables_are_the_stored_numbers(built):
