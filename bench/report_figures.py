@@ -142,8 +142,8 @@ def spectra_figure(frame: pd.DataFrame, store) -> FigureOutcome:
                 parity = int(labels.get("parity") or 0)
                 index = seen.get(parity, 0)
                 seen[parity] = index + 1
-                lines.setdefault((parity, index), []).append((float(task.g), float(r.energy)))
                 bar = r.energy_error if not _none(r.energy_error) else task.error_estimate
+                lines.setdefault((parity, index), []).append((float(task.g), float(r.energy), 0.0 if _none(bar) else float(bar)))
                 if not _none(bar):
                     max_bar = max(max_bar, float(bar))
                 table_rows.append({"mass ratio": ratio_text(ratio), "g": float(task.g), "state": int(r.state),
@@ -155,9 +155,9 @@ def spectra_figure(frame: pd.DataFrame, store) -> FigureOutcome:
         labelled = set()
         for (parity, _), points in sorted(lines.items()):
             color, dash, marker, label = styles[parity]
-            gs, es = zip(*points)
-            ax.plot(gs, es, ls=dash if len(points) == points_per_g else "none", marker=marker, ms=3, lw=1.1,
-                    color=color, label=None if parity in labelled else label)
+            gs, es, bars = zip(*points)
+            ax.errorbar(gs, es, yerr=bars, ls=dash if len(points) == points_per_g else "none", marker=marker, ms=3,
+                        lw=1.1, capsize=2, color=color, label=None if parity in labelled else label)
             labelled.add(parity)
         ax.axhline(n * n / 2, color="0.4", ls=":", lw=1, label=f"$N^2/2$ = {n * n / 2:g}")
         ax.set_xlabel(G_LABEL)
@@ -174,8 +174,8 @@ def spectra_figure(frame: pd.DataFrame, store) -> FigureOutcome:
                " (for equal masses the spatially antisymmetric states, whose wave function vanishes at every"
                f" contact). The dotted line is N^2/2 = {n * n / 2:g}, where the C(N, N_up)-fold fermionized manifold"
                " of equal masses converges as g -> infinity; with unequal masses that manifold is split into groups"
-               " with different limits. Largest energy error bar among the drawn points: "
-               f"{max_bar:.2g} hbar omega. Computed with " + _backends_text(pd.concat(used)) + ".")
+               " with different limits. Error bars: the backend's own (largest among the drawn points: "
+               f"{max_bar:.2g} hbar omega). Computed with " + _backends_text(pd.concat(used)) + ".")
     return FigureOutcome(key, title, caption, figure, pd.DataFrame(table_rows))
 
 
@@ -265,8 +265,8 @@ def noise_maps_figure(frame: pd.DataFrame, store) -> FigureOutcome:
     caption = (f"Noise correlation C(p_up, p_down) = <n_up(p_up) n_down(p_down)> - n_up(p_up) n_down(p_down) of the"
                f" lowest state of {int(n_up)}+{int(n_down)} fermions at g = {g:g}, for m_up/m_down = "
                + ", ".join(ratio_text(r) for r in group["ratio"]) + ". Red: momenta found together more often than"
-               " independently; the positive ridge near p_up = -p_down is pairing at zero total momentum, tilted as"
-               " the masses differ. C integrates to zero (column 'sum C dp dp' of the table, on the plotted grid)."
+               " independently. For equal masses the positive ridge along p_up = -p_down shows pairs of zero total"
+               " momentum; a heavier up species spreads the correlations along p_up. C integrates to zero (column 'sum C dp dp' of the table, on the plotted grid)."
                " Computed with " + _backends_text(group) + ".")
     return FigureOutcome(key, title, caption, figure, pd.DataFrame(rows))
 
@@ -348,6 +348,8 @@ def noise_integral_figure(frame: pd.DataFrame) -> FigureOutcome:
         r, s, ds, _ = map(np.array, zip(*slopes))
         right.errorbar(r, s, yerr=np.nan_to_num(ds), fmt="o-", capsize=3)
         right.set_xscale("log")
+        right.set_xticks(r, [f"{v:.4g}" for v in r])
+        right.minorticks_off()
     right.set_xlabel(r"mass ratio $m_\uparrow/m_\downarrow$")
     right.set_ylabel(r"slope $s = \lim_{g\to 0}\sqrt{I}\,/\,|g|$ [$1/(\hbar^2\omega)$]")
     right.grid(True, which="both", alpha=0.3)
