@@ -24,6 +24,10 @@ Checks (the property, and where it holds):
 - ``antisymmetric-state``: for equal masses and frequencies the totally antisymmetric spatial state
   (all N particles in orbitals 0..N-1) feels no contact interaction, so E = omega N^2/2 is a level at
   every g (checked at |g|, where levels only rise from g = 0 and the state count is bounded).
+- ``monotonic-bounds``: sum delta is a positive operator, so by the min-max principle every ordered
+  level E_k(g) is non-decreasing in g: E_k(0) <= E_k(g) <= E_k(+inf) for g > 0 and E_k(g) <= E_k(0)
+  for g < 0, with E_k(0) the oscillator towers and E_k(+inf) the hard-core levels of
+  ``references_for`` (quantity "energy_g_inf"; equal masses, or 2+1 with any masses).
 - ``species-swap``: relabelling up <-> down (counts, masses, frequencies) leaves the spectrum unchanged.
 
 Tolerances: a value passes when |measured - expected| <= absolute + relative |expected| +
@@ -323,6 +327,35 @@ def check_antisymmetric_state(runner: Runner, problem: Problem, tolerance: Toler
     return _verdict(name, problem.at(g), deviation, allowed, f"nearest of {needed} levels to E = N^2/2 = {target:g}")
 
 
+def check_monotonic_bounds(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "monotonic-bounds"
+    if not problem.trap.is_harmonic:
+        raise Skip("the bounding spectra are known for the harmonic trap only")
+    g = problem.coupling
+    if g == 0:
+        raise Skip("at g = 0 the non-interacting check applies")
+    result = runner.solve(problem)
+    count = len(result.energies)
+    lower = [e for e, _ in noninteracting_levels(problem, count)]
+    upper = sorted((r for r in references_for(problem) if r.quantity == "energy_g_inf"), key=lambda r: r.state)
+    bounds = []  # (level, bound, sign): sign * (E - bound) must be <= 0
+    for i, e in enumerate(result.energies):
+        bounds.append((i, lower[i], -1 if g > 0 else 1))
+        if g > 0 and i < len(upper):
+            bounds.append((i, upper[i].value, 1))
+    worst = (0.0, tolerance.absolute)
+    for i, bound, sign in bounds:
+        excess = sign * (result.energies[i] - bound)
+        allowed = tolerance.allowed(bound, level_error(result, i))
+        if excess > allowed:
+            side = "below its g = 0 value" if (sign < 0) == (g > 0) else "above its g = +inf value"
+            return Verdict(name, problem.describe(), "fail",
+                           f"level {i} = {result.energies[i]:.8g} lies {side} {bound:.8g} by {excess:.2e}", excess, allowed)
+        worst = max(worst, (max(excess, 0.0), allowed), key=lambda w: w[0] / w[1])
+    what = "E(0) <= E(g) <= E(inf)" if upper and g > 0 else ("E(g) >= E(0)" if g > 0 else "E(g) <= E(0)")
+    return _verdict(name, problem, *worst, f"{count} levels within {what}")
+
+
 def check_species_swap(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
     name = "species-swap"
     swapped = replace(problem, up=replace(problem.down, name=problem.up.name), down=replace(problem.up, name=problem.down.name))
@@ -345,6 +378,7 @@ CHECKS: dict[str, Callable[[Runner, Problem, Tolerance], Verdict]] = {
     "com-tower": check_com_tower,
     "parity-labels": check_parity_labels,
     "antisymmetric-state": check_antisymmetric_state,
+    "monotonic-bounds": check_monotonic_bounds,
     "species-swap": check_species_swap,
 }
 

@@ -19,6 +19,22 @@
   c1 = sum_{i < N_up} sum_{j < N_down} int phi_i^up(x)^2 phi_j^down(x)^2 dx (the non-interacting ground
   state of each species is one Slater determinant, so the first order is non-degenerate).
 - ``K``: the strong-coupling coefficients themselves, state k = k-th largest K in the sector.
+- ``energy_g_inf``: the levels at g = +inf (hard-core limit), the upper bounds of the levels at any
+  finite g > 0 (each ordered level is non-decreasing in g because sum delta is a positive operator):
+  * equal masses and frequencies: each level of N spinless fermions, omega (N^2/2 + q), repeated once
+    per spin ordering, C(N, N_up) times (fermionization; Volosniev et al. 2014, Deuretzbacher et al. 2014);
+    in a parity sector the orderings split by chain reversal R into (C +- P)/2 (P palindromic
+    orderings), the state's parity being that of the spinless level times R;
+  * 2+1 (or 1+2) with unequal masses, parity "any": in mass-scaled Jacobi coordinates the coincidence
+    lines of the odd particle with the pair cut the relative plane into wedges; a 2D oscillator in a
+    wedge of angle theta with hard walls has E_rel = omega (2 n + k pi/theta + 1). The two wedges with
+    the odd particle outside (angle 2 theta_o) allow only modes odd about their bisector (the pair's
+    antisymmetry), k even; the two wedges with the odd particle inside (angle theta_i each) are
+    exchanged by the pair's antisymmetry and give one state per mode. The angles follow from the
+    normals of x_i = x_j in mass-scaled coordinates: for particle j between i and k the sector angle
+    is arccos sqrt(m_i m_k / ((m_i + m_j)(m_j + m_k))). (Derived here; the construction is that of
+    e.g. Harshman et al., Phys. Rev. X 7, 041001 (2017), reference recalled.) For equal masses all
+    sectors have angle pi/3 and the fermionized spectrum is recovered.
 
 Kinds: "exact" (closed form or exact root evaluated to ~1e-12), "derived" (a published method
 evaluated here), "published" (read from a cited table), "recalled" (from memory; flagged as such).
@@ -156,6 +172,85 @@ def two_body_levels(problem: Problem, states: int | None = None) -> list[tuple[f
     return levels[:states]
 
 
+# ----------------------------------------------------------------------------- g = +infinity
+
+FERMIONIZATION_SOURCE = (
+    "fermionization at g = +inf: A. G. Volosniev et al., Nat. Commun. 5, 5300 (2014); F. Deuretzbacher et al.,"
+    " Phys. Rev. A 90, 013611 (2014) (journal reference recalled)"
+)
+WEDGE_SOURCE = (
+    "hard-wall wedges of the 2D relative oscillator at g = +inf, derived in trapbench.problems.references"
+    " (construction as in N. L. Harshman et al., Phys. Rev. X 7, 041001 (2017), reference recalled)"
+)
+
+
+def _palindromes(n: int, n_up: int) -> int:
+    """Number of spin orderings of n_up ups among n sites that read the same backwards."""
+    if n % 2 == 0:
+        return math.comb(n // 2, n_up // 2) if n_up % 2 == 0 else 0
+    return math.comb((n - 1) // 2, (n_up - 1) // 2 if n_up % 2 else n_up // 2)
+
+
+def fermionized_levels(problem: Problem, states: int | None = None) -> list[float]:
+    """Lowest levels at g = +inf for equal masses and frequencies, in the problem's parity sector."""
+    states = problem.targets.states if states is None else states
+    wanted = {"any": None, "even": 1, "odd": -1}[problem.targets.parity]
+    n, n_up, omega = problem.n_particles, problem.up.count, problem.up.omega
+    total = math.comb(n, n_up)
+    palindromes = _palindromes(n, n_up)
+    reversal_count = {1: (total + palindromes) // 2, -1: (total - palindromes) // 2}
+    levels: list[float] = []
+    max_quanta = 0
+    while len(levels) < states:
+        counts = _partition_counts(n, max_quanta)
+        q = max_quanta
+        spinless_parity = (-1) ** (n * (n - 1) // 2 + q)
+        copies = counts[q] * (total if wanted is None else reversal_count[wanted * spinless_parity])
+        levels += [omega * (n * n / 2 + q)] * copies
+        max_quanta += 1
+    return levels[:states]
+
+
+def wedge_levels(problem: Problem, states: int | None = None) -> list[float]:
+    """Lowest levels at g = +inf of a 2+1 (or 1+2) system with any masses (parity "any"); see the docstring."""
+    states = problem.targets.states if states is None else states
+    pair, odd = (problem.up, problem.down) if problem.up.count == 2 else (problem.down, problem.up)
+    big, small = pair.mass, odd.mass
+    theta_outside = math.acos(math.sqrt(small * big / ((small + big) * 2 * big)))  # a pair member in the middle
+    theta_inside = math.acos(big / (big + small))  # the odd particle in the middle
+    # relative exponents nu with multiplicity: outside wedges (two of them), k even in the angle 2 theta_o
+    ladder = states + 2
+    exponents = [(j * math.pi / theta_outside, 2) for j in range(1, ladder + 1)]
+    exponents += [(k * math.pi / theta_inside, 1) for k in range(1, ladder + 1)]
+    omega = problem.up.omega
+    levels = []
+    for nu, multiplicity in exponents:
+        for radial in range(ladder):
+            for com in range(ladder):
+                levels += [omega * (2 * radial + nu + 1 + com + 0.5)] * multiplicity
+    return sorted(levels)[:states]
+
+
+def _infinite_coupling_references(problem: Problem) -> list[Reference]:
+    up, down = problem.species
+    if problem.equal_masses:
+        values, source, kind = fermionized_levels(problem), FERMIONIZATION_SOURCE, "exact"
+    elif (up.count, down.count) == (1, 1):
+        # Busch's even relative levels tend to e = 3/2 + 2n and join the odd ones, for any masses: each
+        # E = omega (n_cm + 2 + 2n) holds one state of each parity
+        copies = 2 if problem.targets.parity == "any" else 1
+        ladder = problem.targets.states + 1
+        values = sorted(up.omega * (n_cm + 2 + 2 * n) for n_cm in range(ladder) for n in range(ladder) for _ in range(copies))
+        values = values[: problem.targets.states]
+        source, kind = BUSCH_SOURCE + "; limit lambda -> inf", "exact"
+    elif sorted((up.count, down.count)) == [1, 2] and problem.targets.parity == "any":
+        values, source, kind = wedge_levels(problem), WEDGE_SOURCE, "derived"
+    else:
+        return []
+    note = "levels at g = +inf; every level at finite g > 0 lies at or below its g = inf counterpart"
+    return [Reference("energy_g_inf", i, float(v), 0.0, source, kind, note) for i, v in enumerate(values)]
+
+
 # ----------------------------------------------------------------------------- first order
 
 
@@ -269,4 +364,6 @@ def references_for(problem: Problem) -> list[Reference]:
         )
     if problem.equal_masses and problem.equal_frequencies and up.count and down.count and g > 0:
         refs += _strong_coupling_references(problem)
+    if problem.equal_frequencies and up.count and down.count and g > 0:
+        refs += _infinite_coupling_references(problem)
     return refs

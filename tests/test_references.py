@@ -13,10 +13,15 @@ import numpy as np
 import pytest
 from scipy import integrate, special
 
-from trapbench.problems.catalogue import CONFIGURATIONS, entries, get
+from trapbench.problems.catalogue import CONFIGURATIONS, entries
+from trapbench.problems.catalogue import get as catalogue_entry
 from trapbench.problems.errors import SpecError
+from trapbench.backends.registry import get
+from trapbench.backends.spin_chain import spin_chain_spectrum
 from trapbench.problems.references import (
     busch_even_level,
+    fermionized_levels,
+    wedge_levels,
     first_order_slope,
     noninteracting_levels,
     references_for,
@@ -200,7 +205,7 @@ def test_catalogue_covers_the_requested_configurations_and_regimes():
         for regime in ("strong-attractive", "weak", "intermediate", "strong-repulsive"):
             assert f"{n_up}+{n_down}/equal/{regime}" in names
     assert "2+1/40:6/weak" in names and "2+2/6:40/strong-repulsive" in names
-    entry = get("1+1/6:40/intermediate")
+    entry = catalogue_entry("1+1/6:40/intermediate")
     assert (entry.problem.up.mass, entry.problem.down.mass) == (1.0, pytest.approx(40 / 6))
     assert entry.problem.coupling == 2.0
     # the 1+1 entry's ground energy is the anchors' Table 2.2 value for kappa = 40/6 at g = 2
@@ -209,4 +214,49 @@ def test_catalogue_covers_the_requested_configurations_and_regimes():
 
 def test_catalogue_unknown_name_suggests_the_closest():
     with pytest.raises(SpecError, match="did you mean '2\\+1/equal/weak'"):
-        get("2+1/equal/waek")
+        catalogue_entry("2+1/equal/waek")
+
+
+@pytest.mark.parametrize("counts", [(1, 1), (2, 1), (3, 1), (2, 2), (3, 3)])
+def test_fermionized_levels_count_and_parities(counts):
+    n = sum(counts)
+    size = math.comb(n, counts[0])
+    problem = Problem.create(*counts, 1.0, states=size + 1)
+    levels = fermionized_levels(problem)
+    # the lowest level N^2/2 holds one state per spin ordering, the next is one quantum higher
+    assert levels == [n * n / 2] * size + [n * n / 2 + 1]
+    # the parity split of the ground manifold matches the spin chain's eigenvectors (another construction)
+    parities = spin_chain_spectrum(*counts).spatial_parity
+    for sector, sign in (("even", 1), ("odd", -1)):
+        sector_levels = fermionized_levels(problem.with_targets(parity=sector, states=size))
+        assert sector_levels.count(n * n / 2) == int(np.sum(parities == sign))
+
+
+def test_wedge_levels_reduce_to_fermionization_for_equal_masses():
+    problem = Problem.create(2, 1, 3.0, states=12)
+    assert wedge_levels(problem) == pytest.approx(fermionized_levels(problem), abs=1e-12)
+    assert wedge_levels(Problem.create(1, 2, 3.0, mass_up=2.5, mass_down=2.5, states=6)) == pytest.approx(
+        fermionized_levels(Problem.create(1, 2, 3.0, states=6)), abs=1e-12)
+
+
+@pytest.mark.parametrize("mass_up", [40 / 6, 0.15])
+def test_wedge_levels_are_the_large_g_limit_of_exact_diagonalization(mass_up):
+    # oscillator-ed at g = 30 and 100, extrapolated in 1/g (E = E_inf - A/g), reaches the wedge value
+    backend = get("oscillator-ed")
+    values, errors = [], []
+    for g in (30.0, 100.0):
+        result = backend.solve(Problem.create(2, 1, g, mass_up=mass_up))
+        values.append(result.energies[0])
+        errors.append(result.error_estimate)
+    limit = (100.0 * values[1] - 30.0 * values[0]) / 70.0
+    expected = wedge_levels(Problem.create(2, 1, 1.0, mass_up=mass_up))[0]
+    # the neglected O(1/g^2) term of the ladder: a few 1e-3 (the ED values themselves carry ~2e-3)
+    assert limit == pytest.approx(expected, abs=5e-3 + 3 * max(errors))
+    assert max(values) < expected  # levels approach the hard-core limit from below
+
+
+def test_two_body_infinite_coupling_limit_any_masses():
+    problem = Problem.create(1, 1, 1e7, mass_up=40 / 6, states=6)
+    limit = [r.value for r in references_for(problem) if r.quantity == "energy_g_inf"]
+    assert limit == [2.0, 2.0, 3.0, 3.0, 4.0, 4.0]
+    assert energies(problem) == pytest.approx(limit, abs=1e-5)  # Busch's roots at lambda ~ 1e7

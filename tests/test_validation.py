@@ -101,7 +101,7 @@ def test_exact_two_body_backend_passes_every_check():
     assert not failed_checks(verdicts)
     ran = {v.check for v in verdicts if v.status == "pass"}
     assert ran == {"non-interacting", "references", "weak-coupling-slope", "hellmann-feynman", "virial",
-                   "com-tower", "parity-labels", "antisymmetric-state", "species-swap"}
+                   "com-tower", "parity-labels", "antisymmetric-state", "monotonic-bounds", "species-swap"}
 
 
 def test_plug_in_without_base_class_is_checked_alike():
@@ -111,7 +111,7 @@ def test_plug_in_without_base_class_is_checked_alike():
 
 def test_wrong_interaction_sign_is_flagged():
     flagged = failed_checks(validate(WrongSignToy(), TWO_BODY_PROBLEMS))
-    assert {"references", "weak-coupling-slope", "hellmann-feynman", "virial"} <= flagged
+    assert {"references", "weak-coupling-slope", "hellmann-feynman", "virial", "monotonic-bounds"} <= flagged
     # g = 0 and the symmetries cannot see a sign error
     assert not flagged & {"non-interacting", "com-tower", "species-swap"}
 
@@ -147,6 +147,13 @@ def test_strong_coupling_backend_passes_where_it_applies():
     # it reports no <V_trap> and cannot reach g = 0: skipped, with the reason
     skipped = {v.check: v.reason for v in verdicts if v.status == "skip"}
     assert "trap_energy" in skipped["virial"] and "g > 0" in skipped["non-interacting"]
+
+
+def test_first_order_theory_far_outside_its_range_breaks_the_bounds():
+    # the perturbative backend is first order and claims no error bar: at g = 30 its 2+1 levels exceed
+    # the hard-core limit E(+inf) = 4.5 that no level at finite g can pass
+    verdicts = validate(get("perturbative"), [Problem.create(2, 1, 30.0, states=3)], checks=["monotonic-bounds"])
+    assert failed_checks(verdicts) == {"monotonic-bounds"}
 
 
 def test_unknown_parameter_is_an_input_error():
