@@ -169,3 +169,8 @@ def test_command_line_verdict_table_and_exit_code(capsys):
     verdicts = json.loads(capsys.readouterr().out)
     assert {v["status"] for v in verdicts} <= {"pass", "skip"} and any(v["status"] == "pass" for v in verdicts)
     assert main(["validate", "--backend", "two-body", "--absolute", "-1"]) == 2
+    # a problem of the user's own, inline, one verdict per value of g
+    assert main(["validate", "-b", "two-body", "--up", "1", "--down", "1", "--g", "0.7,-3", "--catalogue", "0",
+                 "--check", "references"]) == 0
+    out = capsys.readouterr().out
+    assert "g = 0.7" in out and "g = -3" in out and out.count("PASS") == 2

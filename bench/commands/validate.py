@@ -1,4 +1,8 @@
-"""``trapbench validate --backend NAME``: solver-independent physics checks and the catalogue's references."""
+"""``trapbench validate --backend NAME [PROBLEM]``: solver-independent physics checks and the catalogue's references.
+
+Without a problem (spec file or --up/--down/--g) the checks run on small built-in problems
+(``bench.validation.default_problems``); with one, on each of its values of g.
+"""
 
 from __future__ import annotations
 
@@ -8,7 +12,7 @@ from dataclasses import asdict
 
 from ...backends import registry
 from ...problems.errors import SpecError
-from .problem_options import parse_params
+from .problem_options import add_problem_options, parse_params, problem_from_args
 
 NAME = "validate"
 HELP = "check a backend against exact physics (virial, Hellmann-Feynman, towers, symmetries) and the references"
@@ -19,6 +23,7 @@ def register(parser: argparse.ArgumentParser) -> None:
     from ..validation import CHECKS, Tolerance
 
     default = Tolerance()
+    add_problem_options(parser, required=False)
     parser.add_argument("--backend", "-b", required=True, metavar="NAME", help="the backend to validate")
     parser.add_argument("--param", "-p", action="append", metavar="KEY=VALUE",
                         help="numerical parameter of the backend (repeatable)")
@@ -44,8 +49,9 @@ def run(args: argparse.Namespace) -> int:
             raise SpecError(f"--{field.replace('_', '-')}", f"got {getattr(args, field)}; must be >= 0")
     backend = registry.get(args.backend)
     tolerance = Tolerance(args.absolute, args.relative, args.error_factor)
-    verdicts = validate(backend, params=parse_params(args.param), tolerance=tolerance, checks=args.check,
-                        catalogue_max_particles=args.catalogue)
+    problem = problem_from_args(args)  # None: the built-in small problems
+    verdicts = validate(backend, problems=None if problem is None else problem.points(), params=parse_params(args.param),
+                        tolerance=tolerance, checks=args.check, catalogue_max_particles=args.catalogue)
     if args.json:
         print(json.dumps([asdict(v) for v in verdicts], indent=1))
     else:
