@@ -202,3 +202,15 @@ def test_backend_refuses_with_reasons(backend, problem, reason):
 def test_backend_warns_when_g_is_not_large(backend):
     assert backend.solve(Problem.create(3, 3, 5.0)).warnings
     assert not backend.solve(Problem.create(1, 1, 50.0)).warnings
+
+
+def test_spin_resolved_densities_are_the_limit_of_exact_diagonalization(backend):
+    # 2+1: oscillator-ed densities approach the g = inf spin-chain densities like 1/g
+    ed = get("oscillator-ed")
+    gaps = []
+    for g in (30.0, 60.0):
+        problem = Problem.create(2, 1, g, observables=["density"], grid_points=121)
+        exact, strong = ed.solve(problem), backend.solve(problem)
+        gaps.append(max(np.max(np.abs(exact.observables[k].values - strong.observables[k].values))
+                        for k in ("density_up", "density_down")))
+    assert gaps[1] < 0.6 * gaps[0] and gaps[1] < 0.015  # peak densities are ~0.6
