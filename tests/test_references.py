@@ -260,3 +260,18 @@ def test_two_body_infinite_coupling_limit_any_masses():
     limit = [r.value for r in references_for(problem) if r.quantity == "energy_g_inf"]
     assert limit == [2.0, 2.0, 3.0, 3.0, 4.0, 4.0]
     assert energies(problem) == pytest.approx(limit, abs=1e-5)  # Busch's roots at lambda ~ 1e7
+
+
+def test_catalogue_command_lists_entries_and_shows_sources(capsys):
+    from trapbench.bench.cli import main
+
+    assert main(["catalogue"]) == 0
+    assert "6+6/equal/strong-repulsive" in capsys.readouterr().out
+    assert main(["catalogue", "1+1/equal/intermediate"]) == 0
+    out = capsys.readouterr().out
+    assert "1.48740235416" in out and "Busch" in out  # anchors Table 2.1, g = 2
+    assert main(["catalogue", "1+1/equal/intermediate", "--toml"]) == 0
+    from trapbench.problems.toml_io import parse_problem
+
+    assert parse_problem(capsys.readouterr().out).key == catalogue_entry("1+1/equal/intermediate").problem.key
+    assert main(["catalogue", "9+9/equal/weak"]) == 2
