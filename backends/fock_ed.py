@@ -52,7 +52,7 @@ import scipy.sparse as sp
 from scipy.sparse.linalg import LinearOperator, eigsh
 from scipy.special import comb
 
-DENSE_LIMIT = 400  # below this dimension the dense eigensolver is faster and fully robust
+DENSE_LIMIT = 120  # below this dimension the dense eigensolver is used (robust; cheap at this size)
 SCRATCH_ELEMENTS = 2.5e7  # bound on intermediate arrays of the matvec (8 bytes each)
 
 
@@ -380,28 +380,34 @@ class ProductHamiltonian:
             per_chunk = max(1, min(len(terms), int(SCRATCH_ELEMENTS // max(1, n_u * n_d))))
         for start in range(0, len(terms), per_chunk):
             chunk = terms[start : start + per_chunk]
-            ups, downs, weights = [], [], []
+            ups, downs = [], []
             for weight, ru, rd, sector in chunk:
                 pu = c.parity_up if sector else None
                 pd = c.parity_down if sector else None
-                ups.append(_density_operator(self.basis.up, ru, pu, sector))
+                ups.append(weight * _density_operator(self.basis.up, ru, pu, sector))
                 downs.append(_density_operator(self.basis.down, rd, pd, sector))
-                weights.append(weight)
-            down_stack = sp.vstack(downs).tocsc()  # (K n_d) x n_d
             k = len(chunk)
-            # step 1 per rectangle: T[:, rows] = down_stack[:, cols] @ Psi[rows, cols]^T
-            step1 = [down_stack[:, c0:c1].tocsr() for _, _, c0, c1 in self.basis.rectangles]
-            # step 2 per rectangle: out[rows, cols] += hstack_k(w_k U_k[rows, :]) @ T2[:, cols]
-            up_rows = [
-                sp.hstack([wk * U[r0:r1, :] for wk, U in zip(weights, ups)]).tocsr()
-                for r0, r1, _, _ in self.basis.rectangles
-            ]
-            self._chunks.append((k, step1, up_rows))
-        del n_u, n_d
+            down_stack = sp.vstack(downs).tocsc()  # (K n_d) x n_d: column j holds rows k*n_d + j'
+            up_stack = sp.hstack(ups).tocsr()  # n_u x (K n_u): row i holds columns k*n_u + i'
+            for m in (down_stack, up_stack):
+                m.sum_duplicates()
+            # renumber up columns to i'*K + k: the scratch T[i', k*n_d + j] is then read row by row
+            up_stack = sp.csr_matrix(
+                (up_stack.data, (up_stack.indices % n_u) * k + up_stack.indices // n_u, up_stack.indptr),
+                shape=up_stack.shape,
+            )
+            self._chunks.append((len(chunk), down_stack, up_stack))
+        rows_c0 = np.zeros(n_u, np.int64)
+        rows_c1 = np.zeros(n_u, np.int64)
+        for r0, r1, c0, c1 in self.basis.rectangles:
+            rows_c0[r0:r1], rows_c1[r0:r1] = c0, c1
+        self._row_columns = (rows_c0, rows_c1)
 
     # -------------------------------------------------------------- action
     def apply_matrix(self, psi: np.ndarray) -> np.ndarray:
         """H acting on padded coefficient matrices psi[i_up, i_down, v] (zeros outside the basis)."""
+        if np.iscomplexobj(psi):  # H is real: act on both parts
+            return self.apply_matrix(psi.real.copy()) + 1j * self.apply_matrix(psi.imag.copy())
         n_u, n_d, nv = psi.shape
         if self._diag_one_body:
             out = self._one_body_diag[:, :, None] * psi
@@ -411,16 +417,18 @@ class ProductHamiltonian:
             out += down.reshape(n_d, n_u, nv).transpose(1, 0, 2)
         if self._interaction_diag is not None:
             out += self._interaction_diag[:, :, None] * psi
-        rect = self.basis.rectangles
-        for k, step1, up_rows in self._chunks:
-            tt = np.zeros((k * n_d, n_u, nv), dtype=psi.dtype)
-            for (r0, r1, c0, c1), s1 in zip(rect, step1):
-                block = psi[r0:r1, c0:c1, :].transpose(1, 0, 2).reshape(c1 - c0, (r1 - r0) * nv)
-                tt[:, r0:r1, :] = (s1 @ block).reshape(k * n_d, r1 - r0, nv)
-            t2 = tt.reshape(k, n_d, n_u, nv).transpose(0, 2, 1, 3).reshape(k * n_u, n_d, nv)
-            for (r0, r1, c0, c1), s2 in zip(rect, up_rows):
-                block = t2[:, c0:c1, :].reshape(k * n_u, (c1 - c0) * nv)
-                out[r0:r1, c0:c1, :] += self.g * (s2 @ block).reshape(r1 - r0, c1 - c0, nv)
+        if self._chunks:
+            step_down, step_up = _kernels()
+            c0, c1 = self._row_columns
+            work = np.ascontiguousarray(psi.transpose(2, 0, 1), dtype=float)  # (nv, n_u, n_d)
+            result = np.zeros_like(work)
+            for k, down_stack, up_stack in self._chunks:
+                t = np.zeros((nv, n_u, k * n_d))
+                step_down(work, c0, c1, down_stack.indptr, down_stack.indices, down_stack.data, t)
+                step_up(
+                    t.reshape(nv, n_u * k, n_d), c0, c1, up_stack.indptr, up_stack.indices, up_stack.data, self.g, result
+                )
+            out += result.transpose(1, 2, 0)
         out[~self._mask] = 0.0
         return out
 
@@ -471,6 +479,49 @@ class ProductHamiltonian:
             raise ValueError(f"dimension {dim} is too large for a dense matrix")
         matrix = self.matmat(np.eye(dim))
         return 0.5 * (matrix + matrix.T)
+
+
+_KERNELS = None
+
+
+def _kernels():
+    """Compiled matvec kernels of the factorized interaction (numba, compiled once and cached).
+
+    step_down: T[v, i, k n_d + j'] = sum_{j in cols(i)} D_k[j', j] psi[v, i, j]  (D stacked, CSC)
+    step_up:   out[v, i, j] += g sum_{(k, i')} (w_k U_k)[i, i'] T[v, i' K + k, j], j in cols(i)  (CSR,
+               columns renumbered i' K + k)
+    Work = nonzeros x columns kept; each configuration's scratch row T[i] stays in cache.
+    """
+    global _KERNELS
+    if _KERNELS is None:
+        import numba
+
+        @numba.njit(cache=True)
+        def step_down(psi, c0, c1, indptr, indices, data, t):
+            for v in range(psi.shape[0]):
+                for i in range(psi.shape[1]):
+                    for j in range(c0[i], c1[i]):
+                        x = psi[v, i, j]
+                        if x == 0.0:
+                            continue
+                        for p in range(indptr[j], indptr[j + 1]):
+                            t[v, i, indices[p]] += data[p] * x
+
+        @numba.njit(cache=True)
+        def step_up(t, c0, c1, indptr, indices, data, g, out):
+            for v in range(out.shape[0]):
+                for i in range(out.shape[1]):
+                    a, b = c0[i], c1[i]
+                    if a == b:
+                        continue
+                    for p in range(indptr[i], indptr[i + 1]):
+                        col = indices[p]
+                        val = g * data[p]
+                        for j in range(a, b):
+                            out[v, i, j] += val * t[v, col, j]
+
+        _KERNELS = (step_down, step_up)
+    return _KERNELS
 
 
 def _is_diagonal(matrix: np.ndarray) -> bool:
@@ -652,7 +703,7 @@ def contact_expectation(gamma: np.ndarray, contact: ContactFactorization) -> flo
     f_u = orbital_products(contact.values_up).reshape(len(contact.weights), M_u * M_u)
     f_d = orbital_products(contact.values_down).reshape(len(contact.weights), M_d * M_d)
     g2 = gamma.reshape(M_u * M_u, M_d * M_d)
-    return float(np.einsum("q,qa,ab,qb->", np.asarray(contact.weights), f_u, g2, f_d).real)
+    return float((np.asarray(contact.weights) @ np.sum((f_u @ g2) * f_d, axis=1)).real)
 
 
 def one_body_expectation(rho: np.ndarray, matrix: np.ndarray) -> float:

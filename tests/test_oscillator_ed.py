@@ -1,0 +1,205 @@
+"""Checks of the ``oscillator-ed`` backend against exact results from outside its code.
+
+References: the ``two-body`` backend (Busch et al., Found. Phys. 28, 549 (1998), an independent
+root of the 1D Busch equation), Table 2.1 of /work/shared/physics-anchors.md (the same equation in
+30-digit arithmetic), the ``perturbative`` backend and the closed-form first-order coefficients
+(anchors section 3.2), non-interacting energies (closed form), the totally antisymmetric states
+(N spinless fermions, closed form), the centre-of-mass ladder (exact separation for a common omega),
+the virial theorem E = 2<V> + (g/2) dE/dg (anchors section 3.4) and Hellmann-Feynman.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from trapbench.backends.base import Unsupported
+from trapbench.backends.extrapolation import extrapolate_power_law
+from trapbench.backends.oscillator_ed import OscillatorEDBackend
+from trapbench.backends.registry import get
+from trapbench.problems.errors import SpecError
+from trapbench.problems.spec import Problem
+
+ED = OscillatorEDBackend()
+MASSES = [1.0, 40 / 6]
+COUPLINGS = [-3.0, -1.0, 0.5, 2.0, 10.0]
+
+
+def exact_pair(g: float, mass_down: float) -> float:
+    return get("two-body").solve(Problem.create(1, 1, g, mass_down=mass_down)).energies[0]
+
+
+def test_two_body_reference_agrees_with_anchor_table():
+    """The reference itself: anchors Table 2.1 (equal masses) and Table 2.2 (mass ratio 40/6)."""
+    assert exact_pair(2.0, 1.0) == pytest.approx(1.487402354161, abs=1e-11)
+    assert exact_pair(-3.0, 1.0) == pytest.approx(-1.698044751303, abs=1e-11)
+    assert exact_pair(10.0, 40 / 6) == pytest.approx(1.88462769715, abs=1e-10)
+
+
+@pytest.mark.parametrize("mass_down", MASSES)
+@pytest.mark.parametrize("g", COUPLINGS)
+def test_renormalized_pair_is_exact(g, mass_down):
+    """1+1 with the renormalized interaction reproduces the exact ground energy (by construction,
+    through an independent two-body root) at any cutoff, to <= 1e-6."""
+    problem = Problem.create(1, 1, g, mass_down=mass_down, parity="even")
+    result = ED.solve(problem, cutoff=10, ladder=1)
+    assert result.diagnostics["interaction"] == "renormalized"
+    assert abs(result.energies[0] - exact_pair(g, mass_down)) <= 1e-6
+
+
+@pytest.mark.parametrize("mass_down", MASSES)
+@pytest.mark.parametrize("g", COUPLINGS)
+def test_bare_pair_extrapolation_covers_exact(g, mass_down):
+    """The bare interaction converges slowly (error ~ c^-1/2); the extrapolated value and its error
+    bar must cover the exact energy, and the raw largest-cutoff value must be visibly off."""
+    problem = Problem.create(1, 1, g, mass_down=mass_down, parity="even")
+    result = ED.solve(problem, renormalized=False, cutoff=40, ladder=3, ladder_step=4)
+    exact = exact_pair(g, mass_down)
+    assert result.diagnostics["interaction"] == "bare"
+    raw_error = abs(result.diagnostics["raw_energies"][-1][0] - exact)
+    assert raw_error > 1e-3  # slow convergence of the bare contact interaction
+    assert abs(result.energies[0] - exact) <= result.error_estimate
+    assert result.error_estimate < raw_error  # the extrapolation is an improvement
+
+
+def test_bare_convergence_power_is_one_half():
+    """Measured exponent of the bare-interaction error, E(c) - E_inf ~ c^-p: p close to 1/2
+    (documented in the backend; the delta function's oscillator expansion)."""
+    problem = Problem.create(1, 1, 2.0, parity="even")
+    result = ED.solve(problem, renormalized=False, cutoff=40, ladder=5, ladder_step=6)
+    raw = [row[0] for row in result.diagnostics["raw_energies"]]
+    exact = exact_pair(2.0, 1.0)
+    cutoffs = np.array(result.diagnostics["cutoffs"], float)
+    slope = np.polyfit(np.log(cutoffs), np.log(np.array(raw) - exact), 1)[0]
+    assert -slope == pytest.approx(0.5, abs=0.05)
+    fit = extrapolate_power_law(cutoffs, raw)
+    assert fit.parameters["power"] == pytest.approx(0.5, abs=0.1)
+
+
+@pytest.mark.parametrize("counts,mass_down", [((2, 2), 1.0), ((3, 2), 40 / 6), ((3, 1), 1.0)])
+def test_noninteracting_energy_is_exact(counts, mass_down):
+    """g = 0: E = sum_s (N_s^2 / 2) omega (closed form), for any N and masses."""
+    problem = Problem.create(*counts, 0.0, mass_down=mass_down, states=2)
+    result = ED.solve(problem, cutoff=4, ladder=1)
+    assert result.energies[0] == pytest.approx((counts[0] ** 2 + counts[1] ** 2) / 2, abs=1e-12)
+
+
+@pytest.mark.parametrize(
+    "counts,c1_sqrt2pi", [((1, 1), 1.0), ((2, 1), 1.5), ((2, 2), 11 / 4), ((3, 1), 15 / 8), ((3, 3), 321 / 64)]
+)
+def test_first_order_slope_matches_closed_form(counts, c1_sqrt2pi):
+    """dE/dg at g = 0 = <sum delta> in the non-interacting ground state: anchors Table 3.2."""
+    result = ED.solve(Problem.create(*counts, 0.0), cutoff=4, ladder=1)
+    assert result.scalars["delta"] == pytest.approx(c1_sqrt2pi / math.sqrt(2 * math.pi), rel=1e-12)
+
+
+def test_first_order_slope_matches_perturbative_backend_unequal_masses():
+    problem = Problem.create(2, 1, 0.0, mass_down=40 / 6)
+    slope = get("perturbative").solve(problem).states[0]["first_order_coefficient"]
+    result = ED.solve(problem, cutoff=4, ladder=1)
+    assert result.scalars["delta"] == pytest.approx(slope, rel=1e-10)
+    # and the finite-difference slope of the energy itself (second order is O(h^2))
+    h = 1e-4
+    e_plus = ED.solve(Problem.create(2, 1, h, mass_down=40 / 6), cutoff=12, ladder=1, renormalized=False)
+    e_minus = ED.solve(Problem.create(2, 1, -h, mass_down=40 / 6), cutoff=12, ladder=1, renormalized=False)
+    assert (e_plus.energies[0] - e_minus.energies[0]) / (2 * h) == pytest.approx(slope, rel=1e-6)
+
+
+@pytest.mark.parametrize("g", [-2.0, 3.0])
+def test_totally_antisymmetric_level_does_not_move(g):
+    """Equal masses: the spin-polarized-like state of N spinless fermions (energy N^2/2 = 4.5 for
+    2+1) does not feel a contact interaction and appears in the spectrum at every g."""
+    problem = Problem.create(2, 1, g, states=8, parity="odd")
+    result = ED.solve(problem, cutoff=10, ladder=1)
+    assert min(abs(e - 4.5) for e in result.energies) < 1e-9
+
+
+def test_centre_of_mass_ladder_unequal_masses():
+    """Common omega: every level has a copy at E + 1 (centre-of-mass excitation), any masses; the
+    COM label comes from <N_com> of the eigenvector."""
+    problem = Problem.create(2, 1, 2.0, mass_down=40 / 6, states=4)
+    result = ED.solve(problem, cutoff=16, ladder=3, ladder_step=4)
+    ground, states = result.energies[0], result.states
+    assert states[0]["com"] == 0
+    excited = [i for i, s in enumerate(states) if s["com"] == 1]
+    assert excited, states
+    i = excited[0]
+    assert states[i]["parity"] == -states[0]["parity"]
+    tolerance = result.energy_errors[0] + result.energy_errors[i]
+    assert abs(result.energies[i] - ground - 1.0) <= tolerance + 1e-8
+
+
+@pytest.mark.parametrize("renormalized", [False, True])
+def test_hellmann_feynman(renormalized):
+    """<sum delta> equals dE/dg by central finite differences at a fixed cutoff (for the
+    renormalized interaction, through dg_eff/dg of the 1+1 problem)."""
+    h = 1e-4
+    kwargs = dict(cutoff=10, ladder=1, renormalized=renormalized)
+    mid = ED.solve(Problem.create(2, 1, 1.5, mass_down=40 / 6), **kwargs)
+    plus = ED.solve(Problem.create(2, 1, 1.5 + h, mass_down=40 / 6), **kwargs)
+    minus = ED.solve(Problem.create(2, 1, 1.5 - h, mass_down=40 / 6), **kwargs)
+    slope = (plus.energies[0] - minus.energies[0]) / (2 * h)
+    assert mid.scalars["delta"] == pytest.approx(slope, rel=1e-6)
+
+
+def test_virial_residual_vanishes_with_the_cutoff():
+    """Virial theorem (anchors 3.4): E - 2<V_trap> - (g/2) dE/dg -> 0 as the basis converges; the
+    delta and trap energy also approach the exact two-body values (two-body backend)."""
+    problem = Problem.create(1, 1, 2.0, parity="even")
+    coarse = ED.solve(problem, cutoff=8, ladder=1, renormalized=False)
+    fine = ED.solve(problem, cutoff=40, ladder=1, renormalized=False)
+    assert abs(fine.diagnostics["virial_residual"]) < 0.5 * abs(coarse.diagnostics["virial_residual"])
+    assert abs(fine.diagnostics["virial_residual"]) < 0.02
+    exact = get("two-body").solve(problem)
+    assert fine.scalars["trap_energy"] == pytest.approx(exact.scalars["trap_energy"], abs=0.02)
+
+
+def test_noise_integral_vanishes_at_zero_and_grows_quadratically():
+    """C(p1, p2) = G - n_up n_down is exactly 0 for a product of determinants (g = 0) and linear in g
+    for small g, so its integral of C^2 grows as g^2 (sqrt of it linearly)."""
+    values = {}
+    for g in (0.0, 0.01, 0.02):
+        problem = Problem.create(2, 1, g, observables=["noise"], grid_points=41)
+        values[g] = ED.solve(problem, cutoff=8, ladder=1, renormalized=False).scalars["noise_integral"]
+    assert values[0.0] < 1e-20
+    assert values[0.01] > 1e-8
+    assert values[0.02] / values[0.01] == pytest.approx(4.0, rel=0.03)
+
+
+def test_observables_are_normalized_and_match_two_body_density():
+    problem = Problem.create(
+        1, 1, 2.0, observables=["density", "momentum", "obdm", "pair_position", "pair_momentum", "noise"],
+        grid_points=241,
+    )
+    result = ED.solve(problem, cutoff=30, ladder=1)
+    obs = result.observables
+    x = obs["density_up"].axes["x"]
+    dx = x[1] - x[0]
+    p = obs["momentum_up"].axes["p"]
+    dp = p[1] - p[0]
+    assert np.sum(obs["density_up"].values) * dx == pytest.approx(1.0, abs=1e-6)
+    assert np.sum(obs["momentum_down"].values) * dp == pytest.approx(1.0, abs=1e-6)
+    assert np.trace(obs["obdm_up"].values) * dx == pytest.approx(1.0, abs=1e-6)
+    assert np.sum(obs["pair_position"].values) * dx * dx == pytest.approx(1.0, abs=1e-5)  # grid ends at x_max
+    assert np.sum(obs["pair_momentum"].values) * dp * dp == pytest.approx(1.0, abs=1e-6)
+    assert abs(np.sum(obs["noise"].values) * dp * dp) < 1e-6
+    # the density of the exact solution (two-body backend, independent construction)
+    exact = get("two-body").solve(Problem.create(1, 1, 2.0, observables=["density"], grid_points=241))
+    assert np.max(np.abs(obs["density_up"].values - exact.observables["density_up"].values)) < 5e-3
+    # pair correlation of the repulsive pair is suppressed at coincidence x_up = x_down = 0
+    g_pair = obs["pair_position"].values
+    centre = len(x) // 2
+    assert g_pair[centre, centre] < obs["density_up"].values[centre] * obs["density_down"].values[centre]
+
+
+def test_bad_parameters_and_unsupported_problems():
+    problem = Problem.create(1, 1, 1.0)
+    with pytest.raises(SpecError, match="param.truncation"):
+        ED.solve(problem, truncation="shells")
+    with pytest.raises(SpecError, match="param.cutoff"):
+        ED.solve(problem, cutoff=4, ladder=4, ladder_step=2)
+    box = Problem.from_dict({"up": {"count": 1}, "down": {"count": 1}, "trap": {"shape": "box", "half_width": 2}, "interaction": {"g": 1}})
+    with pytest.raises(Unsupported, match="harmonic"):
+        ED.solve(box)
