@@ -375,7 +375,10 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
     for i, (source, table) in enumerate(by_source, start=1):
         name = f"agreement_{i}"
         tables[name] = table
-        document.add(Heading(3, f"Reference [{i}]"), Paragraph(f"Source: {source}."),
+        within = int(table["within tolerance"].sum())
+        short = source.split(":")[0].split(",")[0].split(" (")[0]
+        document.add(Heading(3, f"[{i}] {short}"),
+                     Paragraph(f"Source: {source}. {within} of {len(table)} rows agree within the suite tolerance."),
                      Table(table, "One row per problem, level and backend: its most converged (costliest) run;"
                            " 'runs agreeing' counts all its runs within the suite tolerance.", name))
     slopes = slope_agreement(frame)
