@@ -29,9 +29,9 @@ def register(parser: argparse.ArgumentParser) -> None:
                         help="numerical parameter of the backend (repeatable)")
     parser.add_argument("--check", action="append", metavar="NAME", choices=list(CHECKS),
                         help="run only this check (repeatable); default: all of " + ", ".join(CHECKS))
-    parser.add_argument("--catalogue", type=int, default=2, metavar="N",
+    parser.add_argument("--catalogue", type=int, default=3, metavar="N",
                         help="also compare with the references of every catalogue entry with at most N particles"
-                             " (default 2; 0 turns it off)")
+                             " (default 3; 0 turns it off)")
     parser.add_argument("--absolute", type=float, default=default.absolute, metavar="TOL",
                         help=f"absolute tolerance in hbar*omega (default {default.absolute:g})")
     parser.add_argument("--relative", type=float, default=default.relative, metavar="TOL",
