@@ -31,6 +31,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from ..backends.provenance import library_version, source_revision
+from ..backends.provenance import machine as host_machine
 from . import report_figures
 from .report_figures import mass_ratio, ratio_text
 from .tables import (_cell, _ok, _slug, accuracy_vs_cost_table, attach_references, cost_vs_particle_number_table,
@@ -453,6 +455,12 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
     tables["machine"] = machine
     document.add(Table(machine, "The sweeps whose results this report shows (recorded by the store with each run).",
                        "machine"))
+    here, git = host_machine(), source_revision()
+    commit = (git["commit"] or "unknown")[:12] + (" (modified tree)" if git["dirty"] else "")
+    document.add(Paragraph(f"This report was written on {here['host']} ({here['cpu']}, {here['cores']} cores,"
+                           f" {here['system']}, Python {here['python']}) by trapbench {library_version('trapbench')}"
+                           f" at commit `{commit}` with pandas {library_version('pandas')} and matplotlib"
+                           f" {library_version('matplotlib')}."))
     return document, tables
 
 
