@@ -11,8 +11,16 @@ import math
 
 import numpy as np
 import pytest
+from threadpoolctl import threadpool_limits
 
 from trapbench.backends import fock_ed as fe
+
+
+@pytest.fixture(autouse=True)
+def one_blas_thread():
+    """Dense LAPACK on a shared 2-core machine is many times slower with two threads."""
+    with threadpool_limits(limits=1):
+        yield
 
 
 # ----------------------------------------------------------------------------- brute force
@@ -235,11 +243,14 @@ def test_observables_of_a_correlated_state_match_brute_force():
     full[states] = vec
     rho_u, rho_d = fe.one_body_density_matrices(basis, vec)
     gamma = fe.pair_tensor(basis, vec)
+    # (c+_a c_b)^dagger psi = c+_b c_a psi and (d+_c d_d) psi for every pair; Gamma = <left_ab | right_cd>
+    left = {(a, b): c[b].T @ (c[a] @ full) for a in range(M) for b in range(M)}
+    right = {(a, b): c[M + a].T @ (c[M + b] @ full) for a in range(M) for b in range(M)}
     for a in range(M):
         for b in range(M):
-            assert rho_u[a, b] == pytest.approx(full.conj() @ c[a].T @ c[b] @ full, abs=1e-12)
-            assert rho_d[a, b] == pytest.approx(full.conj() @ c[M + a].T @ c[M + b] @ full, abs=1e-12)
+            assert rho_u[a, b] == pytest.approx(np.vdot(left[(a, b)], full), abs=1e-12)
+            assert rho_d[a, b] == pytest.approx(np.vdot(full, right[(a, b)]), abs=1e-12)
             for cc in range(M):
                 for d in range(M):
-                    op = c[a].T @ c[b] @ c[M + cc].T @ c[M + d]
-                    assert gamma[a, b, cc, d] == pytest.approx(full.conj() @ op @ full, abs=1e-12)
+                    expected = np.vdot(left[(a, b)], right[(cc, d)])  # <psi| c+_a c_b d+_c d_d |psi>
+                    assert gamma[a, b, cc, d] == pytest.approx(expected, abs=1e-12)

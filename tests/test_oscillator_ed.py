@@ -14,6 +14,7 @@ import math
 
 import numpy as np
 import pytest
+from threadpoolctl import threadpool_limits
 
 from trapbench.backends.base import Unsupported
 from trapbench.backends.extrapolation import extrapolate_power_law
@@ -21,6 +22,14 @@ from trapbench.backends.oscillator_ed import OscillatorEDBackend
 from trapbench.backends.registry import get
 from trapbench.problems.errors import SpecError
 from trapbench.problems.spec import Problem
+
+
+@pytest.fixture(autouse=True)
+def one_blas_thread():
+    """Dense LAPACK on a shared 2-core machine is many times slower with two threads."""
+    with threadpool_limits(limits=1):
+        yield
+
 
 ED = OscillatorEDBackend()
 MASSES = [1.0, 40 / 6]
