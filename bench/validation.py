@@ -29,6 +29,11 @@ Checks (the property, and where it holds):
   for g < 0, with E_k(0) the oscillator towers and E_k(+inf) the hard-core levels of
   ``references_for`` (quantity "energy_g_inf"; equal masses, or 2+1 with any masses).
 - ``species-swap``: relabelling up <-> down (counts, masses, frequencies) leaves the spectrum unchanged.
+- ``normalization``: the ground state's densities integrate to N_s over x and its momentum
+  distributions to N_s over p (the shared conventions of ``backends.result.OBSERVABLE_NAMES``); the
+  momentum tail beyond the grid, 2 C / (3 p_max^3) from n_s(p) ~ C/p^4, is allowed for.
+- ``contact-convention``: the reported contact equals (2 mu)^2 g^2 <sum delta> (the shared
+  definition in ``backends.result.SCALAR_NAMES``), mu the reduced mass.
 
 Tolerances: a value passes when |measured - expected| <= absolute + relative |expected| +
 error_factor (backend's own error estimate for the values involved + reference uncertainty);
@@ -42,6 +47,8 @@ import math
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
+
+import numpy as np
 
 from ..backends.base import Unsupported
 from ..backends.result import Result
@@ -369,6 +376,57 @@ def check_species_swap(runner: Runner, problem: Problem, tolerance: Tolerance) -
     return _verdict(name, problem, deviation, allowed, f"{count} levels with up and down exchanged (worst: level {index})")
 
 
+NORMALIZATION_TOLERANCE = 1e-4  # relative: trapezoidal integration of smooth, decaying profiles
+
+
+def check_normalization(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "normalization"
+    result, reasons = None, []
+    for wanted in (["density", "momentum"], ["density"], ["momentum"]):
+        try:
+            result = runner.solve(problem.with_targets(states=1, observables=wanted))
+            break
+        except Skip as exc:
+            reasons.append(str(exc))
+    if result is None:
+        raise Skip(reasons[-1])
+    counts = {"up": problem.up.count, "down": problem.down.count}
+    _, p_max = problem.extent()
+    tail = 2 * abs(result.scalars.get("contact", 0.0)) / (3 * p_max**3)
+    tested, worst = [], (0.0, 1.0)
+    for kind, axis in (("density", "x"), ("momentum", "p")):
+        for species, count in counts.items():
+            observable = result.observables.get(f"{kind}_{species}")
+            if observable is None:
+                continue
+            grid = observable.axes[axis]
+            integral = float(np.trapezoid(observable.values, grid))
+            allowed = tolerance.allowed(count) + NORMALIZATION_TOLERANCE * count + (tail if kind == "momentum" else 0.0)
+            tested.append(f"{kind}_{species}")
+            if abs(integral - count) / allowed > worst[0] / worst[1]:
+                worst = (abs(integral - count), allowed)
+            if abs(integral - count) > allowed:
+                return Verdict(name, problem.describe(), "fail",
+                               f"{kind}_{species} integrates to {integral:.8g}, expected N_{species} = {count}",
+                               abs(integral - count), allowed)
+    if not tested:
+        raise Skip(f"{result.backend} returned no density_* or momentum_* observable")
+    return _verdict(name, problem, *worst, f"{', '.join(tested)} integrate to N_s")
+
+
+def check_contact_convention(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    name = "contact-convention"
+    result = runner.solve(_with_states(problem, 1))
+    if not {"contact", "delta"} <= set(result.scalars):
+        raise Skip(f"{result.backend} does not report both 'contact' and 'delta'")
+    mu = problem.reduced_mass()
+    expected = (2 * mu) ** 2 * problem.coupling**2 * result.scalars["delta"]
+    deviation = abs(result.scalars["contact"] - expected)
+    allowed = tolerance.absolute + 1e-9 * abs(expected)  # a definition: only rounding is allowed
+    return _verdict(name, problem, deviation, allowed,
+                    f"contact {result.scalars['contact']:.8g} vs (2 mu)^2 g^2 <sum delta> = {expected:.8g}")
+
+
 CHECKS: dict[str, Callable[[Runner, Problem, Tolerance], Verdict]] = {
     "non-interacting": check_noninteracting,
     "references": check_references,
@@ -380,6 +438,8 @@ CHECKS: dict[str, Callable[[Runner, Problem, Tolerance], Verdict]] = {
     "antisymmetric-state": check_antisymmetric_state,
     "monotonic-bounds": check_monotonic_bounds,
     "species-swap": check_species_swap,
+    "normalization": check_normalization,
+    "contact-convention": check_contact_convention,
 }
 
 

@@ -73,6 +73,30 @@ class OffsetToy(TwoBodyBackend):
                         2e-4 if self.honest else None, errors)
 
 
+class ContactConventionToy(TwoBodyBackend):
+    """Reports the contact as g^2 <sum delta>, forgetting the (2 mu)^2 of the shared definition."""
+
+    name = "toy-contact"
+
+    def compute(self, problem, params):
+        solution = super().compute(problem, params)
+        solution.scalars["contact"] = problem.coupling**2 * solution.scalars["delta"]
+        return solution
+
+
+class DensityNormalizationToy(TwoBodyBackend):
+    """Returns densities normalized to 2 N_s (e.g. summed over both spins by mistake)."""
+
+    name = "toy-density"
+
+    def compute(self, problem, params):
+        solution = super().compute(problem, params)
+        for key in ("density_up", "density_down"):
+            if key in solution.observables:
+                solution.observables[key] = replace(solution.observables[key], values=2 * solution.observables[key].values)
+        return solution
+
+
 class PlugIn:
     """A third-party object with only name, supports and solve (no Backend base class)."""
 
@@ -101,7 +125,8 @@ def test_exact_two_body_backend_passes_every_check():
     assert not failed_checks(verdicts)
     ran = {v.check for v in verdicts if v.status == "pass"}
     assert ran == {"non-interacting", "references", "weak-coupling-slope", "hellmann-feynman", "virial",
-                   "com-tower", "parity-labels", "antisymmetric-state", "monotonic-bounds", "species-swap"}
+                   "com-tower", "parity-labels", "antisymmetric-state", "monotonic-bounds", "species-swap",
+                   "normalization", "contact-convention"}
 
 
 def test_plug_in_without_base_class_is_checked_alike():
@@ -124,6 +149,13 @@ def test_missing_factor_two_in_the_trap_is_flagged():
 def test_dropped_state_is_flagged():
     flagged = failed_checks(validate(DroppedStateToy(), TWO_BODY_PROBLEMS))
     assert {"references", "antisymmetric-state", "non-interacting"} <= flagged
+
+
+def test_observable_conventions_are_checked():
+    # unequal masses: (2 mu)^2 = 4 (40/6)^2 / (46/6)^2 differs from 1
+    problems = [Problem.create(1, 1, 2.0, mass_up=40 / 6)]
+    assert failed_checks(validate(ContactConventionToy(), problems, checks=["contact-convention"])) == {"contact-convention"}
+    assert failed_checks(validate(DensityNormalizationToy(), problems, checks=["normalization"])) == {"normalization"}
 
 
 def test_error_estimates_widen_the_tolerance_only_when_reported():
