@@ -226,3 +226,69 @@ def test_command_reads_the_store_and_empty_store_says_what_to_run(built, tmp_pat
     assert "holds no results for this suite" in (empty / "report.md").read_text()
     assert main(["report", "--suite", "no-such-suite", "--store", str(tmp_path / "x.sqlite"), "--from-store"]) == 2
     assert "no built-in suite 'no-such-suite'" in capsys.readouterr().err
+
+
+# ----------------------------------------------------------------------------- noise figures on synthetic data
+
+
+class SyntheticNoise:
+    """A stand-in backend with closed-form noise data: C(p_up, p_down) = -g A p_up p_down exp(-(p_up^2 + p_down^2)/2)
+    on the problem's grid and noise_integral I = (S / m_up)^2 g^2, so the slope at g = 0 is S / m_up exactly."""
+
+    A, S = 0.05, 0.03
+
+    @classmethod
+    def backend(cls):
+        from trapbench.backends.base import Backend, Support
+        from trapbench.backends.result import Observable, Solution
+
+        class Synthetic(Backend):
+            name = "synthetic-noise"
+            version = "1"
+            summary = "closed-form noise data for the report tests"
+            parameters = ()
+
+            def supports(self, problem):
+                return Support.yes()
+
+            def compute(self, problem, params):
+                g, grid = problem.coupling, problem.targets.grid_points
+                p = np.linspace(-problem.extent()[1], problem.extent()[1], grid)
+                p_up, p_down = np.meshgrid(p, p, indexing="ij")
+                noise = -g * cls.A * p_up * p_down * np.exp(-(p_up**2 + p_down**2) / 2)
+                return Solution(energies=[1.0], states=[{"parity": 1}],
+                                observables={"noise": Observable(noise, {"p_up": p, "p_down": p}, "1/momentum^2", "0")},
+                                scalars={"noise_integral": (cls.S / problem.up.mass) ** 2 * g**2}, error_estimate=1e-9)
+
+        return Synthetic()
+
+
+def test_noise_figures_read_maps_and_integrals_from_the_store(tmp_path):
+    from trapbench.bench.runner import OK, Outcome
+    from trapbench.bench.suite import Task
+    from trapbench.bench.tables import attach_references
+    from trapbench.problems.spec import Problem
+
+    backend = SyntheticNoise.backend()
+    problems = []
+    for mass in (1.0, 2.0):
+        problems.append(Problem.create(2, 2, -2.0, mass_up=mass, observables=["noise"], grid_points=49, p_max=6.0))
+        problems += Problem.create(2, 2, [-0.5, -0.25, 0.0, 0.25, 0.5], mass_up=mass, observables=["noise"],
+                                   grid_points=16).points()
+    with Store.open(tmp_path / "s.sqlite") as store:
+        run_id = store.begin_run("synthetic", "", len(problems))
+        for problem in problems:
+            result = backend.solve(problem).to_json_dict()
+            store.record(run_id, "synthetic", Task("noise", problem, backend.name, {}, 60.0, 512.0),
+                         Outcome(status=OK, result=result, wall_time_s=0.1, cpu_time_s=0.1, peak_rss_bytes=1 << 20))
+        frame = attach_references(store.results_frame())
+        maps = report_figures.noise_maps_figure(frame, store)
+        integral = report_figures.noise_integral_figure(frame)
+    assert maps.missing is None and integral.missing is None
+    # max of -g A p1 p2 exp(-(p1^2 + p2^2)/2) at g = -2 is 2 A / e, at p1 = p2 = +-1 (on the 0.25-spaced grid)
+    assert np.allclose(maps.table["max C"], 2 * SyntheticNoise.A / math.e, rtol=1e-12)
+    assert np.allclose(maps.table["sum C dp dp"], 0.0, atol=1e-12)  # odd in each momentum
+    assert list(maps.table["mass ratio"]) == ["1", "2"]
+    slopes = integral.table.dropna(subset=["slope"]).set_index("mass ratio")["slope"]
+    assert slopes["1"] == pytest.approx(SyntheticNoise.S, rel=1e-10)
+    assert slopes["2"] == pytest.approx(SyntheticNoise.S / 2, rel=1e-10)
