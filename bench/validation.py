@@ -43,7 +43,6 @@ at the absolute and relative tolerances alone.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
