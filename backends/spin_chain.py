@@ -49,6 +49,12 @@ import numpy as np
 from scipy.special import erf
 
 MAX_PARTICLES = 16
+MAX_CHAIN_STATES = 3432  # C(14, 7): the dense chain Hamiltonian then takes ~94 MB
+
+
+def chain_is_tractable(n_up: int, n_down: int) -> bool:
+    """True when the (n_up, n_down) chain fits the dense diagonalization used here."""
+    return 2 <= n_up + n_down <= MAX_PARTICLES and math.comb(n_up + n_down, n_up) <= MAX_CHAIN_STATES
 
 
 def oscillator_orbitals(n_orbitals: int, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

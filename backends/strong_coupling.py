@@ -35,7 +35,7 @@ from ..problems.references import STRONG_COUPLING_C2, STRONG_COUPLING_MIN_RATIO
 from ..problems.spec import Problem
 from .base import Backend, Parameter, Support
 from .result import Observable, Solution
-from .spin_chain import MAX_PARTICLES, spin_chain_spectrum, spin_resolved_densities
+from .spin_chain import MAX_CHAIN_STATES, chain_is_tractable, spin_chain_spectrum, spin_resolved_densities
 
 
 def _suffix(state: int) -> str:
@@ -72,8 +72,11 @@ class StrongCouplingBackend(Backend):
             return Support.no("unequal trap frequencies lift the degeneracy of the fermionized manifold")
         if up.count < 1 or down.count < 1:
             return Support.no("both species need at least one particle (otherwise g does nothing: use g = 0 results)")
-        if problem.n_particles > MAX_PARTICLES:
-            return Support.no(f"at most {MAX_PARTICLES} particles (got {problem.n_particles})")
+        if not chain_is_tractable(up.count, down.count):
+            return Support.no(
+                f"the spin chain of {up.count}+{down.count} has {math.comb(problem.n_particles, up.count)} states;"
+                f" at most {MAX_CHAIN_STATES} are diagonalized here"
+            )
         if any(g <= 0 for g in problem.g):
             return Support.no("only the repulsive branch g > 0 is described (the expansion is in 1/g about g = +inf)")
         size = math.comb(problem.n_particles, up.count)

@@ -363,7 +363,10 @@ def references_for(problem: Problem) -> list[Reference]:
             )
         )
     if problem.equal_masses and problem.equal_frequencies and up.count and down.count and g > 0:
-        refs += _strong_coupling_references(problem)
+        from ..backends.spin_chain import chain_is_tractable
+
+        if chain_is_tractable(up.count, down.count):
+            refs += _strong_coupling_references(problem)
     if problem.equal_frequencies and up.count and down.count and g > 0:
         refs += _infinite_coupling_references(problem)
     return refs

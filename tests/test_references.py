@@ -275,3 +275,9 @@ def test_catalogue_command_lists_entries_and_shows_sources(capsys):
 
     assert parse_problem(capsys.readouterr().out).key == catalogue_entry("1+1/equal/intermediate").problem.key
     assert main(["catalogue", "9+9/equal/weak"]) == 2
+
+
+def test_large_systems_get_the_references_that_scale():
+    # 10+10: no spin chain (184756 orderings), but the towers, slope and fermionized limit remain
+    quantities = {r.quantity for r in references_for(Problem.create(10, 10, 3.0))}
+    assert quantities == {"slope_g0", "energy_g_inf"}

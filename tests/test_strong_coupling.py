@@ -192,6 +192,7 @@ def test_backend_density_approaches_exact_two_body_density(backend):
         (Problem.create(2, 1, 5.0, omega_up=2.0), "frequencies"),
         (Problem.create(2, 1, 5.0, states=4), "ask for targets.states <= 3"),
         (Problem.create(2, 0, 5.0), "both species"),
+        (Problem.create(8, 8, 5.0), "12870 states"),
     ],
 )
 def test_backend_refuses_with_reasons(backend, problem, reason):
