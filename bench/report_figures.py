@@ -176,7 +176,14 @@ def spectra_figure(frame: pd.DataFrame, store) -> FigureOutcome:
                " of equal masses converges as g -> infinity; with unequal masses that manifold is split into groups"
                " with different limits. Error bars: the backend's own (largest among the drawn points: "
                f"{max_bar:.2g} hbar omega). Computed with " + _backends_text(pd.concat(used)) + ".")
-    return FigureOutcome(key, title, caption, figure, pd.DataFrame(table_rows))
+    long = pd.DataFrame(table_rows)
+    table = long.pivot_table(index=["mass ratio", "g"], columns="state", values="energy", sort=False)
+    table.columns = [f"E{state}" for state in table.columns]
+    table["largest error bar"] = pd.to_numeric(long["error bar"], errors="coerce").groupby(
+        [long["mass ratio"], long["g"]], sort=False).max()
+    table["parities"] = long.groupby(["mass ratio", "g"], sort=False)["parity"].agg(
+        lambda p: " ".join("+" if v == 1 else "-" if v == -1 else "?" for v in p))
+    return FigureOutcome(key, title, caption, figure, table.reset_index())
 
 
 def _cycle(count: int) -> list:

@@ -188,10 +188,14 @@ def test_spectra_and_density_tables_are_the_stored_numbers(built):
     frame, output = built["frame"], built["output"]
     spectra = pd.read_csv(output / "tables" / "spectra.csv")
     assert set(spectra["mass ratio"]) == {"1", "6.667 (40/6)"}
-    assert len(spectra) == 2 * 3 * 6  # two mass ratios, three g, six levels
+    levels = [f"E{k}" for k in range(6)]
+    assert len(spectra) == 2 * 3 and set(levels) <= set(spectra.columns)  # two mass ratios x three g, six levels
     stored = frame[(frame["backend"] == "perturbative") & (frame["n_up"] == 2) & (frame["n_down"] == 1)
                    & frame["problem_name"].str.startswith("spectrum")]
-    assert sorted(spectra["energy"]) == sorted(stored["energy"])
+    assert sorted(spectra[levels].to_numpy().ravel()) == sorted(stored["energy"])
+    # g = 0, equal masses: 2+1 levels 5/2, 7/2 (twice), 9/2 (three times) (oscillator towers, Pauli principle)
+    free = spectra[(spectra["mass ratio"] == "1") & (spectra["g"] == 0.0)][levels].to_numpy().ravel()
+    assert np.allclose(free, [2.5, 3.5, 3.5, 4.5, 4.5, 4.5], atol=1e-12)
     densities = pd.read_csv(output / "tables" / "densities.csv")
     # each density integrates to its particle number (1 each here) on the stored grid
     assert np.allclose(densities["integral n dx"], 1.0, atol=2e-3)
