@@ -81,6 +81,11 @@ def _now() -> str:
     return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
 
 
+def params_text(params: dict | None) -> str:
+    """A short readable form of a parameter set, e.g. ``chi=64, spacing=0.1`` (``defaults`` when empty)."""
+    return ", ".join(f"{k}={v}" for k, v in sorted((params or {}).items())) or "defaults"
+
+
 class Store:
     """An open results database (see the module docstring). Only one process should write it."""
 
@@ -244,7 +249,7 @@ class Store:
             energies = record.pop("energies") or []
             errors = record.pop("energy_errors") or []
             scalars = record.pop("scalars") or {}
-            record["params_text"] = ", ".join(f"{k}={v}" for k, v in sorted((record["params"] or {}).items()))
+            record["params_text"] = params_text(record["params"])
             if not energies:
                 rows.append({**record, "state": -1, "energy": None, "energy_error": None})
                 continue

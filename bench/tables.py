@@ -35,6 +35,9 @@ THRESHOLDS = (1e-2, 1e-3, 1e-4, 1e-6)
 # Round-off allowed on top of tolerances and error bars when comparing with a reference: a few ulps of
 # |E| (a result exactly on the edge of its bar must not fail by the last bit of a subtraction).
 ROUNDING = 8 * float(np.finfo(float).eps)
+# Exact references are stated with uncertainty 0 but evaluated to ~1e-12 relative (root finding and
+# special functions; see ``problems.references``): that is the floor of any comparison with them.
+EXACT_EVALUATION = 1e-12
 MIB = 1024 * 1024
 
 
@@ -64,7 +67,8 @@ def attach_references(
     Added: ``ref_value``, ``ref_uncertainty``, ``ref_source``, ``ref_kind``, ``abs_error``,
     ``rel_error`` (vs the reference), ``allowed`` (tolerance abs + rel |ref|), ``within_tolerance``
     (|E - ref| <= allowed + reference uncertainty), ``within_error_bar`` (|E - ref| <= own error bar
-    + reference uncertainty; None without a bar), both with ``ROUNDING`` |ref| of round-off slack,
+    + reference uncertainty; None without a bar), both with ``ROUNDING`` |ref| of round-off slack
+    (an exact reference, uncertainty 0, counts as known to ``EXACT_EVALUATION`` |ref|),
     ``error_bar`` (the backend's energy_error, else error_estimate), ``accuracy`` (relative error
     used for cost tables: (|E - ref| + reference uncertainty) / |ref|, a bound on the true relative
     error, else own error bar / |E|) and ``error_basis``.
@@ -96,7 +100,8 @@ def attach_references(
         if ref is not None:
             diff = abs(float(energy) - ref.value)
             allowed = tolerance("energy", row.get("backend")).allowed(ref.value)
-            slack = ref.uncertainty + ROUNDING * abs(ref.value)
+            uncertainty = ref.uncertainty if ref.uncertainty > 0 else EXACT_EVALUATION * abs(ref.value)
+            slack = uncertainty + ROUNDING * abs(ref.value)
             values.update(
                 ref_value=ref.value, ref_uncertainty=ref.uncertainty, ref_source=ref.source, ref_kind=ref.kind,
                 abs_error=diff, rel_error=diff / abs(ref.value) if ref.value else diff, allowed=allowed,
@@ -104,7 +109,7 @@ def attach_references(
                 within_error_bar=None if bar is None else diff <= bar + slack,
             )
             # the true error is bounded by the distance to the reference plus the reference's own uncertainty
-            bound = diff + ref.uncertainty
+            bound = diff + uncertainty
             values["accuracy"] = bound / abs(ref.value) if ref.value else bound
             values["error_basis"] = "reference"
         elif bar is not None and energy is not None and not _missing(energy):
@@ -244,9 +249,56 @@ TITLES = {
 }
 
 
+def accuracy_vs_cost_summary(table: pd.DataFrame) -> pd.DataFrame:
+    """The accuracy-vs-cost table folded to one row per problem and backend, one column per target.
+
+    Each cell reads ``params; CPU s; MiB`` for the cheapest run reaching that relative error.
+    """
+    if table.empty:
+        return pd.DataFrame(columns=["problem_name", "g", "backend"])
+    rows = []
+    for (name, g, backend), group in table.groupby(["problem_name", "g", "backend"], sort=False):
+        row = {"problem_name": name, "g": g, "backend": backend}
+        for record in group.to_dict("records"):
+            if record["cpu_s"] is None or pd.isna(record["cpu_s"]):
+                cell = record["params"] if record["accuracy"] is None or pd.isna(record["accuracy"]) else (
+                    f"{record['params']} (best {record['accuracy']:.2g})")
+            else:
+                cell = f"{record['params']}; {record['cpu_s']:.3g} s; {record['peak_mib']:.0f} MiB"
+            row[f"{record['target']:g}"] = cell
+        rows.append(row)
+    return pd.DataFrame(rows)
+
+
+def agreement_with_footnotes(table: pd.DataFrame, ground_state_only: bool = True) -> tuple[pd.DataFrame, list[str]]:
+    """Rows with a reference (ground states only by default), sources as footnote numbers; returns (table, sources)."""
+    shown = table[table["ref_value"].notna()]
+    if ground_state_only:
+        shown = shown[shown["state"] == 0]
+    shown = shown.drop(columns=["state", "allowed", "ref_kind"]).copy()
+    sources = list(dict.fromkeys(shown["ref_source"]))
+    shown["ref_source"] = [f"[{sources.index(s) + 1}]" for s in shown["ref_source"]]
+    return shown.rename(columns={"ref_source": "source", "ref_uncertainty": "ref_unc"}), sources
+
+
 def suite_tables_markdown(frame: pd.DataFrame, suite=None, references: Callable | None = None) -> str:
+    """The sweep's tables as one Markdown document, compact enough for a terminal.
+
+    The agreement table lists the results that have a reference (sources as footnotes); the
+    accuracy-vs-cost table is folded to one row per problem and backend.
+    """
     tables = suite_tables(frame, suite, references)
-    return "\n\n".join(f"## {TITLES[name]}\n\n{to_markdown(table)}" for name, table in tables.items()) + "\n"
+    agreement, sources = agreement_with_footnotes(tables["agreement"])
+    parts = [f"## {TITLES['agreement']} (ground states)\n\n{to_markdown(agreement)}"]
+    parts[-1] += ("\n\nExcited levels and results without a reference: `trapbench export --tables DIR`"
+                  " (agreement.csv / .md / .html).")
+    if sources:
+        parts[-1] += "\n\n" + "\n".join(f"[{i + 1}] {s}" for i, s in enumerate(sources))
+    parts.append(f"## {TITLES['accuracy_vs_cost']}\n\n{to_markdown(accuracy_vs_cost_summary(tables['accuracy_vs_cost']))}")
+    parts.append(f"## {TITLES['cost_vs_n']}\n\n{to_markdown(tables['cost_vs_n'])}")
+    if not tables["failures"].empty:
+        parts.append(f"## {TITLES['failures']}\n\n{to_markdown(tables['failures'])}")
+    return "\n\n".join(parts) + "\n"
 
 
 def write_tables(frame: pd.DataFrame, folder: str | Path, suite=None, references: Callable | None = None,
