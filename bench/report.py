@@ -157,7 +157,8 @@ def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) ->
     For each backend and single-g problem of the group, the cheapest stored run (solve CPU time) whose
     ground-state relative error is <= the target; the backend's cost for the group is the largest of
     these over the problems it reached. A backend must reach the target on every problem of the
-    group it was run on to be named; otherwise the entry says how many it reached.
+    group it was run on to be named (with "ran k of M" when that is not every problem of the group);
+    otherwise the entry says how many it reached.
     """
     ok = _ok(frame)
     if ok.empty:
@@ -181,7 +182,8 @@ def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) ->
             if full:
                 _, _, cost, backend, reached, problems = full[0]
                 others = [c[3] for c in full[1:]]
-                row[f"cheapest at {label}"] = backend
+                row[f"cheapest at {label}"] = backend + (f" (ran {problems} of {row['problems']})"
+                                                         if problems < row["problems"] else "")
                 row[f"CPU s at {label}"] = cost
                 row[f"also reaching {label}"] = ", ".join(others)
             else:
