@@ -459,6 +459,18 @@ class ProductHamiltonian:
             (self.basis.dim, self.basis.dim), matvec=self.matvec, matmat=self.matmat, dtype=dtype
         )
 
+    def multiply_adds(self) -> int:
+        """Multiply-adds of the interaction kernels per matvec (the work a CSR matvec would need as
+        nonzeros; used to compare throughput with a plain scipy CSR matvec)."""
+        c0, c1 = self._row_columns if self._chunks else (None, None)
+        total = 0
+        for _, down_stack, up_stack in self._chunks:
+            per_col = np.diff(down_stack.indptr)
+            cum = np.concatenate([[0], np.cumsum(per_col)])
+            total += int(np.sum(cum[c1] - cum[c0]))
+            total += int(np.sum(np.diff(up_stack.indptr) * (c1 - c0)))
+        return total + self.basis.dim
+
     def diagonal(self) -> np.ndarray:
         """The diagonal of H in the basis (for preconditioners and checks)."""
         n_u, n_d = self.basis.shape
