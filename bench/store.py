@@ -146,15 +146,20 @@ class Store:
     # ------------------------------------------------------------------ tasks
     def stored(self, key: str) -> sqlite3.Row | None:
         return self.connection.execute(
-            "SELECT status, timeout_s, memory_mib FROM tasks WHERE task_key=?", (key,)
+            "SELECT status, timeout_s, memory_mib, backend_version FROM tasks WHERE task_key=?", (key,)
         ).fetchone()
 
-    def needs_run(self, task: Task, rerun: bool = False) -> bool:
-        """True unless ``task`` is already stored with an outcome that more of the same cannot change."""
+    def needs_run(self, task: Task, rerun: bool = False, backend_version: str | None = None) -> bool:
+        """True unless ``task`` is already stored with an outcome that more of the same cannot change.
+
+        A stored result of another version of the backend than ``backend_version`` is stale.
+        """
         if rerun:
             return True
         row = self.stored(task.key)
         if row is None or row["status"] == MISSING_BACKEND:
+            return True
+        if backend_version is not None and row["backend_version"] not in (None, backend_version):
             return True
         if row["status"] == TIMEOUT:
             return task.timeout_s > (row["timeout_s"] or 0)
@@ -162,7 +167,7 @@ class Store:
             return task.memory_mib > (row["memory_mib"] or 0)
         return False
 
-    def record(self, run_id: int, suite: str, task: Task, outcome: Outcome) -> None:
+    def record(self, run_id: int, suite: str, task: Task, outcome: Outcome, backend_version: str | None = None) -> None:
         """Store one task's outcome in its own transaction (replacing an earlier one)."""
         problem = task.problem
         result = outcome.result if outcome.status == OK else None
@@ -179,7 +184,7 @@ class Store:
             "mass_down": problem.down.mass,
             "g": problem.coupling,
             "backend": task.backend,
-            "backend_version": result["backend_version"] if result else None,
+            "backend_version": result["backend_version"] if result else backend_version,
             "params": task.params_json,
             "status": outcome.status,
             "error": outcome.error,

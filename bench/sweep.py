@@ -5,7 +5,8 @@ isolated child processes (``runner.run_isolated``), or on a Dask cluster (``dist
 ``options.workers`` or ``options.scheduler`` is given; in both cases only this coordinating process
 writes the store, one transaction per finished task. A progress bar with an ETA is shown on stderr.
 Ctrl-C (KeyboardInterrupt) kills the tasks in flight, marks the run ``interrupted`` and keeps every
-finished task; running the same suite again resumes where it stopped.
+finished task; running the same suite again resumes where it stopped. A stored result is reused
+only while its backend reports the same ``version``.
 """
 
 from __future__ import annotations
@@ -77,14 +78,24 @@ def _progress(total: int, suite: str, enabled: bool):
                 file=sys.stderr, dynamic_ncols=True)
 
 
+def _version(name: str) -> str | None:
+    from ..backends import registry
+
+    try:
+        return str(getattr(registry.get(name), "version", None))
+    except Exception:  # a backend that fails to import is recorded by its tasks, not here
+        return None
+
+
 def run_sweep(suite: Suite, options: SweepOptions) -> SweepReport:
     """Run every task of ``suite`` not yet in the store; see the module docstring."""
     from ..backends import registry
 
     tasks = limited_tasks(suite, options)
     installed = set(registry.names())
+    versions = {name: _version(name) for name in {t.backend for t in tasks} & installed}
     with Store.open(options.store_path) as store:
-        pending = [t for t in tasks if store.needs_run(t, options.rerun)]
+        pending = [t for t in tasks if store.needs_run(t, options.rerun, versions.get(t.backend))]
         run_id = store.begin_run(suite.name, options.command, len(tasks))
         report = SweepReport(run_id, suite.name, [t.key for t in tasks], skipped=len(tasks) - len(pending))
         missing = [t for t in pending if t.backend not in installed]
@@ -98,7 +109,7 @@ def run_sweep(suite: Suite, options: SweepOptions) -> SweepReport:
         bar = _progress(len(runnable), suite.name, options.progress)
 
         def finished(task: Task, outcome: Outcome) -> None:
-            store.record(run_id, suite.name, task, outcome)
+            store.record(run_id, suite.name, task, outcome, versions.get(task.backend))
             report.ran += 1
             report.statuses[outcome.status] += 1
             bar.update(1)

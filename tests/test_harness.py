@@ -367,6 +367,17 @@ def test_rerun_and_larger_limits_recompute(toy_path, tmp_path):
     assert forced.ran == 1 and forced.skipped == 0
 
 
+def test_results_of_another_backend_version_are_recomputed(toy_path, tmp_path):
+    suite = load_suite(ladder_suite(tmp_path, rungs=2, work=0))
+    store_path = tmp_path / "versions.sqlite"
+    assert run_sweep(suite, SweepOptions(store_path=store_path, progress=False)).ran == 4
+    with Store.open(store_path) as store, store.connection:
+        store.connection.execute("UPDATE tasks SET backend_version='0-old' WHERE rowid=1")
+    again = run_sweep(suite, SweepOptions(store_path=store_path, progress=False))
+    assert again.ran == 1 and again.skipped == 3
+    assert {r["backend_version"] for r in stored_rows(store_path).values()} == {"1"}
+
+
 # ----------------------------------------------------------------------------- Dask
 
 
