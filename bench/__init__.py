@@ -1,0 +1,14 @@
+"""The benchmark harness and the ``trapbench`` command line.
+
+Python API (every piece also has a command: ``trapbench sweep | check | export | advise``):
+
+- ``suite.load_suite(name_or_path) -> Suite``: problems x backends x parameter ladders, tolerances;
+- ``sweep.run_sweep(suite, SweepOptions(...)) -> SweepReport``: runs the tasks not yet stored, each
+  in an isolated child process (``runner``), serially or on Dask (``distributed``);
+- ``store.Store.open(path)``: the SQLite results store; ``tasks_frame()``, ``results_frame()``,
+  ``result(task_key)``, ``export(path)``;
+- ``tables``: agreement, accuracy-vs-cost and cost-vs-N tables from a results frame, Markdown /
+  CSV / HTML output, matplotlib figures of error against time and memory;
+- ``gate``: compare with a baseline (``pytest_plugin`` offers the ``trapbench_gate`` fixture);
+- ``advisor.advise(frame, Query(...))``: the cheapest reliable backend for a problem and accuracy.
+"""
