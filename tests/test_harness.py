@@ -617,3 +617,36 @@ def test_advisor_drops_backends_that_do_not_support_the_problem():
     assert advise(frame, Query(1, 1, g=1.0, accuracy=1e-10)).best.backend == "two-body"
     advice = advise(frame, Query(2, 1, g=1.0, accuracy=1e-4))
     assert advice.best is None and "does not support" in advice.rejected["two-body"]
+
+
+# ----------------------------------------------------------------------------- command line
+
+
+def test_sweep_export_and_advise_commands(toy_path, tmp_path, capsys):
+    import pandas as pd
+
+    from trapbench.bench.cli import main
+
+    suite_path = ladder_suite(tmp_path, rungs=3, work=0)
+    store = ["--store", str(tmp_path / "cli.sqlite")]
+    assert main(["sweep", str(suite_path), *store, "--no-progress"]) == 0
+    out = capsys.readouterr().out
+    assert "## Accuracy against cost" in out and "| 2+1 free | 0 | toy-exact |" in out
+
+    assert main(["export", *store, "--suite", str(suite_path), "--results", str(tmp_path / "r.csv")]) == 0
+    assert main(["export", *store, "--results", str(tmp_path / "r.parquet"), "--tables", str(tmp_path / "t"),
+                 "--no-plots"]) == 0
+    csv, parquet = pd.read_csv(tmp_path / "r.csv"), pd.read_parquet(tmp_path / "r.parquet")
+    assert len(csv) == len(parquet) == 6
+    expected = sorted((n_up**2 + n_down**2) / 2 + 1 / c**2 for n_up, n_down in ((1, 1), (2, 1)) for c in (1, 2, 3))
+    assert sorted(parquet["energy"]) == pytest.approx(expected, rel=1e-14)
+    assert (tmp_path / "t" / "accuracy_vs_cost.html").exists()
+
+    capsys.readouterr()
+    # the cheapest rung within 5%: cutoff 3, relative error (1/9) / 2.5 = 0.0444 (against the g = 0
+    # reference E0 = 2.5 or, equally, the toy's own error bar 1/cutoff^2)
+    assert main(["advise", *store, "--up", "2", "--down", "1", "--g", "0", "--accuracy", "0.05"]) == 0
+    out = capsys.readouterr().out
+    assert "Recommended: toy-exact with cutoff=3, work=0" in out and "| 0.0444444444" in out
+    assert main(["advise", *store, "--up", "2", "--down", "1", "--g", "0", "--accuracy", "1e-9"]) == 1
+    assert main(["sweep", str(tmp_path / "absent.toml"), *store]) == 2
