@@ -650,3 +650,28 @@ def test_sweep_export_and_advise_commands(toy_path, tmp_path, capsys):
     assert "Recommended: toy-exact with cutoff=3, work=0" in out and "| 0.0444444444" in out
     assert main(["advise", *store, "--up", "2", "--down", "1", "--g", "0", "--accuracy", "1e-9"]) == 1
     assert main(["sweep", str(tmp_path / "absent.toml"), *store]) == 2
+
+
+@pytest.mark.slow  # three pytest sessions in subprocesses, ~13 s
+def test_pytest_fixture_gates_a_users_ci(toy_path, tmp_path):
+    suite_path = tmp_path / "gate.toml"
+    suite_path.write_text(suite_text(GATE_SUITE, name="gate"))
+    baseline = tmp_path / "baseline.json"
+    user_test = tmp_path / "test_user_ci.py"
+    user_test.write_text(f"def test_no_regression(trapbench_gate):\n"
+                         f"    trapbench_gate({str(suite_path)!r}, {str(baseline)!r})\n")
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join([str(toy_path), os.environ.get("PYTHONPATH", "")])}
+
+    def user_pytest(*extra):
+        return subprocess.run([sys.executable, "-m", "pytest", "-q", "-p", "trapbench.bench.pytest_plugin",
+                               "-p", "no:cacheprovider", "--rootdir", str(tmp_path), str(user_test), *extra],
+                              env=env, capture_output=True, text=True, timeout=120, cwd=tmp_path)
+
+    assert user_pytest("--trapbench-update-baseline").returncode == 0
+    assert len(json.loads(baseline.read_text())["tasks"]) == 4
+    assert user_pytest().returncode == 0
+    perturbed = json.loads(baseline.read_text())
+    next(iter(perturbed["tasks"].values()))["energies"][0] *= 1 + 1e-7
+    baseline.write_text(json.dumps(perturbed))
+    failed = user_pytest()
+    assert failed.returncode == 1 and "regression gate FAILED: 1 regression" in failed.stdout
