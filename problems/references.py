@@ -15,6 +15,9 @@
     (``backends.spin_chain``). The neglected O(1/g~^2) term is NOT known for N > 2; for 1+1 its
     coefficient is (1 - ln 2) K^2 (expanding Busch's equation), so the uncertainty quoted is the
     estimate K^2/g~^2 (about three times the 1+1 coefficient); it is an estimate, not a bound.
+  * 2+1 (or 1+2) with unequal masses at large repulsive g: E = E_inf - K sqrt(omega)/g from the
+    hard-core wedges and the leakage through their walls (``wedge_spectrum``), with the estimate
+    3 K^2/g^2 for the neglected term (calibrated against exact diagonalization, see WEDGE_STRONG_COUPLING_C2).
 - ``slope_g0``: dE0/dg at g = 0 for the ground state, first-order perturbation theory,
   c1 = sum_{i < N_up} sum_{j < N_down} int phi_i^up(x)^2 phi_j^down(x)^2 dx (the non-interacting ground
   state of each species is one Slater determinant, so the first order is non-degenerate).
@@ -65,7 +68,12 @@ SPIN_CHAIN_SOURCE = (
     " (2015) (journal reference recalled); J_k evaluated in trapbench.backends.spin_chain"
 )
 # Estimated relative size of the neglected O(1/g^2) term: |c2| <= STRONG_COUPLING_C2 * K^2 (see docstring).
+# Calibration: 1+1 exact (1 - ln 2) = 0.31; 2+1 equal masses from oscillator-ed at g = 20-40, 0.17 +- 0.05.
 STRONG_COUPLING_C2 = 1.0
+# The same for 2+1 with unequal masses, calibrated on oscillator-ed at g = 15-30: c2/K^2 = 2.0 +- 0.6 for
+# a heavy pair (40/6 : 1, K = 0.76) and 0.2 for a light pair (6/40 : 1, K = 3.5); mass ratios outside
+# that range are not calibrated.
+WEDGE_STRONG_COUPLING_C2 = 3.0
 # Energy asymptotes are offered only where the whole manifold stays well separated: g~ >= this * K_max.
 STRONG_COUPLING_MIN_RATIO = 2.0
 BUSCH_DIGITS = 30
@@ -211,24 +219,104 @@ def fermionized_levels(problem: Problem, states: int | None = None) -> list[floa
     return levels[:states]
 
 
-def wedge_levels(problem: Problem, states: int | None = None) -> list[float]:
-    """Lowest levels at g = +inf of a 2+1 (or 1+2) system with any masses (parity "any"); see the docstring."""
+@dataclass(frozen=True)
+class WedgeLevel:
+    """One level of 2+1 at g = +inf: energy, its 1/g coefficient K (E = E_inf - K sqrt(omega)/g), family."""
+
+    energy: float
+    k: float
+    family: str  # "outside" (odd particle left or right of the pair) or "inside" (odd particle in the middle)
+
+
+def _wedge_wall_integral(theta: float, nu: float, radial: int) -> float:
+    """int_0^inf |(1/rho) d psi/d phi|^2 d rho on one wall, psi normalized in a wedge of angle theta.
+
+    psi = N rho^nu L_n^nu(rho^2) exp(-rho^2/2) sin(nu phi); with t = rho^2 the integrals are
+    Gamma-weighted Laguerre moments, done by scipy.integrate.quad.
+    """
+    from scipy import integrate, special
+
+    def moment(power: float) -> float:
+        value, _ = integrate.quad(lambda t: t**power * special.eval_genlaguerre(radial, nu, t) ** 2 * math.exp(-t),
+                                  0, math.inf, limit=200, epsabs=0, epsrel=1e-13)
+        return value / 2
+
+    norm2 = 1.0 / (theta / 2 * moment(nu))  # int rho^(2 nu + 1) L^2 e^(-rho^2) d rho = moment(nu)
+    return norm2 * nu * nu * moment(nu - 1.5)
+
+
+def wedge_spectrum(problem: Problem, states: int | None = None) -> list[WedgeLevel]:
+    """Lowest levels at g = +inf of 2+1 (or 1+2), any masses, with their strong-coupling slopes K.
+
+    Near g = +inf a hard wall of the relative plane turns into a delta line of strength g sqrt(mu)
+    (mu = reduced mass of the pair member and the odd particle, units of m0); to first order the
+    wave function leaks as psi(wall) = (d psi/d s)/(2 g sqrt(mu)), and Hellmann-Feynman integrated
+    from g to inf gives E = E_inf - K/g with K = sum over walls of int |d psi/d s|^2 / (4 sqrt(mu)).
+    A state of one wedge (or the antisymmetric pair of inside wedges) touches its walls only, and
+    levels of different families do not mix at this order unless they are degenerate (then K is
+    reported as NaN; the centre of mass is untouched by the walls, so only levels with the same
+    centre-of-mass quantum number can mix). For equal masses K reduces to the diagonal elements of
+    the spin chain.
+    """
     states = problem.targets.states if states is None else states
     pair, odd = (problem.up, problem.down) if problem.up.count == 2 else (problem.down, problem.up)
     big, small = pair.mass, odd.mass
+    mu = big * small / (big + small)
     theta_outside = math.acos(math.sqrt(small * big / ((small + big) * 2 * big)))  # a pair member in the middle
     theta_inside = math.acos(big / (big + small))  # the odd particle in the middle
-    # relative exponents nu with multiplicity: outside wedges (two of them), k even in the angle 2 theta_o
     ladder = states + 2
-    exponents = [(j * math.pi / theta_outside, 2) for j in range(1, ladder + 1)]
-    exponents += [(k * math.pi / theta_inside, 1) for k in range(1, ladder + 1)]
+    # (family, wedge angle, exponent nu, copies): outside wedges have angle 2 theta_o and only modes odd
+    # about their bisector (the pair's antisymmetry), nu = j pi / theta_o; the two inside wedges give
+    # one antisymmetric state per mode, nu = k pi / theta_i
+    modes = [("outside", 2 * theta_outside, j * math.pi / theta_outside, 2) for j in range(1, ladder + 1)]
+    modes += [("inside", theta_inside, k * math.pi / theta_inside, 1) for k in range(1, ladder + 1)]
     omega = problem.up.omega
-    levels = []
-    for nu, multiplicity in exponents:
+    candidates = []
+    for family, theta, nu, copies in modes:
         for radial in range(ladder):
+            relative = 2 * radial + nu + 1
             for com in range(ladder):
-                levels += [omega * (2 * radial + nu + 1 + com + 0.5)] * multiplicity
-    return sorted(levels)[:states]
+                candidates.append((relative + com + 0.5, family, theta, nu, radial, copies, com))
+    candidates.sort()
+    chosen = []
+    for candidate in candidates:
+        chosen += [candidate] * candidate[5]
+        if len(chosen) >= states:
+            break
+    levels = []
+    for energy, family, theta, nu, radial, _, com in chosen[:states]:
+        # the walls act on the relative motion only: states mix if they share the centre-of-mass quantum
+        # number and the energy but are different relative modes
+        mixed = any(abs(c[0] - energy) < 1e-9 and c[6] == com and (c[1], c[3], c[4]) != (family, nu, radial)
+                    for c in candidates)
+        k = math.nan if mixed else 2 * _wedge_wall_integral(theta, nu, radial) / (4 * math.sqrt(mu))
+        levels.append(WedgeLevel(omega * energy, k, family))
+    return levels
+
+
+def wedge_levels(problem: Problem, states: int | None = None) -> list[float]:
+    """Lowest levels at g = +inf of a 2+1 (or 1+2) system with any masses (parity "any"); see the docstring."""
+    return [level.energy for level in wedge_spectrum(problem, states)]
+
+
+def _wedge_strong_coupling_references(problem: Problem) -> list[Reference]:
+    """E = E_inf - K sqrt(omega)/g for 2+1 with unequal masses, where g is large against K."""
+    omega = problem.up.omega
+    g_scaled = problem.coupling / math.sqrt(omega)
+    levels = wedge_spectrum(problem)
+    if any(math.isnan(level.k) for level in levels) or g_scaled < STRONG_COUPLING_MIN_RATIO * max(l.k for l in levels):
+        return []
+    refs = []
+    for i, level in enumerate(levels):
+        refs.append(Reference("K", i, level.k, 1e-10, WEDGE_SOURCE, "derived",
+                              f"{level.family} wedge; E = E_inf - K sqrt(omega)/g + O(1/g^2), masses in units of m0"))
+        refs.append(Reference(
+            "energy", i, level.energy - omega * level.k / g_scaled,
+            omega * WEDGE_STRONG_COUPLING_C2 * level.k**2 / g_scaled**2,
+            WEDGE_SOURCE, "derived",
+            f"asymptote E_inf - K/g at g = {problem.coupling:.6g}; the uncertainty 3 K^2/g^2 estimates the neglected"
+            " O(1/g^2) term (calibrated on exact diagonalization for mass ratios 40/6 and 6/40), it is not a bound"))
+    return refs
 
 
 def _infinite_coupling_references(problem: Problem) -> list[Reference]:
@@ -369,4 +457,6 @@ def references_for(problem: Problem) -> list[Reference]:
             refs += _strong_coupling_references(problem)
     if problem.equal_frequencies and up.count and down.count and g > 0:
         refs += _infinite_coupling_references(problem)
+        if not problem.equal_masses and sorted((up.count, down.count)) == [1, 2] and problem.targets.parity == "any":
+            refs += _wedge_strong_coupling_references(problem)
     return refs

@@ -22,6 +22,7 @@ from trapbench.problems.references import (
     busch_even_level,
     fermionized_levels,
     wedge_levels,
+    wedge_spectrum,
     first_order_slope,
     noninteracting_levels,
     references_for,
@@ -249,10 +250,13 @@ def test_wedge_levels_are_the_large_g_limit_of_exact_diagonalization(mass_up):
         values.append(result.energies[0])
         errors.append(result.error_estimate)
     limit = (100.0 * values[1] - 30.0 * values[0]) / 70.0
-    expected = wedge_levels(Problem.create(2, 1, 1.0, mass_up=mass_up))[0]
+    expected = wedge_spectrum(Problem.create(2, 1, 1.0, mass_up=mass_up))[0]
     # the neglected O(1/g^2) term of the ladder: a few 1e-3 (the ED values themselves carry ~2e-3)
-    assert limit == pytest.approx(expected, abs=5e-3 + 3 * max(errors))
-    assert max(values) < expected  # levels approach the hard-core limit from below
+    assert limit == pytest.approx(expected.energy, abs=5e-3 + 3 * max(errors))
+    assert max(values) < expected.energy  # levels approach the hard-core limit from below
+    # and the slope in 1/g is the wall-leakage coefficient K
+    slope = (values[1] - values[0]) / (1 / 30.0 - 1 / 100.0)
+    assert slope == pytest.approx(expected.k, abs=0.1 * expected.k + 3 * sum(errors) / (1 / 30.0 - 1 / 100.0))
 
 
 def test_two_body_infinite_coupling_limit_any_masses():
@@ -281,3 +285,24 @@ def test_large_systems_get_the_references_that_scale():
     # 10+10: no spin chain (184756 orderings), but the towers, slope and fermionized limit remain
     quantities = {r.quantity for r in references_for(Problem.create(10, 10, 3.0))}
     assert quantities == {"slope_g0", "energy_g_inf"}
+
+
+def test_wedge_slopes_reduce_to_the_spin_chain_diagonal_for_equal_masses():
+    # down in the middle (inside wedge): J_1 + J_2 = 2 J; down outside: J = 27/(8 sqrt(2 pi)) (anchors Table 3.3a)
+    levels = wedge_spectrum(Problem.create(2, 1, 5.0, mass_up=1 + 1e-9, mass_down=1.0, states=3))
+    j = 27 / (8 * math.sqrt(2 * math.pi))
+    assert sorted(level.k for level in levels) == pytest.approx([j, j, 2 * j], rel=1e-6)
+    # exactly equal masses: the three families are degenerate and mix, so no slope is claimed
+    assert all(math.isnan(level.k) for level in wedge_spectrum(Problem.create(2, 1, 5.0, states=3)))
+
+
+def test_unequal_mass_strong_coupling_asymptote_is_a_reference():
+    refs = references_for(Problem.create(1, 2, 30.0, mass_down=40 / 6, states=2))
+    k = [r.value for r in refs if r.quantity == "K"]
+    e = [r for r in refs if r.quantity == "energy"]
+    inf = [r.value for r in refs if r.quantity == "energy_g_inf"]
+    assert len(k) == len(e) == 2
+    for ref, kk, limit in zip(e, k, inf):
+        assert ref.value == pytest.approx(limit - kk / 30.0) and ref.uncertainty == pytest.approx(3 * kk**2 / 900)
+    # no asymptote where g is not large against K
+    assert not [r for r in references_for(Problem.create(1, 2, 1.0, mass_down=40 / 6)) if r.quantity == "energy"]
