@@ -17,7 +17,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
-from .runner import FAILED, Limits, Outcome, payload_for, run_on_worker
+from .runner import FAILED, Limits, Outcome, backend_modules, payload_for, run_on_worker
 from .suite import Task
 
 LOCAL_CLUSTER_OPTIONS = {"threads_per_worker": 1, "processes": True, "dashboard_address": None}
@@ -51,8 +51,9 @@ def run_on_dask(
     client = Client(scheduler) if scheduler else Client(cluster)
     try:
         futures = {}
+        preload = backend_modules(sorted({t.backend for t in tasks}))
         for task in tasks:
-            future = client.submit(run_on_worker, payload_for(task), limits_of(task), pure=False,
+            future = client.submit(run_on_worker, payload_for(task), limits_of(task), preload, pure=False,
                                    key=f"trapbench-{task.key}")
             futures[future.key] = (future, task)
         for future in as_completed([f for f, _ in futures.values()]):

@@ -276,6 +276,11 @@ def payload_for(task) -> dict:
     return {"backend": task.backend, "problem": task.problem.to_dict(), "params": dict(task.params)}
 
 
-def run_on_worker(payload: dict, limits: Limits) -> dict:
-    """Dask entry point: run the task isolated on this worker and return the outcome as a dict."""
+def run_on_worker(payload: dict, limits: Limits, preload: tuple[str, ...] = ()) -> dict:
+    """Dask entry point: run the task isolated on this worker and return the outcome as a dict.
+
+    ``preload`` names the backend modules the worker's task server should import once (honoured
+    when the worker runs its first task).
+    """
+    context(preload)
     return run_isolated(payload, limits, sys_path=None).to_dict() | {"worker_pid": os.getpid()}

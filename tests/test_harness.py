@@ -619,6 +619,35 @@ def test_advisor_drops_backends_that_do_not_support_the_problem():
     assert advice.best is None and "does not support" in advice.rejected["two-body"]
 
 
+def test_dask_existing_scheduler_and_a_daemonic_worker(tmp_path):
+    """Submitting to a scheduler address works; workers that may not fork get the advice recorded."""
+    pytest.importorskip("trapbench.backends.two_body")
+    from distributed import LocalCluster
+
+    from trapbench.bench.distributed import local_cluster
+
+    suite = parse_suite(suite_text("""
+        [[problems]]
+        name = "1+1"
+        up = { count = 1 }
+        down = { count = 1 }
+        interaction = { g = [1.0, 2.0] }
+
+        [[backends]]
+        name = "two-body"
+        """))
+    with local_cluster(1) as cluster:
+        report = run_sweep(suite, SweepOptions(store_path=tmp_path / "s.sqlite", progress=False,
+                                               scheduler=cluster.scheduler_address))
+    assert report.statuses["ok"] == 2
+    with LocalCluster(n_workers=1, threads_per_worker=1, dashboard_address=None) as daemonic:
+        report = run_sweep(suite, SweepOptions(store_path=tmp_path / "d.sqlite", progress=False,
+                                               scheduler=daemonic.scheduler_address))
+    assert report.statuses["failed"] == 2
+    errors = {r["error"] for r in stored_rows(tmp_path / "d.sqlite").values()}
+    assert all("DASK_DISTRIBUTED__WORKER__DAEMON=False" in e for e in errors)
+
+
 # ----------------------------------------------------------------------------- command line
 
 
