@@ -40,6 +40,7 @@ from .tables import (_cell, _ok, _slug, accuracy_vs_cost_table, attach_reference
 
 MAP_TARGETS = (1e-3, 1e-5)
 SCALING_ACCURACY = 1e-3
+SCALING_MAX_STATES = 4
 MAX_COST_FIGURES = 24
 FIGURE_DPI = 100
 MIB = 1024 * 1024
@@ -307,6 +308,15 @@ def cost_problems(frame: pd.DataFrame) -> list[str]:
                                        float(order.loc[k, "g"])))
 
 
+def benchmark_rows(frame: pd.DataFrame) -> pd.Series:
+    """True for rows whose problem asks for at most SCALING_MAX_STATES levels and no observables."""
+    def plain(problem) -> bool:
+        targets = problem.get("targets", {}) if isinstance(problem, dict) else {}
+        return int(targets.get("states", 1)) <= SCALING_MAX_STATES and not targets.get("observables")
+
+    return pd.Series([plain(p) for p in frame["problem"]], index=frame.index, dtype=bool)
+
+
 def plot_cost_scaling(table: pd.DataFrame, accuracy: float):
     """CPU time and peak memory against N, per backend (cheapest run reaching ``accuracy``)."""
     from matplotlib.figure import Figure
@@ -420,10 +430,12 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
         document.add(Paragraph(f"*{len(problems) - MAX_COST_FIGURES} more problems are in the table above only.*"))
 
     document.add(Heading(2, "Cost against particle number"))
-    scaling = cost_vs_particle_number_table(frame, accuracy=SCALING_ACCURACY)
+    scaling = cost_vs_particle_number_table(frame[benchmark_rows(frame)], accuracy=SCALING_ACCURACY)
     tables["cost_vs_n"] = scaling
     document.add(Table(scaling, f"Per backend and N: the cheapest stored run reaching relative error"
-                       f" {SCALING_ACCURACY:.0e}, the largest over the problems with that N.", "cost_vs_n"))
+                       f" {SCALING_ACCURACY:.0e}, the largest over the problems with that N. Only problems asking for"
+                       f" at most {SCALING_MAX_STATES} levels and no observables count (the figures' problems ask for"
+                       " more, which costs more at any N).", "cost_vs_n"))
     if scaling["cpu_s"].notna().any():
         path = _save(plot_cost_scaling(scaling, SCALING_ACCURACY), folder, "cost_vs_particle_number")
         document.add(_picture(document, path, f"CPU time of the solve (left) and peak resident memory of the task"
