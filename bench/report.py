@@ -35,8 +35,8 @@ from ..backends.provenance import library_version, source_revision
 from ..backends.provenance import machine as host_machine
 from . import report_figures
 from .report_figures import mass_ratio, ratio_text
-from .tables import (_cell, _ok, _slug, accuracy_vs_cost_table, attach_references, cost_vs_particle_number_table,
-                     failures_table, to_markdown)
+from .tables import (accuracy_vs_cost_table, attach_references, cost_vs_particle_number_table, failures_table,
+                     successful_ground_states, to_markdown)
 
 MAP_TARGETS = (1e-3, 1e-5)
 SCALING_ACCURACY = 1e-3
@@ -140,9 +140,24 @@ def render_html(document: Document, folder: Path) -> str:
     return "\n".join(parts)
 
 
+def _html_cell(value) -> str:
+    """A table cell as text, numbers formatted like the Markdown tables (12 significant digits, 3 below 1e-3)."""
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return ""
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "no"
+    if isinstance(value, (float, np.floating)):
+        return f"{value:.12g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.3g}"
+    return str(value)
+
+
+def _slug(text: str) -> str:
+    return re.sub(r"[^A-Za-z0-9_-]+", "_", text).strip("_") or "problem"
+
+
 def _table_html(frame: pd.DataFrame) -> str:
     head = "".join(f"<th>{html.escape(str(c))}</th>" for c in frame.columns)
-    body = "".join("<tr>" + "".join(f"<td>{html.escape(_cell(v).replace(chr(92) + '|', '|'))}</td>" for v in row) + "</tr>"
+    body = "".join("<tr>" + "".join(f"<td>{html.escape(_html_cell(v))}</td>" for v in row) + "</tr>"
                    for row in frame.itertuples(index=False))
     if not body:
         body = f'<tr><td colspan="{max(len(frame.columns), 1)}">(no rows)</td></tr>'
@@ -161,7 +176,7 @@ def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) ->
     group it was run on to be named (with "ran k of M" when that is not every problem of the group);
     otherwise the entry says how many it reached.
     """
-    ok = _ok(frame)
+    ok = successful_ground_states(frame)
     if ok.empty:
         return pd.DataFrame(columns=["N", "N_up+N_down", "mass ratio", "problems"])
     ok = ok.assign(n=ok["n_up"] + ok["n_down"], ratio=[mass_ratio(r) for r in ok.to_dict("records")])
@@ -271,7 +286,7 @@ def plot_accuracy_vs_cost(frame: pd.DataFrame, problem_key: str):
     """Ground-state relative error against wall time (left) and peak memory (right), one line per backend."""
     from matplotlib.figure import Figure
 
-    ok = _ok(frame)
+    ok = successful_ground_states(frame)
     ok = ok[(ok["problem_key"] == problem_key) & ok["accuracy"].notna()].copy()
     ok["wall"] = pd.to_numeric(ok["solve_wall_s"], errors="coerce").fillna(pd.to_numeric(ok["wall_time_s"], errors="coerce"))
     figure = Figure(figsize=(10, 4.2), layout="constrained")
@@ -299,7 +314,7 @@ def plot_accuracy_vs_cost(frame: pd.DataFrame, problem_key: str):
 
 def cost_problems(frame: pd.DataFrame) -> list[str]:
     """Single-g problems where some backend was measured at two or more parameter sets (a trade-off curve)."""
-    ok = _ok(frame)
+    ok = successful_ground_states(frame)
     ok = ok[ok["accuracy"].notna()]
     counts = ok.groupby(["problem_key", "backend"])["params_text"].nunique()
     keys = sorted({k for (k, _), n in counts.items() if n >= 2})
