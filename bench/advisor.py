@@ -29,7 +29,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .tables import _ok, attach_references
+from .tables import attach_references, successful_ground_states
 
 CONFIDENCE_RANK = {"high": 0, "medium": 1, "low": 2}
 
@@ -136,7 +136,7 @@ def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
 
     if "accuracy" not in frame.columns:
         frame = attach_references(frame, references)
-    ok = _ok(frame)
+    ok = successful_ground_states(frame)
     problem = query.problem()
     recommendations, rejected = [], {}
     installed = set(registry.names())

@@ -273,22 +273,16 @@ def _param_sets(data: Mapping, where: str) -> list[tuple[dict, str]]:
     return out
 
 
-def _validate_params(backend: Any, params: dict, where: str) -> dict:
+def _validate_params(backend: Any, params: dict, where: str) -> None:
+    """Check a parameter set against the backend's declared parameters (protocol backends without
+    ``resolve_params`` are checked when their tasks run)."""
     if not hasattr(backend, "resolve_params"):
-        return params
-    known = {p.name for p in getattr(backend, "parameters", ())}
-    for key in params:
-        if key not in known:
-            try:
-                backend.resolve_params({key: params[key]})
-            except SpecError as exc:
-                raise SpecError(f"{where}.{key}", exc.reason) from None
+        return
     try:
         backend.resolve_params(params)
     except SpecError as exc:
         name = exc.field.removeprefix("param.")
         raise SpecError(f"{where}.{name}", exc.reason) from None
-    return params
 
 
 def _installed_backend(name: str):

@@ -131,11 +131,15 @@ def _cost(frame: pd.DataFrame) -> pd.Series:
     return solve.fillna(pd.to_numeric(frame["cpu_time_s"], errors="coerce"))
 
 
-def _ok(frame: pd.DataFrame, state: int = 0) -> pd.DataFrame:
+def successful_ground_states(frame: pd.DataFrame, state: int = 0) -> pd.DataFrame:
+    """Rows of successful tasks for one level (the ground state by default), with ``cost_cpu_s`` and ``peak_mib``."""
     ok = frame[(frame["status"] == "ok") & (frame["state"] == state)].copy()
     ok["cost_cpu_s"] = _cost(ok)
     ok["peak_mib"] = pd.to_numeric(ok["peak_rss_bytes"], errors="coerce") / MIB
     return ok
+
+
+_ok = successful_ground_states  # the name bench/report.py imports
 
 
 # ----------------------------------------------------------------------------- tables
@@ -152,7 +156,7 @@ def agreement_table(frame: pd.DataFrame) -> pd.DataFrame:
 
 def accuracy_vs_cost_table(frame: pd.DataFrame, thresholds: Iterable[float] = THRESHOLDS) -> pd.DataFrame:
     """For each problem (and g) and backend, the cheapest parameters whose ground-state error is below each threshold."""
-    ok = _ok(frame)
+    ok = successful_ground_states(frame)
     rows = []
     for (name, g, backend), group in ok.groupby(["problem_name", "g", "backend"], sort=False):
         measured = group[group["accuracy"].notna()]
@@ -181,7 +185,7 @@ def cost_vs_particle_number_table(frame: pd.DataFrame, accuracy: float = 1e-4) -
     expect for any of them), ``peak_mib`` likewise; ``problems_reached`` counts how many of the
     measured problems with that N reached the accuracy at all.
     """
-    ok = _ok(frame)
+    ok = successful_ground_states(frame)
     ok["n"] = ok["n_up"] + ok["n_down"]
     rows = []
     for (backend, n), group in ok.groupby(["backend", "n"]):
@@ -338,7 +342,7 @@ def plot_error_vs_cost(frame: pd.DataFrame, problem_name: str):
     """Figure: ground-state relative error against CPU time (left) and peak memory (right), per backend and g."""
     from matplotlib.figure import Figure
 
-    ok = _ok(frame)
+    ok = successful_ground_states(frame)
     ok = ok[(ok["problem_name"] == problem_name) & ok["accuracy"].notna()]
     figure = Figure(figsize=(10, 4.2), layout="constrained")
     left, right = figure.subplots(1, 2, sharey=True)

@@ -381,6 +381,7 @@ def test_results_of_another_backend_version_are_recomputed(toy_path, tmp_path):
 # ----------------------------------------------------------------------------- Dask
 
 
+@pytest.mark.slow  # a LocalCluster starts and stops, ~10 s
 def test_dask_local_cluster_gives_the_serial_numbers(tmp_path):
     """The exact two-body backend over a g scan: serial and a 2-worker LocalCluster store identical numbers."""
     pytest.importorskip("trapbench.backends.two_body")
