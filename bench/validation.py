@@ -16,7 +16,8 @@ Checks (the property, and where it holds):
   and h/2) against first-order perturbation theory c1 = sum_ij int phi_i^2 phi_j^2.
 - ``hellmann-feynman``: the reported <sum delta> ("delta") equals dE0/dg by central differences.
 - ``virial``: E = 2 <V_trap> + (g/2) dE/dg for a harmonic trap with contact interaction (from the
-  scaling x -> x/L: T ~ L^-2, V ~ L^2, delta ~ L^-1; common practice, e.g. anchors file Sec. 3.4).
+  scaling x -> x/L: T ~ L^-2, V ~ L^2, delta ~ L^-1, at the minimum of E(L); the exact two-body
+  backend satisfies it to 1e-12 in the tests).
 - ``com-tower``: with one trap frequency omega the centre of mass separates, so every level E has
   a partner at E + omega with at least the same multiplicity.
 - ``parity-labels``: levels labelled even/odd in the full spectrum equal the levels of the even/odd
