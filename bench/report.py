@@ -368,11 +368,16 @@ def _picture(document: Document, path: Path, caption: str) -> Picture:
     return Picture(path, caption, document.figures)
 
 
-def build_document(store, folder: Path, suite=None, task_keys: set[str] | None = None) -> tuple[Document, dict]:
-    """Compose the report (writing its figures into ``folder/figures``); returns it and its tables by name."""
+def build_document(store, folder: Path, suite=None, task_keys: set[str] | None = None,
+                   title: str | None = None) -> tuple[Document, dict]:
+    """Compose the report (writing its figures into ``folder/figures``); returns it and its tables by name.
+
+    ``suite`` supplies the tolerances (and the title unless ``title`` is given); ``task_keys`` limits
+    the report to those tasks (None: every stored result).
+    """
     keys = list(task_keys) if task_keys is not None else None
     raw = store.results_frame(keys=keys)
-    suite_name = suite.name if suite is not None else "all stored results"
+    suite_name = title or (suite.name if suite is not None else "all stored results")
     document = Document(f"trapbench report: {suite_name}")
     tables: dict[str, pd.DataFrame] = {}
     (folder / "figures").mkdir(parents=True, exist_ok=True)
@@ -493,7 +498,8 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
     return document, tables
 
 
-def write_report(store, output: str | Path, suite=None, task_keys: set[str] | None = None) -> list[Path]:
+def write_report(store, output: str | Path, suite=None, task_keys: set[str] | None = None,
+                 title: str | None = None) -> list[Path]:
     """Write report.md, report.html, figures/*.png and tables/*.csv into ``output``; returns the paths."""
     folder = Path(output)
     folder.mkdir(parents=True, exist_ok=True)
@@ -501,7 +507,7 @@ def write_report(store, output: str | Path, suite=None, task_keys: set[str] | No
     if figures.is_dir():
         for old in figures.glob("*.png"):
             old.unlink()
-    document, tables = build_document(store, folder, suite, task_keys)
+    document, tables = build_document(store, folder, suite, task_keys, title)
     written = [folder / p.path for p in document.blocks if isinstance(p, Picture)]
     (folder / "tables").mkdir(exist_ok=True)
     for old in (folder / "tables").glob("*.csv"):

@@ -224,6 +224,16 @@ def test_command_reads_the_store_and_empty_store_says_what_to_run(built, tmp_pat
                  "--from-store"])
     assert code == 0
     assert (output / "report.md").read_text().count("![Figure") == (built["output"] / "report.md").read_text().count("![Figure")
+    # several suites report together; here a second suite naming one of the same computations
+    second = tmp_path / "second.toml"
+    second.write_text('name = "second"\n[[problems]]\nname = "p"\nup = { count = 1 }\ndown = { count = 1 }\n'
+                      'interaction = { g = 1.0 }\n[[backends]]\nname = "two-body"\nparams = { relative_points = 800 }\n')
+    both = tmp_path / "both"
+    assert main(["report", "--suite", str(built["suite_path"]), "--suite", str(second), "--store", str(built["store"]),
+                 "--output", str(both), "--from-store"]) == 0
+    text = (both / "report.md").read_text()
+    assert text.startswith("# trapbench report: report-test + second")
+    assert f"{len(set(built['keys']))} tasks" in text
     empty = tmp_path / "empty"
     code = main(["report", "--suite", str(built["suite_path"]), "--store", str(tmp_path / "none.sqlite"),
                  "--output", str(empty), "--from-store"])

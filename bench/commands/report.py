@@ -1,4 +1,4 @@
-"""``trapbench report``: run (or only read) a suite and write the Markdown/HTML report with its figures."""
+"""``trapbench report``: run (or only read) suites and write the Markdown/HTML report with its figures."""
 
 from __future__ import annotations
 
@@ -10,18 +10,20 @@ from pathlib import Path
 from .sweep import add_execution_arguments, add_store_argument, options_from
 
 NAME = "report"
-HELP = ("run a suite (skipping results already stored) and write reports/: Markdown and HTML with the method map,"
+HELP = ("run suites (skipping results already stored) and write reports/: Markdown and HTML with the method map,"
         " agreement tables, accuracy-vs-cost and physics figures")
 ORDER = 66
 
 
 def register(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--suite", default="quick", help="a built-in suite name or a suite TOML file (default quick)")
+    parser.add_argument("--suite", action="append", default=None, metavar="SUITE",
+                        help="a built-in suite name or a suite TOML file (default quick); repeat to report several"
+                             " together (the first one's tolerances apply), e.g. --suite quick --suite figures")
     add_store_argument(parser)
     parser.add_argument("--output", type=Path, default=Path("reports"), metavar="FOLDER",
                         help="where report.md, report.html, figures/ and tables/ go (default reports/)")
     parser.add_argument("--from-store", action="store_true",
-                        help="do not run anything: report the suite's results already in the store")
+                        help="do not run anything: report the suites' results already in the store")
     add_execution_arguments(parser)
 
 
@@ -34,18 +36,23 @@ def run(args: argparse.Namespace) -> int:
     from ..suite import load_suite
     from ..sweep import limited_tasks, run_sweep
 
-    suite = load_suite(args.suite)
+    suites = [load_suite(name) for name in (args.suite or ["quick"])]
     options = options_from(args)
     start = time.perf_counter()
-    if args.from_store:
-        keys = {t.key for t in limited_tasks(suite, options)}
-        interrupted = False
-    else:
+    keys: set[str] = set()
+    interrupted = False
+    for suite in suites:
+        if args.from_store:
+            keys |= {t.key for t in limited_tasks(suite, options)}
+            continue
         sweep = run_sweep(suite, options)
         print(sweep.summary(), file=sys.stderr)
-        keys, interrupted = set(sweep.task_keys), sweep.interrupted
+        keys |= set(sweep.task_keys)
+        if sweep.interrupted:
+            interrupted = True
+            break
     with Store.open(args.store) as store:
-        written = write_report(store, args.output, suite, keys)
+        written = write_report(store, args.output, suites[0], keys, title=" + ".join(s.name for s in suites))
     print(f"report written to {args.output}/ ({len(written)} files) in {time.perf_counter() - start:.0f} s:"
           f" {written[0]} and {written[1]}", file=sys.stderr)
     return 130 if interrupted else 0
