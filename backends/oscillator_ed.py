@@ -34,7 +34,7 @@ the ``contact`` scalar comes from <sum delta> instead.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import lru_cache
 from typing import Any
 
@@ -281,16 +281,27 @@ def extrapolate(cutoffs, energies, renormalized: bool):
     Bare contact interaction: the error decays as c^(-1/2) (the delta function's oscillator-basis
     expansion; measured p = 0.50-0.53 for 1+1 at g = 0.5..10, see tests), so the model is
     E(c) = E_inf + a c^(-1/2) + b c^(-1) (``extrapolate_polynomial`` in h = c^(-1/2)).
-    Renormalized interaction: faster, with a power that depends on the system (measured ~1.5-2 for
-    2+2), so E(c) = E_inf + A c^(-p) with p fitted (``extrapolate_power_law``).
+
+    Renormalized interaction: E(c) = E_inf + A c^(-p) with p fitted to the last three cutoffs
+    (``extrapolate_power_law``; its error bar shifts p by 25%). At reachable cutoffs p is still
+    drifting (2+2, g = 2: p = 0.66 at c = 8-16, 1.76 at 24-32, 1.67 at 36-44), so the error bar is
+    also at least twice the change of E_inf from the previous three cutoffs, and it is the whole
+    correction |E_last - E_inf| when p moved by more than 25% or fewer than four cutoffs were run.
     """
     cutoffs = np.asarray(cutoffs, dtype=float)
-    if renormalized:
-        # the fitted power still rises with the cutoff at reachable cutoffs (2+2: 0.7 at c ~ 12,
-        # 1.8 at c ~ 28), so a three-point fit under-corrects; the whole correction |E_last - E_inf|
-        # is kept as the floor of the error bar (honest, conservative in the asymptotic regime)
-        return extrapolate_power_law(cutoffs, energies, floor_fraction=1.0)
-    return extrapolate_polynomial(cutoffs**-0.5, energies, powers=(1.0, 2.0))
+    energies = np.asarray(energies, dtype=float)
+    if not renormalized:
+        return extrapolate_polynomial(cutoffs**-0.5, energies, powers=(1.0, 2.0))
+    fit = extrapolate_power_law(cutoffs[-3:], energies[-3:])
+    correction = abs(energies[-1] - fit.value)
+    error = max(fit.error, correction)
+    if len(cutoffs) >= 4:
+        previous = extrapolate_power_law(cutoffs[-4:-1], energies[-4:-1])
+        power, earlier = fit.parameters["power"], previous.parameters["power"]
+        error = max(fit.error, 2 * abs(fit.value - previous.value))
+        if abs(power - earlier) > 0.25 * power:
+            error = max(error, correction)
+    return replace(fit, error=float(error), steps=tuple(cutoffs.tolist()), values=tuple(energies.tolist()))
 
 
 # ----------------------------------------------------------------------------- backend
@@ -315,7 +326,7 @@ class OscillatorEDBackend(Backend):
             allow_none=True,
         ),
         Parameter("renormalized", bool, True, "replace g by g_eff(cutoff) fixed by the exact 1+1 energy"),
-        Parameter("ladder", int, 3, "number of cutoffs solved (>= 3 extrapolates, 2 gives a difference)", minimum=1),
+        Parameter("ladder", int, 4, "number of cutoffs solved (>= 3 extrapolates, 2 gives a difference)", minimum=1),
         Parameter("ladder_step", int, 4, "spacing between successive cutoffs of the ladder", minimum=1),
         Parameter("extra_states", int, 2, "levels computed beyond the requested ones (degeneracies)", minimum=0),
         Parameter("tolerance", float, 1e-10, "Lanczos (eigsh) relative tolerance", minimum=0.0),
@@ -345,10 +356,13 @@ class OscillatorEDBackend(Backend):
 
     def _compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         kind = params["truncation"]
-        cutoff = params["cutoff"] if params["cutoff"] is not None else self.default_cutoff(problem, kind)
+        cutoff = params["cutoff"]
+        if cutoff is None:  # the default ladder must start at a meaningful cutoff
+            lowest = max(problem.up.count, problem.down.count, 1) if kind == "orbital" else 2
+            cutoff = max(self.default_cutoff(problem, kind), lowest + params["ladder_step"] * (params["ladder"] - 1))
         cutoffs = [cutoff - params["ladder_step"] * i for i in range(params["ladder"])][::-1]
-        low = max(p for p in (problem.up.count, problem.down.count)) if kind == "orbital" else 0
-        if cutoffs[0] < max(low, 1) + (0 if kind == "energy" else 0):
+        lowest = max(problem.up.count, problem.down.count, 1) if kind == "orbital" else 1
+        if cutoffs[0] < lowest:
             raise SpecError(
                 "param.cutoff",
                 f"the ladder {cutoffs} goes below the smallest meaningful cutoff; raise cutoff or lower ladder/ladder_step",
