@@ -43,7 +43,6 @@ SCALING_ACCURACY = 1e-3
 SCALING_MAX_STATES = 4
 MAX_COST_FIGURES = 24
 FIGURE_DPI = 100
-MIB = 1024 * 1024
 
 
 # ----------------------------------------------------------------------------- document blocks
