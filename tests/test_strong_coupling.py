@@ -215,3 +215,15 @@ def test_spin_resolved_densities_are_the_limit_of_exact_diagonalization(backend)
         gaps.append(max(np.max(np.abs(exact.observables[k].values - strong.observables[k].values))
                         for k in ("density_up", "density_down")))
     assert gaps[1] < 0.6 * gaps[0] and gaps[1] < 0.015  # peak densities are ~0.6
+
+
+def test_manifold_parities_and_order_match_exact_diagonalization(backend):
+    # at g = 40 every state of the 2+1 and 3+1 manifolds: same parity labels, energies within both error bars
+    ed = get("oscillator-ed")
+    for counts, size in (((2, 1), 3), ((3, 1), 4)):
+        problem = Problem.create(*counts, 40.0, states=size)
+        exact, strong = ed.solve(problem), backend.solve(problem)
+        assert [s["parity"] for s in exact.states] == [s["parity"] for s in strong.states]
+        for i in range(size):
+            allowed = 3 * (exact.energy_errors[i] + strong.energy_errors[i]) + 1e-9
+            assert abs(exact.energies[i] - strong.energies[i]) <= allowed
