@@ -152,7 +152,11 @@ class LatticeDMRGBackend(Backend):
         spacings, half_width = resolve_ladder(problem, params["spacings"], params["x_max"])
         with threadpool_limits(params["threads"]):
             return solve_ladder(
-                problem, spacings, half_width, lambda grid, final: solve_on_grid(problem, grid, final, chis, params)
+                problem,
+                spacings,
+                half_width,
+                lambda grid, final: solve_on_grid(problem, grid, final, chis, params),
+                keep=problem.targets.states,
             )
 
 
@@ -236,10 +240,7 @@ def solve_on_grid(problem: Problem, grid: lattice.Grid, final: bool, chis, param
         warnings=warnings,
     )
     if final:
-        for k, site in enumerate(sites):
-            observables, notes = lattice_observables.observables(problem, grid, site, k)
-            levels.observables.update(observables)
-            levels.warnings.extend(n for n in notes if n not in levels.warnings)
+        levels.observe = lambda level, rank: lattice_observables.observables(problem, grid, sites[level], rank)
     return levels
 
 def _expectations(problem: Problem, psi, final: bool) -> lattice_observables.SiteExpectations:

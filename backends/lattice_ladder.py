@@ -6,7 +6,9 @@ scalars, and on the finest grid the observables). Each level and each scalar is 
 ``lattice.continuum_limit`` (E(a) = E0 + c2 a^2 + c4 a^4, weighted least squares; see
 ``backends/extrapolation.py`` for the error bar). The reported error of a level is the continuum
 error bar plus the largest solver error met on the ladder (e.g. DMRG truncation), a deliberately
-conservative sum. Observables are those of the finest lattice, on its sites, and say so.
+conservative sum. Levels are followed across the ladder by their position in the solver's list
+(which may group them, e.g. by parity sector), then sorted by the extrapolated energy, and the
+lowest ``keep`` are reported. Observables are those of the finest lattice, on its sites, and say so.
 """
 
 from __future__ import annotations
@@ -25,14 +27,18 @@ from .result import Observable, Solution
 
 @dataclass
 class LatticeLevels:
-    """What a lattice solver found on one grid: ``energies`` ascending, one entry per level."""
+    """What a lattice solver found on one grid, one entry per level in a fixed order (e.g. by sector).
+
+    ``observe(level, rank)`` (finest grid only) returns the observables of ``level`` named for its
+    final position ``rank`` (suffix "@rank"), and notes.
+    """
 
     energies: list[float]
     solver_errors: list[float]
     states: list[dict[str, Any]]
     scalars: list[dict[str, float]] = field(default_factory=list)
     site_densities: tuple[np.ndarray, np.ndarray] | None = None  # <n_{s,j}> of the lowest level
-    observables: dict[str, Observable] = field(default_factory=dict)
+    observe: Callable[[int, int], tuple[dict[str, Observable], list[str]]] | None = None
     diagnostics: dict[str, Any] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
 
@@ -64,9 +70,11 @@ def solve_ladder(
     spacings: Sequence[float],
     half_width: float,
     solve_on_grid: SolveOnGrid,
+    keep: int,
     edge_tolerance: float = 1e-8,
 ) -> Solution:
-    """Solve on every spacing (coarsest first, observables on the finest) and extrapolate to a = 0."""
+    """Solve on every spacing (coarsest first, observables on the finest), extrapolate to a = 0 and
+    report the ``keep`` lowest levels."""
     grids = [lattice.make_grid(problem, a, half_width) for a in spacings]
     runs = [solve_on_grid(grid, i == len(grids) - 1) for i, grid in enumerate(grids)]
     steps = [grid.spacing for grid in grids]
@@ -80,12 +88,13 @@ def solve_ladder(
         errors.append(fit.error + solver_error)
         fits.append(fit.as_dict() | {"solver_error": solver_error})
 
-    order = sorted(range(n_levels), key=lambda i: energies[i])
+    order = sorted(range(n_levels), key=lambda i: energies[i])[:keep]
     finest = runs[-1]
     scalars = {}
     scalar_fits = {}
-    for level in range(min(n_levels, min(len(run.scalars) for run in runs))):
-        rank = order.index(level)
+    for rank, level in enumerate(order):
+        if level >= min(len(run.scalars) for run in runs):
+            continue
         for name in finest.scalars[level]:
             fit = lattice.continuum_limit(steps, [run.scalars[level][name] for run in runs])
             key = name if rank == 0 else f"{name}@{rank}"
@@ -100,21 +109,25 @@ def solve_ladder(
                 if text:
                     warnings.append(text)
 
-    if order != list(range(n_levels)):
-        warnings.append("extrapolated levels changed order against the finest lattice; energies and scalars are sorted by energy, observables keep the finest lattice's order")
+    observables = {}
+    if finest.observe is not None:
+        for rank, level in enumerate(order):
+            found, notes = finest.observe(level, rank)
+            observables.update(found)
+            warnings.extend(n for n in notes if n not in warnings)
     return Solution(
         energies=[energies[i] for i in order],
         states=[finest.states[i] for i in order],
-        observables=finest.observables,
+        observables=observables,
         scalars=scalars,
-        error_estimate=max(errors),
+        error_estimate=max(errors[i] for i in order),
         energy_errors=[errors[i] for i in order],
         diagnostics={
             "half_width": half_width,
             "spacings": steps,
             "sites": [grid.sites for grid in grids],
-            "lattice_energies": [list(run.energies[:n_levels]) for run in runs],
-            "continuum_fits": fits,
+            "lattice_energies": [[run.energies[i] for i in order] for run in runs],
+            "continuum_fits": [fits[i] for i in order],
             "scalar_fits": scalar_fits,
             "observables_on": f"sites of the finest lattice (a = {steps[-1]:.6g}), not extrapolated",
             "per_spacing": [run.diagnostics for run in runs],

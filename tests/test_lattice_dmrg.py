@@ -27,15 +27,24 @@ def on_grid(problem, spacing, half_width, chi=(16, 64), final=False):
     return grid, solve_on_grid(problem, grid, final, params["chi"], params)
 
 
-@pytest.mark.parametrize("g", [-2.0, 2.0])
-def test_dmrg_equals_lattice_diagonalization_by_quspin_on_the_same_lattice(g):
-    # Reference: quspin's spinful_fermion_basis_1d Hamiltonian built term by term (an independent code path).
-    problem = Problem.create(2, 2, g, mass_down=40 / 6, states=2)
+def test_dmrg_equals_lattice_ed_on_the_same_small_lattice():
+    # lattice-ed's product-basis diagonalization of the same lattice Hamiltonian (issue check: 1e-8).
+    from trapbench.backends.lattice_ed import solve_on_grid as ed_on_grid
+
+    problem = Problem.create(2, 2, -2.0, mass_down=40 / 6, states=2)
     grid, levels = on_grid(problem, 0.6, 3.3)
     assert grid.sites == 12
-    exact, _, _ = quspin_levels(problem, grid, 2)
+    exact = sorted(ed_on_grid(problem, grid, final=False).energies)[:2]
     np.testing.assert_allclose(levels.energies, exact, rtol=0, atol=1e-8)
     assert max(levels.solver_errors) < 1e-7
+
+
+def test_dmrg_equals_lattice_diagonalization_by_quspin_on_the_same_lattice():
+    # Reference: quspin's spinful_fermion_basis_1d Hamiltonian built term by term (an independent code path).
+    problem = Problem.create(2, 2, 2.0, mass_down=40 / 6)
+    grid, levels = on_grid(problem, 0.6, 3.3)
+    exact, _, _ = quspin_levels(problem, grid, 1)
+    assert levels.energies[0] == pytest.approx(exact[0], abs=1e-8)
 
 
 def test_dmrg_free_fermions_in_a_box_equal_the_closed_form_lattice_spectrum():
@@ -65,7 +74,7 @@ def test_dmrg_contact_density_is_the_derivative_of_the_energy():
     assert levels.scalars[0]["delta"] == pytest.approx((plus - minus) / (2 * h), abs=1e-6)
     # normalizations of the continuum-normalized observables (OBSERVABLE_NAMES)
     a = grid.spacing
-    obs = levels.observables
+    obs, _ = levels.observe(0, 0)
     assert np.sum(obs["density_up"].values) * a == pytest.approx(1.0, abs=1e-10)
     assert np.trace(obs["obdm_down"].values) * a == pytest.approx(1.0, abs=1e-10)
     assert np.sum(obs["pair_position"].values) * a * a == pytest.approx(1.0, abs=1e-10)
@@ -83,7 +92,7 @@ def test_dmrg_density_matches_quspin_ground_state():
         for j in range(grid.sites):
             op = hamiltonian([[term, [[1.0, j]]]], [], basis=basis, dtype=np.float64, check_symm=False, check_herm=False)
             site_density.append(op.expt_value(vectors[:, 0]).real)
-        np.testing.assert_allclose(levels.observables[name].values * grid.spacing, site_density, atol=1e-8)
+        np.testing.assert_allclose(levels.observe(0, 0)[0][name].values * grid.spacing, site_density, atol=1e-8)
 
 
 @pytest.mark.slow

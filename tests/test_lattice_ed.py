@@ -1,0 +1,171 @@
+"""lattice-ed against closed forms, quspin's independent lattice Hamiltonian, Busch's two-body roots,
+a spectral (sinc-DVR) one-body solution, lattice-dmrg and oscillator-ed."""
+
+from __future__ import annotations
+
+import importlib.util
+import itertools
+import math
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+sys.path.insert(0, str(Path(__file__).parent))
+from lattice_reference import quspin_levels  # noqa: E402
+
+from trapbench.backends import fock_ed, lattice  # noqa: E402
+from trapbench.backends.lattice_ed import LatticeEDBackend, lattice_hamiltonian, pair_correlation, solve_on_grid  # noqa: E402
+from trapbench.backends.registry import get  # noqa: E402
+from trapbench.problems.spec import Problem  # noqa: E402
+
+BACKEND = LatticeEDBackend()
+
+
+def free_many_body_levels(levels_up, levels_down, n_up, n_down, k):
+    """The k lowest sums of distinct one-body levels per species (non-interacting fermions)."""
+    ups = sorted(sum(c) for c in itertools.combinations(levels_up[: n_up + 4], n_up))
+    downs = sorted(sum(c) for c in itertools.combinations(levels_down[: n_down + 4], n_down))
+    return sorted(u + d for u in ups for d in downs)[:k]
+
+
+def test_free_fermions_in_a_box_equal_the_closed_form_lattice_spectrum():
+    # g = 0 in a hard-wall box: one-body levels 2 t_s (1 - cos(n pi / (L + 1))) (closed form of the
+    # tridiagonal Toeplitz matrix); many-body levels are sums over occupied levels.
+    problem = Problem.from_dict(
+        {
+            "up": {"count": 2},
+            "down": {"count": 1, "mass": 40 / 6},
+            "trap": {"shape": "box", "half_width": 2.0},
+            "interaction": {"g": 0.0},
+            "targets": {"states": 4},
+        }
+    )
+    grid = lattice.make_grid(problem, 0.2, 2.0)
+    n = np.arange(1, grid.sites + 1)
+    one_body = {s.name: 2 * lattice.hopping(s, grid.spacing) * (1 - np.cos(n * np.pi / (grid.sites + 1))) for s in problem.species}
+    levels = solve_on_grid(problem, grid, final=False)
+    expected = free_many_body_levels(one_body["up"], one_body["down"], 2, 1, 8)
+    got = sorted(levels.energies)
+    np.testing.assert_allclose(got[:4], expected[:4], atol=1e-10)
+
+
+@pytest.mark.parametrize("g", [-2.0, 2.0])
+def test_lattice_hamiltonian_equals_quspin_on_the_same_lattice(g):
+    # quspin's spinful_fermion_basis_1d, built term by term, is an independent construction.
+    problem = Problem.create(2, 2, g, mass_down=40 / 6, states=3)
+    grid = lattice.make_grid(problem, 0.6, 3.0)
+    levels = solve_on_grid(problem, grid, final=False)
+    exact, _, _ = quspin_levels(problem, grid, 3)
+    np.testing.assert_allclose(sorted(levels.energies)[:3], exact, atol=1e-10)
+    assert max(levels.solver_errors) < 1e-8
+
+
+CASES_1P1 = [(1.0, -2.0), (1.0, 2.0), (40 / 6, -2.0), (40 / 6, 2.0)]
+
+
+@pytest.mark.parametrize("mass_down, g", CASES_1P1)
+def test_continuum_limit_of_1p1_matches_busch_within_the_error_bar(mass_down, g):
+    # Reference: the two-body backend, the exact root of Busch et al., Found. Phys. 28, 549 (1998);
+    # the anchors file (tables 2.1, 2.2) lists the same values, e.g. 1.56467480944 for m = 40/6, g = 2.
+    problem = Problem.create(1, 1, g, mass_down=mass_down, states=3)
+    exact = get("two-body").solve(problem)
+    scale = lattice.length_scale(problem)
+    result = BACKEND.solve(problem, spacings=[f * scale for f in (0.4, 0.3, 0.22, 0.16)], x_max=5.0)
+    for k in range(3):
+        assert abs(result.energies[k] - exact.energies[k]) <= result.energy_errors[k]
+        assert abs(result.energies[k] - exact.energies[k]) <= 1e-4 * abs(exact.energies[k])
+        assert result.states[k]["parity"] == exact.states[k]["parity"]
+    if (mass_down, g) == (1.0, 2.0):
+        # anchors 3.4: <delta> = dE/dg = 0.1397611296 at g = 2 (Hellmann-Feynman on the exact root)
+        assert result.scalars["delta"] == pytest.approx(0.1397611296, rel=1e-4)
+
+
+def test_non_harmonic_trap_free_spectrum_matches_a_spectral_one_body_solution():
+    # g = 0 in a harmonic trap with a Gaussian barrier: the continuum energy is the sum of the lowest
+    # one-body levels, computed here independently with the sinc discrete-variable representation
+    # (D. T. Colbert, W. H. Miller, J. Chem. Phys. 96, 1982 (1992): T_ii = pi^2/(6 m h^2),
+    # T_ij = (-1)^(i-j) / (m h^2 (i-j)^2)), which converges exponentially in the grid step h.
+    problem = Problem.from_dict(
+        {
+            "up": {"count": 1},
+            "down": {"count": 1, "mass": 2.0},
+            "trap": {"shape": "harmonic+gaussian", "barrier_height": 3.0, "barrier_width": 0.5},
+            "interaction": {"g": 0.0},
+            "targets": {"states": 2},
+        }
+    )
+    x = np.linspace(-9, 9, 241)
+    h = x[1] - x[0]
+    i = np.arange(len(x))
+    diff = i[:, None] - i[None, :]
+    shape = np.where(diff == 0, math.pi**2 / 6, (-1.0) ** diff / np.where(diff == 0, 1, diff) ** 2)
+    levels = {}
+    for s in problem.species:
+        kinetic = shape / (s.mass * h**2)
+        levels[s.name] = np.linalg.eigvalsh(kinetic + np.diag(problem.trap.potential(x, s)))
+    expected = free_many_body_levels(levels["up"], levels["down"], 1, 1, 2)
+    result = BACKEND.solve(problem, spacings=(0.25, 0.2, 0.15, 0.12))
+    for k in range(2):
+        assert abs(result.energies[k] - expected[k]) <= result.energy_errors[k]
+        assert abs(result.energies[k] - expected[k]) <= 1e-5 * expected[k]
+
+
+def test_momentum_pair_correlation_equals_the_pair_tensor_route_and_integrates_correctly():
+    problem = Problem.create(2, 1, 1.5, observables=["pair_momentum", "noise", "pair_position", "momentum"])
+    grid = lattice.make_grid(problem, 0.5, 3.0)
+    hamiltonian = lattice_hamiltonian(problem, grid)
+    _, vectors = fock_ed.lowest_eigenpairs(hamiltonian.as_linear_operator(), 1)
+    momenta = np.linspace(-grid.brillouin_zone, grid.brillouin_zone, 61)
+    amplitudes = lattice.momentum_orbitals(grid, momenta)
+    fast = pair_correlation(hamiltonian.basis, vectors[:, 0], amplitudes)
+    # independent route: the engine's pair tensor <c+_a c_b d+_c d_d> evaluated on the same amplitudes
+    gamma = fock_ed.pair_tensor(hamiltonian.basis, vectors[:, 0])
+    np.testing.assert_allclose(fast, fock_ed.pair_on_grid(gamma, amplitudes, amplitudes), atol=1e-12)
+    # the full-zone integral of G(p1, p2) is N_up N_down (periodic integrand: the trapezoid rule is exact)
+    step = momenta[1] - momenta[0]
+    assert np.sum(fast[:-1, :-1]) * step**2 == pytest.approx(2.0, abs=1e-10)
+
+
+def test_noise_vanishes_without_interaction_and_observables_are_normalized():
+    # g = 0: the state is a product of the two species' Slater determinants, so
+    # G(p1, p2) = n_up(p1) n_down(p2) exactly and the noise map C is zero (closed form).
+    wanted = ["pair_momentum", "noise", "pair_position", "momentum", "density", "obdm"]
+    free = Problem.create(2, 1, 0.0, observables=wanted)
+    result = BACKEND.solve(free, spacings=(0.6, 0.5), x_max=4.0)
+    assert np.max(np.abs(result.observables["noise"].values)) < 1e-12
+    assert result.scalars["noise_integral"] < 1e-20
+    interacting = BACKEND.solve(free.at(2.0).with_targets(observables=wanted), spacings=(0.6, 0.5), x_max=4.0)
+    obs = interacting.observables
+    assert np.max(np.abs(obs["noise"].values)) > 1e-4
+    a = interacting.diagnostics["spacings"][-1]
+    assert np.sum(obs["density_up"].values) * a == pytest.approx(2.0, abs=1e-10)
+    assert np.sum(obs["pair_position"].values) * a * a == pytest.approx(2.0, abs=1e-10)
+    p = obs["momentum_down"].axes["p"]
+    assert np.trapezoid(obs["momentum_down"].values, p) == pytest.approx(1.0, abs=2e-3)
+
+
+@pytest.mark.skipif(importlib.util.find_spec("trapbench.backends.oscillator_ed") is None, reason="oscillator-ed not installed yet")
+@pytest.mark.parametrize(
+    "n_up, n_down, mass_down, spacings, x_max",
+    [(2, 1, 40 / 6, (0.3, 0.25, 0.2), 5.5), (2, 2, 1.0, (0.6, 0.5, 0.4), 5.5)],
+)
+def test_few_body_energies_agree_with_oscillator_ed_within_combined_error_bars(n_up, n_down, mass_down, spacings, x_max):
+    # An independent method: exact diagonalization in the harmonic-oscillator basis (other backend).
+    problem = Problem.create(n_up, n_down, 1.0, mass_down=mass_down)
+    other = get("oscillator-ed").solve(problem)
+    result = BACKEND.solve(problem, spacings=spacings, x_max=x_max)
+    bar = result.error_estimate + (other.error_estimate or 0.0)
+    assert abs(result.energies[0] - other.energies[0]) <= bar
+    assert result.error_estimate < 1e-2
+
+
+def test_mass_ratio_40_over_6_runs_at_g_0_to_the_closed_form_and_large_systems_are_refused():
+    # g = 0 with the same omega: E = (N_up^2 + N_down^2) / 2 for any masses (anchors section 1, derived).
+    result = BACKEND.solve(Problem.create(2, 1, 0.0, mass_down=40 / 6), spacings=(0.3, 0.25, 0.2), x_max=5.5)
+    assert abs(result.energies[0] - 2.5) <= result.error_estimate
+    assert result.states[0]["parity"] == -1  # two up fermions in orbitals 0 and 1
+    assert not BACKEND.supports(Problem.create(4, 4, 2.0))
+    assert "lattice-dmrg" in BACKEND.supports(Problem.create(4, 4, 2.0)).reason
+    assert not BACKEND.supports(Problem.create(2, 0, 1.0))
