@@ -229,7 +229,7 @@ def agreement_by_source(frame: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
             record = {"problem": last["problem_name"], "g": last["g"], "state": int(last["state"]),
                       "backend": last["backend"], "params": last["params_text"], "energy": last["energy"],
                       "error bar": last["error_bar"], "reference": last["ref_value"], "kind": last["ref_kind"],
-                      "|E - ref|": last["abs_error"], "within tolerance": bool(last["within_tolerance"]),
+                      "abs(E - ref)": last["abs_error"], "within tolerance": bool(last["within_tolerance"]),
                       "within error bar": last["within_error_bar"],
                       "runs agreeing": f"{int(runs['within_tolerance'].astype(bool).sum())}/{len(runs)}"}
             picked.append(record)
@@ -253,8 +253,8 @@ def slope_agreement(frame: pd.DataFrame) -> pd.DataFrame:
             continue
         reference = first_order_slope(problem)
         rows.append({"problem": r["problem_name"], "backend": r["backend"], "params": r["params_text"],
-                     "<sum delta> at g=0": r[column], "first-order c1": reference,
-                     "|difference|": abs(r[column] - reference), "source": FIRST_ORDER_SOURCE})
+                     "⟨sum delta⟩ at g=0": r[column], "first-order c1": reference,
+                     "abs(difference)": abs(r[column] - reference), "source": FIRST_ORDER_SOURCE})
     return pd.DataFrame(rows)
 
 
@@ -418,7 +418,7 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
     if not slopes.empty:
         tables["slope_g0"] = slopes
         document.add(Heading(3, "Slope at g = 0"),
-                     Table(slopes.drop(columns="source"), "The stored <sum delta(x_up - x_down)> = dE/dg at g = 0 against"
+                     Table(slopes.drop(columns="source"), "The stored ⟨sum delta(x_up - x_down)⟩ = dE/dg at g = 0 against"
                            " the first-order coefficient c1 = sum_ij int phi_i^2 phi_j^2 dx (source: "
                            + slopes["source"].iloc[0] + ").", "slope_g0"))
 

@@ -220,7 +220,7 @@ def densities_figure(frame: pd.DataFrame, store) -> FigureOutcome:
             ax.plot(x, n, color="tab:red" if heavy else "tab:blue", lw=1.6, label=label)
             norm = float(np.trapezoid(n, x))
             rows.append({"g": float(task.g), "species": label, "integral n dx": norm,
-                         "<x^2>": float(np.trapezoid(x * x * n, x) / norm), "n(0)": float(np.interp(0.0, x, n)),
+                         "⟨x^2⟩": float(np.trapezoid(x * x * n, x) / norm), "n(0)": float(np.interp(0.0, x, n)),
                          "backend": task.backend})
         ax.set_title(f"g = {task.g:g}")
         ax.set_xlabel(X_LABEL)
@@ -230,7 +230,7 @@ def densities_figure(frame: pd.DataFrame, store) -> FigureOutcome:
     caption = (f"One-body densities n_up(x) and n_down(x) of the lowest state of {int(n_up)}+{int(n_down)} fermions with"
                f" m_up/m_down = {ratio_text(mass_up / mass_down)} (each integrates to its particle number), at"
                f" g = {', '.join(f'{g:g}' for g in group['g'])}. With growing repulsion the light species is pushed"
-               " out of the centre, where the heavy one sits: the table gives <x^2> and n(0) per species."
+               " out of the centre, where the heavy one sits: the table gives ⟨x^2⟩ and n(0) per species."
                " Computed with " + _backends_text(group) + ".")
     return FigureOutcome(key, title, caption, figure, pd.DataFrame(rows))
 
@@ -269,7 +269,7 @@ def noise_maps_figure(frame: pd.DataFrame, store) -> FigureOutcome:
         rows.append({"mass ratio": ratio_text(task.ratio), "g": float(g), "max C": float(values.max()),
                      "min C": float(values.min()), "sum C dp dp": float(values.sum() * d_up * d_down),
                      "noise_integral (exact)": _scalar(frame, task.task_key, "noise_integral"), "backend": task.backend})
-    caption = (f"Noise correlation C(p_up, p_down) = <n_up(p_up) n_down(p_down)> - n_up(p_up) n_down(p_down) of the"
+    caption = (f"Noise correlation C(p_up, p_down) = ⟨n_up(p_up) n_down(p_down)⟩ - n_up(p_up) n_down(p_down) of the"
                f" lowest state of {int(n_up)}+{int(n_down)} fermions at g = {g:g}, for m_up/m_down = "
                + ", ".join(ratio_text(r) for r in group["ratio"]) + ". Red: momenta found together more often than"
                " independently. For equal masses the positive ridge along p_up = -p_down shows pairs of zero total"

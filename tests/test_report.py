@@ -131,6 +131,14 @@ def test_markdown_html_and_every_linked_figure_are_written(built):
         assert title in page
     for written in built["written"]:
         assert written.exists()
+    # every Markdown table row has as many cells as its header (no stray '|' in names or values)
+    widths = []
+    for line in markdown.splitlines() + [""]:
+        if line.startswith("|"):
+            widths.append(len(re.findall(r"(?<!\\)\|", line)))
+        elif widths:
+            assert len(set(widths)) == 1, widths
+            widths = []
 
 
 def test_missing_figure_data_is_named_with_the_command_to_run(built):
@@ -200,8 +208,8 @@ def test_spectra_and_density_tables_are_the_stored_numbers(built):
     densities = pd.read_csv(output / "tables" / "densities.csv")
     # each density integrates to its particle number (1 each here) on the stored grid
     assert np.allclose(densities["integral n dx"], 1.0, atol=2e-3)
-    # the heavy particle (mass 20/3) is narrower: at g = 0 <x^2> = 1/(2 m omega) per particle
-    free = densities[densities["g"] == 0.0].set_index("species")["<x^2>"]
+    # the heavy particle (mass 20/3) is narrower: at g = 0 ⟨x^2⟩ = 1/(2 m omega) per particle
+    free = densities[densities["g"] == 0.0].set_index("species")["⟨x^2⟩"]
     heavy = [v for k, v in free.items() if k.startswith("heavy")][0]
     light = [v for k, v in free.items() if k.startswith("light")][0]
     assert heavy == pytest.approx(1 / (2 * 20 / 3), rel=1e-3)
