@@ -30,6 +30,7 @@ import pandas as pd
 
 from ..backends import registry
 from ..backends.base import SolverError, Unsupported
+from ..problems.errors import SpecError
 from ..problems.spec import Problem
 
 DEFINITION = "Delta(N+1) = E(N+1) - [E(N) + E(N+2)]/2, N even, N_up = ceil(N/2), N_down = floor(N/2)"
@@ -61,7 +62,8 @@ def ground_energies(
         else:
             try:
                 result = backend.solve(problem, **(params or {}))
-            except (Unsupported, SolverError, ArithmeticError, MemoryError) as exc:
+            except (Unsupported, SolverError, SpecError, ArithmeticError, MemoryError) as exc:
+                # SpecError here: the backend's parameters do not fit this size (e.g. a basis cap)
                 row.update(status="failed", reason=f"{exc.__class__.__name__}: {exc}")
             else:
                 error = result.energy_errors[0] if result.energy_errors else result.error_estimate

@@ -65,6 +65,25 @@ def test_unsupported_sizes_are_reported_not_hidden():
     assert set(gaps["backend"]) == {"perturbative"}
 
 
+def test_a_size_the_parameters_cannot_handle_is_a_row_not_a_crash():
+    class Capped:
+        name = "capped"
+
+        def supports(self, problem):
+            return get("perturbative").supports(problem)
+
+        def solve(self, problem, **params):
+            if problem.n_particles > 3:
+                from trapbench.problems.errors import SpecError
+
+                raise SpecError("param.max_dimension", "basis too large for this size")
+            return get("perturbative").solve(problem)
+
+    energies = ground_energies(Capped(), -0.5, range(2, 6))
+    assert list(energies["status"]) == ["ok", "ok", "failed", "failed"]
+    assert "max_dimension" in energies.loc[2, "reason"]
+
+
 def test_script_prints_both_tables(capsys):
     assert main(["-b", "perturbative", "--g", "-0.5", "--max-particles", "5"]) == 0
     out = capsys.readouterr().out
