@@ -368,11 +368,12 @@ def _picture(document: Document, path: Path, caption: str) -> Picture:
 
 
 def build_document(store, folder: Path, suite=None, task_keys: set[str] | None = None,
-                   title: str | None = None) -> tuple[Document, dict]:
+                   title: str | None = None, command: str | None = None) -> tuple[Document, dict]:
     """Compose the report (writing its figures into ``folder/figures``); returns it and its tables by name.
 
     ``suite`` supplies the tolerances (and the title unless ``title`` is given); ``task_keys`` limits
-    the report to those tasks (None: every stored result).
+    the report to those tasks (None: every stored result); ``command`` is the command line that
+    regenerates the report, quoted at its top.
     """
     keys = list(task_keys) if task_keys is not None else None
     raw = store.results_frame(keys=keys)
@@ -392,7 +393,8 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
         + ", ".join(f"{n} {s}" for s, n in statuses.items()) + "). Every number below comes from the store."
         " Units: hbar = omega = m0 = 1; energies in hbar omega, g in sqrt(hbar^3 omega/m0), lengths in"
         " sqrt(hbar/(m0 omega)), momenta in sqrt(hbar m0 omega). Relative errors are against a reference value"
-        " where one exists, else the backend's own error bar over |E|; cost is the CPU time of the solve."))
+        " where one exists, else the backend's own error bar over |E|; cost is the CPU time of the solve."
+        + (f" Regenerate with `{command}`." if command else "")))
 
     document.add(Heading(2, "Method map"))
     tables["method_map"] = method_map(frame)
@@ -498,7 +500,7 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
 
 
 def write_report(store, output: str | Path, suite=None, task_keys: set[str] | None = None,
-                 title: str | None = None) -> list[Path]:
+                 title: str | None = None, command: str | None = None) -> list[Path]:
     """Write report.md, report.html, figures/*.png and tables/*.csv into ``output``; returns the paths."""
     folder = Path(output)
     folder.mkdir(parents=True, exist_ok=True)
@@ -506,7 +508,7 @@ def write_report(store, output: str | Path, suite=None, task_keys: set[str] | No
     if figures.is_dir():
         for old in figures.glob("*.png"):
             old.unlink()
-    document, tables = build_document(store, folder, suite, task_keys, title)
+    document, tables = build_document(store, folder, suite, task_keys, title, command)
     written = [folder / p.path for p in document.blocks if isinstance(p, Picture)]
     (folder / "tables").mkdir(exist_ok=True)
     for old in (folder / "tables").glob("*.csv"):

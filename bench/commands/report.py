@@ -52,7 +52,8 @@ def run(args: argparse.Namespace) -> int:
             interrupted = True
             break
     with Store.open(args.store) as store:
-        written = write_report(store, args.output, suites[0], keys, title=" + ".join(s.name for s in suites))
+        written = write_report(store, args.output, suites[0], keys, title=" + ".join(s.name for s in suites),
+                               command="trapbench report " + " ".join(f"--suite {name}" for name in args.suite or ["quick"]))
     print(f"report written to {args.output}/ ({len(written)} files) in {time.perf_counter() - start:.0f} s:"
           f" {written[0]} and {written[1]}", file=sys.stderr)
     return 130 if interrupted else 0
