@@ -112,16 +112,22 @@ def extrapolate_power_law(
         raise ValueError(f"a power law needs at least 3 cutoffs, got {len(n)}")
 
     def fit(nn: np.ndarray, yy: np.ndarray) -> tuple[float, float, float]:
+        # weighted straight-line fit y = a + b x, x = n^-p, for every p of the scan at once
+        # (closed-form normal equations; the same minimizer as one least-squares solve per p)
         weights = (nn / nn[-1]) ** 2
-        best = None
-        for p in np.linspace(*power_bounds, 581):
-            design = np.column_stack([np.ones_like(nn), nn ** (-p)])
-            w = np.sqrt(weights)
-            coef, *_ = np.linalg.lstsq(design * w[:, None], yy * w, rcond=None)
-            res = float(np.sum(weights * (yy - design @ coef) ** 2))
-            if best is None or res < best[0]:
-                best = (res, float(coef[0]), float(coef[1]), float(p))
-        return best[1], best[2], best[3]
+        powers = np.linspace(*power_bounds, 581)
+        x = nn[None, :] ** (-powers[:, None])
+        total = weights.sum()
+        x_mean = (x * weights).sum(axis=1) / total
+        y_mean = float(weights @ yy) / total
+        dx = x - x_mean[:, None]
+        sxx = (weights * dx**2).sum(axis=1)
+        sxy = (weights * dx * (yy - y_mean)).sum(axis=1)
+        slope = sxy / sxx
+        intercept = y_mean - slope * x_mean
+        residual = (weights * (yy[None, :] - intercept[:, None] - slope[:, None] * x) ** 2).sum(axis=1)
+        best = int(np.argmin(residual))
+        return float(intercept[best]), float(slope[best]), float(powers[best])
 
     value, amplitude, power = fit(n, y)
     candidates = [floor_fraction * abs(y[-1] - value)]

@@ -397,6 +397,9 @@ class OscillatorEDBackend(Backend):
             extrapolation = [f.as_dict() for f in fits]
         elif len(runs) == 2:
             errors = list(np.abs(raw[1] - raw[0]))
+        if errors is not None:  # never below what the eigensolver resolves
+            floor = max(params["tolerance"], 1e-12)
+            errors = [max(float(err), floor * max(1.0, abs(e))) for err, e in zip(errors, energies)]
         order = np.argsort(energies, kind="stable")
         energies = energies[order]
         if errors is not None:

@@ -104,6 +104,19 @@ def test_first_order_slope_matches_closed_form(counts, c1_sqrt2pi):
     assert result.scalars["delta"] == pytest.approx(c1_sqrt2pi / math.sqrt(2 * math.pi), rel=1e-12)
 
 
+@pytest.mark.parametrize("mass_down", MASSES)
+def test_spectrum_scan_levels_and_labels_match_two_body(mass_down):
+    """A scan over g: the five lowest levels of 1+1 (ground, COM copies, g-independent odd-relative
+    levels, excited relative levels) with parity and COM labels equal the exact spectrum, every
+    energy within its reported error bar."""
+    problem = Problem.create(1, 1, [-3.0, 0.5, 10.0], mass_down=mass_down, states=5)
+    exact = get("two-body").solve_scan(problem)
+    for ours, ref in zip(ED.solve_scan(problem, cutoff=20), exact):
+        assert [(s["parity"], s["com"]) for s in ours.states] == [(s["parity"], s["com"]) for s in ref.states]
+        for energy, error, reference in zip(ours.energies, ours.energy_errors, ref.energies):
+            assert abs(energy - reference) <= error
+
+
 def test_first_order_slope_matches_perturbative_backend_unequal_masses():
     problem = Problem.create(2, 1, 0.0, mass_down=40 / 6)
     slope = get("perturbative").solve(problem).states[0]["first_order_coefficient"]
