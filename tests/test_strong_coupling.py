@@ -222,7 +222,7 @@ def test_manifold_parities_and_order_match_exact_diagonalization(backend):
     ed = get("oscillator-ed")
     for counts, size in (((2, 1), 3), ((3, 1), 4)):
         problem = Problem.create(*counts, 40.0, states=size)
-        exact, strong = ed.solve(problem, cutoff=14), backend.solve(problem)
+        exact, strong = ed.solve(problem, cutoff=14, ladder=3, ladder_step=2), backend.solve(problem)
         assert [s["parity"] for s in exact.states] == [s["parity"] for s in strong.states]
         for i in range(size):
             allowed = 3 * (exact.energy_errors[i] + strong.energy_errors[i]) + 1e-9
