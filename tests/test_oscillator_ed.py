@@ -142,7 +142,7 @@ def test_strong_coupling_approaches_fermionization_with_anchor_slope():
     """Equal masses, g -> +inf: E = N^2/2 - K/g + O(1/g^2), with K(2+1) = 81/(8 sqrt(2 pi))
     (anchors Table 3.3b, from the strong-coupling spin chain). Fitting K and the 1/g^2 term to
     E(20) and E(40) recovers K to about 1%; the levels stay below N^2/2 = 4.5."""
-    energies = {g: ED.solve(Problem.create(2, 1, g, parity="odd")).energies[0] for g in (20.0, 40.0)}
+    energies = {g: ED.solve(Problem.create(2, 1, g, parity="odd"), cutoff=24).energies[0] for g in (20.0, 40.0)}
     assert all(e < 4.5 for e in energies.values())
     # 4.5 - E = K/g - c/g^2 at two couplings
     design = np.array([[1 / g, -1 / g**2] for g in energies])

@@ -7,8 +7,8 @@ Run by hand (not part of the test suite):
 
 For each case (2+2 and 3+3; g = +2 and -2; mass ratio 1 and 40/6) the renormalized, energy-truncated
 ground state (its g = 0 parity sector) is solved on a growing ladder of cutoffs c = 4, 8, 12, ...
-until a CPU budget is spent. After each cutoff the last three points are extrapolated
-(E_inf + A c^-p, the backend's rule and error bar). Reported per case:
+until a CPU budget is spent. After each cutoff the last four points are extrapolated
+(E_inf + A c^-p on the last three, the backend's rule and error bar). Reported per case:
 
 - the first cutoff where the error bar / |E| <= 1e-4 and <= 1e-6, with the cumulative CPU time;
 - the same for the distance to the final extrapolation ("self" error: a lower bound on the true error);
@@ -70,8 +70,9 @@ def run_case(index: int, budget: float) -> dict:
                 "cpu_step": time.process_time() - t0,
                 "cpu_total": time.process_time() - start,
             }
-            if len(rows) >= 2:
-                fit = oe.extrapolate([r["cutoff"] for r in rows[-2:]] + [cutoff], [r["energy"] for r in rows[-2:]] + [row["energy"]], True)
+            if len(rows) >= 2:  # the backend's rule on its default ladder of (up to) four cutoffs
+                ladder = rows[-3:] + [row]
+                fit = oe.extrapolate([r["cutoff"] for r in ladder], [r["energy"] for r in ladder], True)
                 row["extrapolated"], row["error_bar"] = fit.value, fit.error
             rows.append(row)
             cutoff += 4
