@@ -47,13 +47,14 @@ def test_two_body_reference_agrees_with_anchor_table():
     assert exact_pair(10.0, 40 / 6) == pytest.approx(1.88462769715, abs=1e-10)
 
 
+@pytest.mark.parametrize("truncation,cutoff", [("energy", 10), ("orbital", 8)])
 @pytest.mark.parametrize("mass_down", MASSES)
 @pytest.mark.parametrize("g", COUPLINGS)
-def test_renormalized_pair_is_exact(g, mass_down):
+def test_renormalized_pair_is_exact(g, mass_down, truncation, cutoff):
     """1+1 with the renormalized interaction reproduces the exact ground energy (by construction,
-    through an independent two-body root) at any cutoff, to <= 1e-6."""
+    through an independent two-body root) at any cutoff, to <= 1e-6, in both truncations."""
     problem = Problem.create(1, 1, g, mass_down=mass_down, parity="even")
-    result = ED.solve(problem, cutoff=10, ladder=1)
+    result = ED.solve(problem, truncation=truncation, cutoff=cutoff, ladder=1)
     assert result.diagnostics["interaction"] == "renormalized"
     assert abs(result.energies[0] - exact_pair(g, mass_down)) <= 1e-6
 
@@ -202,6 +203,17 @@ def test_noise_integral_vanishes_at_zero_and_grows_quadratically():
     assert values[0.02] / values[0.01] == pytest.approx(4.0, rel=0.03)
 
 
+def test_noise_integral_quadrature_matches_a_grid_sum():
+    """The Gauss-Hermite value of integral C^2 dp1 dp2 equals a fine-grid Riemann sum of the reported
+    map C(p1, p2) (independent numerical integration), mass ratio 40/6."""
+    problem = Problem.create(2, 1, 1.0, mass_down=40 / 6, observables=["noise"], grid_points=301, p_max=12.0)
+    result = ED.solve(problem, cutoff=6, ladder=1)
+    c = result.observables["noise"].values
+    p = result.observables["noise"].axes["p_up"]
+    dp = p[1] - p[0]
+    assert result.scalars["noise_integral"] == pytest.approx(np.sum(c**2) * dp * dp, rel=1e-6)
+
+
 def test_observables_are_normalized_and_match_two_body_density():
     problem = Problem.create(
         1, 1, 2.0, observables=["density", "momentum", "obdm", "pair_position", "pair_momentum", "noise"],
@@ -221,7 +233,11 @@ def test_observables_are_normalized_and_match_two_body_density():
     assert abs(np.sum(obs["noise"].values) * dp * dp) < 1e-6
     # the density of the exact solution (two-body backend, independent construction)
     exact = get("two-body").solve(Problem.create(1, 1, 2.0, observables=["density"], grid_points=241))
-    assert np.max(np.abs(obs["density_up"].values - exact.observables["density_up"].values)) < 5e-3
+    assert np.max(np.abs(obs["density_up"].values - exact.observables["density_up"].values)) < 1e-3
+    exact_p = get("two-body").solve(Problem.create(1, 1, 2.0, observables=["momentum"], grid_points=241))
+    assert np.max(np.abs(obs["momentum_up"].values - exact_p.observables["momentum_up"].values)) < 1e-3
+    # renormalized <sum delta> = dE/dg of the exact energy: anchors section 6, dE/dg (1+1, g = 2)
+    assert result.scalars["delta"] == pytest.approx(0.1397611296, abs=1e-8)
     # pair correlation of the repulsive pair is suppressed at coincidence x_up = x_down = 0
     g_pair = obs["pair_position"].values
     centre = len(x) // 2
