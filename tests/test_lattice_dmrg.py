@@ -116,3 +116,14 @@ def test_dmrg_refuses_what_it_does_not_compute():
     with pytest.raises(Exception, match="param.chi"):
         BACKEND.solve(Problem.create(1, 1, 1.0), chi=(64, 32))
     assert math.isfinite(lattice.half_width(Problem.create(1, 1, 1.0)))
+
+
+def test_dmrg_reports_when_it_did_not_converge():
+    # Two sweeps from a product state cannot reach a relative energy change of 1e-15 at chi = 4.
+    problem = Problem.create(2, 1, 2.0)
+    params = BACKEND.resolve_params({"chi": (4, 8), "max_sweeps": 2, "tolerance": 1e-15})
+    grid = lattice.make_grid(problem, 0.5, 3.0)
+    levels = solve_on_grid(problem, grid, False, params["chi"], params)
+    assert any("did not converge" in w for w in levels.warnings)
+    last = levels.diagnostics["chi_ladder"][0][-1]
+    assert not last["converged"] and levels.solver_errors[0] >= last["last_change"]
