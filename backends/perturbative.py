@@ -24,10 +24,11 @@ from typing import Any
 import numpy as np
 
 from ..problems.spec import Problem
-from .base import Backend, Support
+from .base import Backend, SolverError, Support
 from .result import Solution
 
 DEGENERACY_TOLERANCE = 1e-10
+MAX_EXCITATION_STEPS = 40
 
 
 def hermite_polynomial_part(n_max: int, y: np.ndarray) -> np.ndarray:
@@ -80,30 +81,24 @@ class PerturbativeBackend(Backend):
         g = problem.coupling
         wanted = {"any": None, "even": 0, "odd": 1}[problem.targets.parity]
         k = problem.targets.states
+        ground = sum(s.omega * s.count**2 / 2 for s in problem.species)
         step = min(problem.up.omega, problem.down.omega)
         cut = 0.0
-        manifolds = self._manifolds(problem, cut, wanted)
-        while sum(len(pairs) for pairs in manifolds.values()) < k:
-            cut += step
+        while True:
             manifolds = self._manifolds(problem, cut, wanted)
-        levels = []
-        for energy0, pairs in sorted(manifolds.items()):
-            shifts = np.linalg.eigvalsh(self._interaction_matrix(problem, pairs))
-            for w in shifts:
-                multiplicity = int(np.sum(np.abs(shifts - w) <= DEGENERACY_TOLERANCE * max(1.0, abs(w))))
-                degeneracy = multiplicity if g != 0 else len(pairs)
-                parity = (-1) ** (sum(pairs[0][0]) + sum(pairs[0][1]))
-                levels.append(
-                    {
-                        "energy": energy0 + g * w,
-                        "parity": parity,
-                        "degeneracy": degeneracy,
-                        "com": None,
-                        "unperturbed_energy": energy0,
-                        "first_order_coefficient": float(w),
-                    }
+            levels = self._first_order_levels(problem, manifolds, g)
+            if len(levels) >= k:
+                # every unlisted manifold starts above ground + cut; attraction can lower it by at
+                # most |g| w, with w bounded here by the largest first-order coefficient met so far
+                largest = max(level["first_order_coefficient"] for level in levels)
+                if ground + cut + min(g, 0.0) * largest >= levels[k - 1]["energy"]:
+                    break
+            if cut >= MAX_EXCITATION_STEPS * step:
+                raise SolverError(
+                    f"perturbative: {k} levels at g = {g:g} need manifolds beyond {cut:g} hbar*omega of excitation;"
+                    " first order is meaningless there - use an ED backend"
                 )
-        levels.sort(key=lambda s: s["energy"])
+            cut += step
         chosen = levels[:k]
         warnings = []
         if g != 0:
@@ -116,24 +111,47 @@ class PerturbativeBackend(Backend):
             diagnostics={"excitation_energy_cut": cut, "manifolds": len(manifolds)},
         )
 
-    @staticmethod
-    def _manifolds(problem: Problem, cut: float, parity: int | None) -> dict[float, list]:
-        """Determinant pairs grouped by unperturbed energy, for excitation energy <= ``cut``.
+    def _first_order_levels(self, problem: Problem, manifolds: dict, g: float) -> list[dict]:
+        """E0 + g w for every eigenvalue w of W in every manifold, ascending."""
+        levels = []
+        for (energy0, parity), pairs in manifolds.items():
+            shifts = np.linalg.eigvalsh(self._interaction_matrix(problem, pairs))
+            for w in shifts:
+                multiplicity = int(np.sum(np.abs(shifts - w) <= DEGENERACY_TOLERANCE * max(1.0, abs(w))))
+                levels.append(
+                    {
+                        "energy": energy0 + g * w,
+                        "parity": parity,
+                        "degeneracy": multiplicity if g != 0 else len(pairs),
+                        "com": None,
+                        "unperturbed_energy": energy0,
+                        "first_order_coefficient": float(w),
+                    }
+                )
+        levels.sort(key=lambda s: s["energy"])
+        return levels
 
-        Every manifold below the cut is complete, whatever the two trap frequencies.
+    @staticmethod
+    def _manifolds(problem: Problem, cut: float, parity: int | None) -> dict[tuple[float, int], list]:
+        """Determinant pairs grouped by (unperturbed energy, parity), for excitation energy <= ``cut``.
+
+        Every manifold below the cut is complete, whatever the two trap frequencies; the contact
+        interaction conserves parity, so each parity is a block of its own.
         """
         up, down = problem.up, problem.down
         ground = up.omega * up.count**2 / 2 + down.omega * down.count**2 / 2
-        groups: dict[float, list] = {}
+        groups: dict[tuple[float, int], list] = {}
         slack = 1e-9 * max(1.0, cut)
         for occ_up, m_up in configurations(up.count, int((cut + slack) // up.omega)):
             for occ_down, m_down in configurations(down.count, int((cut + slack) // down.omega)):
                 excitation = up.omega * m_up + down.omega * m_down
                 if excitation > cut + slack:
                     continue
-                if parity is not None and (sum(occ_up) + sum(occ_down)) % 2 != parity:
+                pair_parity = (sum(occ_up) + sum(occ_down)) % 2
+                if parity is not None and pair_parity != parity:
                     continue
-                groups.setdefault(ground + round(excitation, 9), []).append((occ_up, occ_down))
+                key = (ground + round(excitation, 9), (-1) ** pair_parity)
+                groups.setdefault(key, []).append((occ_up, occ_down))
         return groups
 
     @staticmethod

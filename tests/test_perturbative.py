@@ -64,11 +64,12 @@ def test_non_interacting_spectrum_and_degeneracies(backend):
     assert [s["degeneracy"] for s in result.states][:8] == [1, 2, 2, 5, 5, 5, 5, 5]
 
 
-def test_degenerate_excited_manifold_matches_exact_two_body_slopes(backend):
-    # first-order slopes of the 1+1 excited levels from the exact solution by a small-g difference
-    g = 1e-6
-    exact = get("two-body").solve(Problem.create(1, 1, g, states=6))
-    first = backend.solve(Problem.create(1, 1, g, states=6))
+@pytest.mark.parametrize("mass_ratio, g", [(1.0, 1e-6), (40 / 6, 1e-6), (40 / 6, -1e-6)])
+def test_degenerate_excited_manifold_matches_exact_two_body_slopes(backend, mass_ratio, g):
+    # first-order slopes of the 1+1 excited levels from the exact solution by a small-g difference;
+    # 8 states reach into the third excited manifold, whose partly shifted levels must all be listed
+    exact = get("two-body").solve(Problem.create(1, 1, g, states=8, mass_down=mass_ratio))
+    first = backend.solve(Problem.create(1, 1, g, states=8, mass_down=mass_ratio))
     for e_exact, e_first in zip(exact.energies, first.energies):
         assert abs(e_exact - e_first) < 1e-11
 
@@ -77,6 +78,13 @@ def test_unequal_frequencies_are_supported_and_exact_at_g0(backend):
     result = backend.solve(Problem.create(1, 2, 0.0, omega_down=0.5, states=3))
     # E = w_up/2 + w_down (1/2 + 3/2) + excitations of the slower species first
     assert result.energies == pytest.approx([0.5 + 1.0, 0.5 + 1.5, 0.5 + 2.0])
+
+
+def test_parity_labels_with_unequal_frequencies(backend):
+    # omega_down = 2: the level E = 2.5 + 2 holds (up excited twice, even) and (down excited once, odd)
+    result = backend.solve(Problem.create(1, 1, 0.0, omega_down=2.0, states=6))
+    labelled = sorted((round(e, 9), s["parity"]) for e, s in zip(result.energies, result.states))
+    assert labelled == [(1.5, 1), (2.5, -1), (3.5, -1), (3.5, 1), (4.5, -1), (4.5, 1)]
 
 
 def test_says_it_is_first_order(backend):
