@@ -78,10 +78,14 @@ def onsite_coupling(g: float, spacing: float) -> float:
 def length_scale(problem: Problem) -> float:
     """The shortest physical length the lattice must resolve.
 
-    The smallest oscillator length b_s = 1/sqrt(m_s omega_s) of the two species, and for g < 0 the size
+    The smallest oscillator length b_s = 1/sqrt(m_s omega_s) of the two species (in a box: the half
+    wavelength W / N of the highest occupied orbital, N = N_up + N_down), and for g < 0 the size
     1/(mu |g|) of the two-body bound state (mu the reduced mass), whichever is shorter.
     """
-    lengths = [s.oscillator_length for s in problem.species if s.count > 0] or [1.0]
+    if problem.trap.shape == "box":
+        lengths = [problem.trap.half_width / problem.n_particles]
+    else:
+        lengths = [s.oscillator_length for s in problem.species if s.count > 0]
     g = problem.coupling
     if g < 0 and problem.up.count and problem.down.count:
         lengths.append(1.0 / (problem.reduced_mass() * abs(g)))
@@ -227,11 +231,6 @@ def momentum_grid(problem: Problem, grid: Grid) -> tuple[np.ndarray, str | None]
 def momentum_orbitals(grid: Grid, momenta: np.ndarray) -> np.ndarray:
     """F[p, k] = sqrt(a / (2 pi)) exp(-i p x_k): the momentum amplitude of lattice orbital k."""
     return math.sqrt(grid.spacing / (2 * math.pi)) * np.exp(-1j * np.outer(momenta, grid.x))
-
-
-def position_orbitals(grid: Grid) -> np.ndarray:
-    """F[q, k] = delta_qk / sqrt(a): lattice orbital k evaluated on the sites q (continuum normalization)."""
-    return np.eye(grid.sites) / math.sqrt(grid.spacing)
 
 
 def momentum_distribution(site_obdm: np.ndarray, grid: Grid, momenta: np.ndarray) -> np.ndarray:

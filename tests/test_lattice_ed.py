@@ -169,3 +169,23 @@ def test_mass_ratio_40_over_6_runs_at_g_0_to_the_closed_form_and_large_systems_a
     assert not BACKEND.supports(Problem.create(4, 4, 2.0))
     assert "lattice-dmrg" in BACKEND.supports(Problem.create(4, 4, 2.0)).reason
     assert not BACKEND.supports(Problem.create(2, 0, 1.0))
+
+
+def test_box_trap_continuum_limit_equals_the_hard_wall_levels():
+    # Hard walls at |x| = W: one-body levels (n pi / 2W)^2 / (2 m), n = 1, 2, ... (closed form);
+    # at g = 0 the 1+1 levels are sums of one level per species.
+    problem = Problem.from_dict(
+        {
+            "up": {"count": 1},
+            "down": {"count": 1, "mass": 2.0},
+            "trap": {"shape": "box", "half_width": 2.0},
+            "interaction": {"g": 0.0},
+            "targets": {"states": 3},
+        }
+    )
+    result = BACKEND.solve(problem)
+    level = lambda n, m: (n * math.pi / 4.0) ** 2 / (2 * m)  # noqa: E731
+    expected = sorted(level(i, 1.0) + level(j, 2.0) for i in range(1, 5) for j in range(1, 5))[:3]
+    for k in range(3):
+        assert abs(result.energies[k] - expected[k]) <= result.energy_errors[k]
+        assert abs(result.energies[k] - expected[k]) <= 1e-6 * expected[k]
