@@ -106,7 +106,9 @@ class FockSpace:
         self.n_particles = int(n_particles)
         if occupied is None:
             occupied = all_configurations(self.n_orbitals, self.n_particles)
-        occupied = np.asarray(occupied, dtype=np.int32).reshape(-1, self.n_particles)
+        occupied = np.asarray(occupied, dtype=np.int32)
+        if occupied.ndim != 2:
+            occupied = occupied.reshape(-1, self.n_particles)
         if occupied.size and (occupied.min() < 0 or occupied.max() >= self.n_orbitals):
             raise ValueError("occupied orbitals out of range")
         if self.n_particles > 1 and np.any(np.diff(occupied, axis=1) <= 0):
@@ -132,7 +134,8 @@ class FockSpace:
 
     def index(self, occupied: np.ndarray) -> np.ndarray:
         """Positions of sorted occupied lists (rows) in this space; -1 where absent."""
-        ranks = _ranks(np.asarray(occupied).reshape(-1, self.n_particles))
+        occupied = np.asarray(occupied)
+        ranks = _ranks(occupied if occupied.ndim == 2 else occupied.reshape(-1, self.n_particles))
         pos = np.searchsorted(self._sorted_ranks, ranks)
         pos = np.minimum(pos, max(self.dim - 1, 0))
         found = self._sorted_ranks[pos] == ranks if self.dim else np.zeros(len(ranks), bool)

@@ -304,6 +304,17 @@ def extrapolate(cutoffs, energies, renormalized: bool):
     return replace(fit, error=float(error), steps=tuple(cutoffs.tolist()), values=tuple(energies.tolist()))
 
 
+def _by_parity_rank(levels: list[Level]) -> dict[tuple[int, int], Level]:
+    """{(parity, rank within that parity sector): level} for levels sorted by energy."""
+    table: dict[tuple[int, int], Level] = {}
+    counts: dict[int, int] = {}
+    for level in levels:
+        rank = counts.get(level.parity, 0)
+        counts[level.parity] = rank + 1
+        table[(level.parity, rank)] = level
+    return table
+
+
 # ----------------------------------------------------------------------------- backend
 
 
@@ -384,27 +395,32 @@ class OscillatorEDBackend(Backend):
             levels, diag = solve_cutoff(problem, trunc, g_used, k, parities, params["tolerance"])
             runs.append((c, trunc, g_used, slope, levels, diag))
         final = runs[-1][4]
-        count = min(wanted, len(final))
-        raw = np.array([[lv.energy for lv in run[4][:count]] for run in runs])
+        # follow each level across the ladder by (parity sector, rank within the sector): level
+        # order across sectors can change with the cutoff, order within a sector cannot
+        tables = [_by_parity_rank(run[4]) for run in runs]
+        keys = [key for key in tables[-1] if all(key in table for table in tables)]
+        raw_all = np.array([[table[key].energy for key in keys] for table in tables])
 
-        energies = raw[-1].copy()
+        energies = raw_all[-1].copy()
         errors: list[float] | None = None
-        extrapolation = None
+        fits = None
         if len(runs) >= 3:
-            fits = [extrapolate(cutoffs, raw[:, i], renormalized) for i in range(count)]
+            fits = [extrapolate(cutoffs, raw_all[:, i], renormalized) for i in range(len(keys))]
             energies = np.array([f.value for f in fits])
             errors = [f.error for f in fits]
-            extrapolation = [f.as_dict() for f in fits]
         elif len(runs) == 2:
-            errors = list(np.abs(raw[1] - raw[0]))
+            errors = list(np.abs(raw_all[1] - raw_all[0]))
         if errors is not None:  # never below what the eigensolver resolves
             floor = max(params["tolerance"], 1e-12)
             errors = [max(float(err), floor * max(1.0, abs(e))) for err, e in zip(errors, energies)]
-        order = np.argsort(energies, kind="stable")
+        order = np.argsort(energies, kind="stable")[:wanted]
+        count = len(order)
         energies = energies[order]
         if errors is not None:
             errors = [float(errors[i]) for i in order]
-        chosen = [final[i] for i in order]
+        chosen = [tables[-1][keys[i]] for i in order]
+        raw = raw_all[:, order]
+        extrapolation = None if fits is None else [fits[i].as_dict() for i in order]
 
         tol = params["degeneracy_tolerance"]
         all_final = [lv.energy for lv in final]
