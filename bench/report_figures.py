@@ -30,6 +30,7 @@ P_DOWN_LABEL = r"$p_\downarrow$ [$\sqrt{\hbar m_0\omega}$]"
 FIGURES_SWEEP = "trapbench sweep figures"
 SPECTRUM_MIN_STATES = 6
 SPECTRUM_MIN_POINTS = 3
+SPECTRUM_MAX_BAR = 0.5  # hbar omega: a level known no better than this is listed in the caption, not drawn
 MAP_MIN_GRID = 41
 NOISE_MIN_POINTS = 3
 NOISE_SLOPE_MAX_G = 0.5
@@ -126,7 +127,7 @@ def spectra_figure(frame: pd.DataFrame, store) -> FigureOutcome:
     _, n_up, n_down, equal, imbalanced = max(candidates, key=lambda c: (c[0], c[1] + c[2]))
     n = n_up + n_down
     figure, axes = _figure(11, 5.0, 2, sharey=True)
-    table_rows, max_bar, used = [], 0.0, []
+    table_rows, max_bar, used, hidden = [], 0.0, [], []
     styles = {1: ("tab:blue", "-", "o", "even parity"), -1: ("tab:red", "--", "s", "odd parity"),
               0: ("0.2", "-", "o", "parity not reported")}
     for ax, group in zip(axes, (equal, imbalanced)):
@@ -143,9 +144,14 @@ def spectra_figure(frame: pd.DataFrame, store) -> FigureOutcome:
                 index = seen.get(parity, 0)
                 seen[parity] = index + 1
                 bar = r.energy_error if not _none(r.energy_error) else task.error_estimate
-                lines.setdefault((parity, index), []).append((float(task.g), float(r.energy), 0.0 if _none(bar) else float(bar)))
-                if not _none(bar):
-                    max_bar = max(max_bar, float(bar))
+                if not _none(bar) and float(bar) > SPECTRUM_MAX_BAR:
+                    hidden.append(f"level {int(r.state)} at g = {task.g:g} (m_up/m_down = {ratio_text(ratio)}):"
+                                  f" {float(r.energy):.6g} +- {float(bar):.2g}")
+                else:
+                    lines.setdefault((parity, index), []).append(
+                        (float(task.g), float(r.energy), 0.0 if _none(bar) else float(bar)))
+                    if not _none(bar):
+                        max_bar = max(max_bar, float(bar))
                 table_rows.append({"mass ratio": ratio_text(ratio), "g": float(task.g), "state": int(r.state),
                                    "parity": parity or None, "energy": float(r.energy), "error bar": bar,
                                    "backend": task.backend})
@@ -175,7 +181,8 @@ def spectra_figure(frame: pd.DataFrame, store) -> FigureOutcome:
                f" contact). The dotted line is N^2/2 = {n * n / 2:g}, where the C(N, N_up)-fold fermionized manifold"
                " of equal masses converges as g -> infinity; with unequal masses that manifold is split into groups"
                " with different limits. Error bars: the backend's own (largest among the drawn points: "
-               f"{max_bar:.2g} hbar omega). Computed with " + _backends_text(pd.concat(used)) + ".")
+               f"{max_bar:.2g} hbar omega). Computed with " + _backends_text(pd.concat(used)) + "."
+               + (f" Not drawn, error bar above {SPECTRUM_MAX_BAR:g} hbar omega: " + "; ".join(hidden) + "." if hidden else ""))
     long = pd.DataFrame(table_rows)
     table = long.pivot_table(index=["mass ratio", "g"], columns="state", values="energy", sort=False)
     table.columns = [f"E{state}" for state in table.columns]
