@@ -35,6 +35,10 @@ UNSUPPORTED_OBSERVABLES = {
     "pair_momentum": "momentum pair correlations need four-point functions over all site quadruples",
     "noise": "noise correlations need four-point functions over all site quadruples",
 }
+# Default ladder of spacings (fractions of lattice.length_scale): coarser than lattice-ed's, because
+# the bond dimension DMRG needs grows with the number of sites; measured on 4+4 at g = 2 (benchmark
+# bench_lattice_run.py): the a^2/a^4 fit over these four spacings has a relative error bar of 3e-4.
+SPACING_FRACTIONS = (0.5, 0.4, 0.32, 0.25)
 # Discarded weights below this count as no truncation at all.
 NO_TRUNCATION = 1e-14
 
@@ -130,7 +134,7 @@ class LatticeDMRGBackend(Backend):
     parameters = (
         Parameter("spacings", tuple, None, "lattice spacings (>= 2; default: fractions of the shortest length)"),
         Parameter("x_max", float, None, "lattice half width (default: widest occupied orbital plus a margin)"),
-        Parameter("chi", tuple, (32, 64, 128), "ladder of bond dimensions, ascending"),
+        Parameter("chi", tuple, (64, 128, 256), "ladder of bond dimensions, ascending"),
         Parameter("max_sweeps", int, 40, "sweep limit per bond dimension", minimum=2),
         Parameter("tolerance", float, 1e-10, "stop sweeping when |dE| / max(|E|, 1) falls below this", minimum=0.0),
         Parameter("mixer", bool, False, "subspace expansion (slows convergence on fine grids)"),
@@ -149,7 +153,7 @@ class LatticeDMRGBackend(Backend):
         chis = tuple(int(c) for c in params["chi"])
         if not chis or any(c < 1 for c in chis) or list(chis) != sorted(set(chis)):
             raise SpecError("param.chi", f"got {list(params['chi'])}; give distinct positive bond dimensions, ascending")
-        spacings, half_width = resolve_ladder(problem, params["spacings"], params["x_max"])
+        spacings, half_width = resolve_ladder(problem, params["spacings"], params["x_max"], SPACING_FRACTIONS)
         with threadpool_limits(params["threads"]):
             return solve_ladder(
                 problem,
@@ -218,6 +222,8 @@ def solve_on_grid(problem: Problem, grid: lattice.Grid, final: bool, chis, param
             psi.canonical_form()
             found.append(psi)
             previous[level] = psi.copy()
+        if all(stage[-1]["truncation_error"] <= NO_TRUNCATION and stage[-1]["max_bond"] < chi for stage in stages):
+            break  # nothing was truncated: a larger chi gives the same states
 
     energies, errors = [], []
     for level in range(n_states):

@@ -46,10 +46,18 @@ class LatticeLevels:
 SolveOnGrid = Callable[[lattice.Grid, bool], LatticeLevels]
 
 
-def resolve_ladder(problem: Problem, spacings: Sequence[float] | None, x_max: float | None) -> tuple[tuple[float, ...], float]:
-    """The spacings (coarsest first, at least two) and the half width from the parameters or the problem."""
+def resolve_ladder(
+    problem: Problem,
+    spacings: Sequence[float] | None,
+    x_max: float | None,
+    fractions: Sequence[float] = lattice.DEFAULT_SPACING_FRACTIONS,
+) -> tuple[tuple[float, ...], float]:
+    """The spacings (coarsest first, at least two) and the half width from the parameters or the problem.
+
+    Without ``spacings`` the ladder is ``fractions`` of ``lattice.length_scale(problem)``.
+    """
     if spacings is None:
-        spacings = lattice.default_spacings(problem)
+        spacings = lattice.default_spacings(problem, fractions)
     spacings = tuple(float(a) for a in spacings)
     if len(spacings) < 2:
         raise SpecError("param.spacings", f"got {list(spacings)}; give at least two spacings for the continuum limit")
