@@ -342,6 +342,13 @@ class OscillatorEDBackend(Backend):
         Parameter("extra_states", int, 2, "levels computed beyond the requested ones (degeneracies)", minimum=0),
         Parameter("tolerance", float, 1e-10, "Lanczos (eigsh) relative tolerance", minimum=0.0),
         Parameter("degeneracy_tolerance", float, 1e-6, "levels closer than this count as degenerate", minimum=0.0),
+        Parameter(
+            "observable_states",
+            int,
+            1,
+            "scalars and observables for this many of the lowest reported states (names of state k > 0 end in @k)",
+            minimum=1,
+        ),
     )
 
     def supports(self, problem: Problem) -> Support:
@@ -438,9 +445,15 @@ class OscillatorEDBackend(Backend):
                 }
             )
         c_final, trunc_final, g_final, slope_final = runs[-1][:4]
-        observables, scalars, virial = self._ground_observables(
-            problem, chosen[0], g_final, slope_final, float(energies[0])
-        )
+        observables, scalars, virial = {}, {}, []
+        for index in range(min(params["observable_states"], count)):
+            obs, sca, vir = self._state_observables(problem, chosen[index], g_final, slope_final, float(energies[index]))
+            suffix = "" if index == 0 else f"@{index}"
+            for name, observable in obs.items():
+                observable.state = index
+                observables[name + suffix] = observable
+            scalars.update({name + suffix: value for name, value in sca.items()})
+            virial.append(vir)
         if count < wanted:
             warnings.append(f"the basis holds only {count} states in the requested sector(s)")
         diagnostics = {
@@ -452,7 +465,8 @@ class OscillatorEDBackend(Backend):
             "dimensions": [run[5]["dimension"] for run in runs],
             "matvecs": [run[5]["matvecs"] for run in runs],
             "n_orbitals": list(chosen[0].sector.n_orbitals),
-            "virial_residual": virial,
+            "virial_residual": virial[0],
+            "virial_residuals": virial,
         }
         if extrapolation is not None:
             diagnostics["extrapolation"] = extrapolation
@@ -468,8 +482,9 @@ class OscillatorEDBackend(Backend):
         )
 
     # ------------------------------------------------------------------ observables
-    def _ground_observables(self, problem: Problem, level: Level, g_used: float, slope: float, energy: float):
-        """Ground-state scalars (always) and the requested observables on grids."""
+    def _state_observables(self, problem: Problem, level: Level, g_used: float, slope: float, energy: float):
+        """Scalars (always) and the requested observables on grids of one state, from the largest
+        cutoff's eigenvector; the virial residual uses the reported (extrapolated) energy."""
         basis = level.sector.basis
         m_u, m_d = level.sector.n_orbitals
         rho_u, rho_d = fock_ed.one_body_density_matrices(basis, level.vector)

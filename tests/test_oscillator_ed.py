@@ -244,6 +244,19 @@ def test_observables_are_normalized_and_match_two_body_density():
     assert g_pair[centre, centre] < obs["density_up"].values[centre] * obs["density_down"].values[centre]
 
 
+def test_observables_of_excited_states_carry_the_state_suffix():
+    """State 1 of 1+1 at g = 2 is the g-independent odd-relative level (energy 2): its <sum delta>
+    vanishes (the relative wave function is odd, Busch et al.), while the ground state's does not."""
+    problem = Problem.create(1, 1, 2.0, states=2, observables=["density"])
+    result = ED.solve(problem, cutoff=12, ladder=1, observable_states=2)
+    assert result.energies[1] == pytest.approx(2.0, abs=1e-9)
+    assert abs(result.scalars["delta@1"]) < 1e-10
+    assert result.scalars["delta"] > 0.1
+    assert result.observables["density_up@1"].state == 1
+    x = result.observables["density_up@1"].axes["x"]
+    assert np.sum(result.observables["density_up@1"].values) * (x[1] - x[0]) == pytest.approx(1.0, abs=1e-6)
+
+
 def test_bad_parameters_and_unsupported_problems():
     problem = Problem.create(1, 1, 1.0)
     with pytest.raises(SpecError, match="param.truncation"):
