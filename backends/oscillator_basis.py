@@ -84,9 +84,17 @@ class ContactQuadrature:
     values_down: np.ndarray
 
 
-def contact_quadrature(n_up: int, length_up: float, n_down: int, length_down: float) -> ContactQuadrature:
-    """Exact Gauss-Hermite factorization of int phi_a(x; b_up) phi_b(x; b_up) chi_c(x; b_dn) chi_d(x; b_dn) dx."""
-    n_points = max(n_up + n_down - 1, 1)
+def contact_quadrature(
+    n_up: int, length_up: float, n_down: int, length_down: float, max_degree: int | None = None
+) -> ContactQuadrature:
+    """Exact Gauss-Hermite factorization of int phi_a(x; b_up) phi_b(x; b_up) chi_c(x; b_dn) chi_d(x; b_dn) dx.
+
+    Exact for every a + b + c + d <= ``max_degree`` (default: all orbitals, 2(n_up + n_down - 2)),
+    with ceil((max_degree + 1) / 2) nodes.
+    """
+    full = 2 * (n_up + n_down - 2)
+    degree = full if max_degree is None else min(max_degree, full)
+    n_points = max((degree + 2) // 2, 1)
     t, w = np.polynomial.hermite.hermgauss(n_points)
     alpha = 1.0 / length_up**2 + 1.0 / length_down**2
     x = t / math.sqrt(alpha)

@@ -64,6 +64,7 @@ class Truncation:
 class SectorBasis:
     basis: fock_ed.ProductBasis
     n_orbitals: tuple[int, int]
+    max_degree: int | None = None  # largest a + b + c + d of a matrix element inside the basis
 
 
 def orbital_counts(problem: Problem, truncation: Truncation) -> tuple[int, int]:
@@ -116,13 +117,23 @@ def sector_basis(problem: Problem, truncation: Truncation, parity: int) -> Secto
                 count = int(np.sum(e_d[cls] <= e0 + limit - energy + 1e-9))
             rects.append((start, stop, cls[0], cls[0] + count))
         start = stop
-    return SectorBasis(fock_ed.ProductBasis(up, down, np.array(rects, dtype=np.int64).reshape(-1, 4)), (m_u, m_d))
+    max_degree = None
+    if limit is not None:
+        # a hop b -> a of up and d -> c of down between two kept determinants has b + d and a + c
+        # each <= N_up + N_down - 2 + (quanta affordable within the cutoff): the contact quadrature
+        # needs only that polynomial degree, about half of what all orbital pairs would need
+        quanta = int(math.floor(limit / min(problem.up.omega, problem.down.omega) + 1e-9))
+        max_degree = 2 * (problem.up.count + problem.down.count - 2 + quanta)
+    rect_array = np.array(rects, dtype=np.int64).reshape(-1, 4)
+    return SectorBasis(fock_ed.ProductBasis(up, down, rect_array), (m_u, m_d), max_degree)
 
 
 def hamiltonian(problem: Problem, sector: SectorBasis, g: float) -> fock_ed.ProductHamiltonian:
     """H = sum_s omega_s (n + 1/2) c+ c + g sum_q w_q rho_up(x_q) rho_down(x_q) on ``sector``."""
     m_u, m_d = sector.n_orbitals
-    quad = ob.contact_quadrature(m_u, problem.up.oscillator_length, m_d, problem.down.oscillator_length)
+    quad = ob.contact_quadrature(
+        m_u, problem.up.oscillator_length, m_d, problem.down.oscillator_length, sector.max_degree
+    )
     contact = fock_ed.ContactFactorization(
         quad.points, quad.weights, quad.values_up, quad.values_down, ob.orbital_parities(m_u), ob.orbital_parities(m_d)
     )

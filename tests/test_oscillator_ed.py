@@ -18,6 +18,7 @@ from threadpoolctl import threadpool_limits
 
 from trapbench.backends.base import Unsupported
 from trapbench.backends.extrapolation import extrapolate_power_law
+from trapbench.backends import oscillator_ed as oed
 from trapbench.backends.oscillator_ed import OscillatorEDBackend
 from trapbench.backends.registry import get
 from trapbench.problems.errors import SpecError
@@ -255,6 +256,19 @@ def test_observables_of_excited_states_carry_the_state_suffix():
     assert result.observables["density_up@1"].state == 1
     x = result.observables["density_up@1"].axes["x"]
     assert np.sum(result.observables["density_up@1"].values) * (x[1] - x[0]) == pytest.approx(1.0, abs=1e-6)
+
+
+@pytest.mark.parametrize("mass_down,omega_down", [(1.0, 1.0), (40 / 6, 1.0), (1.0, 1.5)])
+def test_reduced_contact_quadrature_is_exact_inside_the_energy_basis(mass_down, omega_down):
+    """The energy-truncated Hamiltonian built with the fewer Gauss-Hermite nodes that its largest
+    polynomial degree needs equals the one built with nodes for every orbital pair."""
+    problem = Problem.create(2, 2, 1.0, mass_down=mass_down, omega_down=omega_down)
+    for parity in (+1, -1):
+        sector = oed.sector_basis(problem, oed.Truncation("energy", 9), parity)
+        reduced = oed.hamiltonian(problem, sector, 1.3).to_dense()
+        sector.max_degree = None
+        full = oed.hamiltonian(problem, sector, 1.3).to_dense()
+        assert np.allclose(reduced, full, atol=1e-12)
 
 
 def test_bad_parameters_and_unsupported_problems():
