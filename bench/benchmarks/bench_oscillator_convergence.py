@@ -141,7 +141,7 @@ def main() -> int:
     print("| case | target | by error bar: cutoff, CPU s | by distance to final: cutoff, CPU s | final E | last error bar | largest dim | peak MiB |")
     print("|---|---|---|---|---|---|---|---|")
     for index, (n_up, n_down, g, mass) in enumerate(CASES):
-        budget = (3.0 if n_up == 2 else 10.0) if args.quick else (30.0 if n_up == 2 else 150.0)
+        budget = (3.0 if n_up == 2 else 10.0) if args.quick else (30.0 if n_up == 2 else 120.0)
         out = subprocess.run(
             [sys.executable, __file__, "--case", str(index), "--budget", str(budget)],
             capture_output=True, text=True, check=True,
