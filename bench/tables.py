@@ -215,13 +215,17 @@ def failures_table(frame: pd.DataFrame) -> pd.DataFrame:
 # ----------------------------------------------------------------------------- formatting
 
 
-def _cell(value: Any) -> str:
+# Columns printed with 12 significant digits (values to compare digit by digit); others get 4.
+PRECISE_COLUMNS = frozenset({"energy", "ref_value", "baseline", "current", "g"})
+
+
+def _cell(value: Any, digits: int = 12) -> str:
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return ""
     if isinstance(value, (bool, np.bool_)):
         return "yes" if value else "no"
     if isinstance(value, (float, np.floating)):
-        return f"{value:.12g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.3g}"
+        return f"{value:.{digits}g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.3g}"
     return str(value).replace("|", "\\|").replace("\n", " ")
 
 
@@ -229,7 +233,8 @@ def to_markdown(table: pd.DataFrame) -> str:
     """A GitHub-flavoured Markdown table (no extra dependency)."""
     header = "| " + " | ".join(map(str, table.columns)) + " |"
     rule = "|" + "|".join("---" for _ in table.columns) + "|"
-    body = ["| " + " | ".join(_cell(v) for v in row) + " |" for row in table.itertuples(index=False)]
+    digits = [12 if c in PRECISE_COLUMNS else 4 for c in table.columns]
+    body = ["| " + " | ".join(_cell(v, d) for v, d in zip(row, digits)) + " |" for row in table.itertuples(index=False)]
     return "\n".join([header, rule, *body]) if body else header + "\n" + rule + "\n(no rows)"
 
 
