@@ -677,7 +677,7 @@ def test_sweep_export_and_advise_commands(toy_path, tmp_path, capsys):
     # reference E0 = 2.5 or, equally, the toy's own error bar 1/cutoff^2)
     assert main(["advise", *store, "--up", "2", "--down", "1", "--g", "0", "--accuracy", "0.05"]) == 0
     out = capsys.readouterr().out
-    assert "Recommended: toy-exact with cutoff=3, work=0" in out and "| 0.0444444444" in out
+    assert "Recommended: toy-exact with cutoff=3, work=0" in out and "| 0.04444 |" in out
     assert main(["advise", *store, "--up", "2", "--down", "1", "--g", "0", "--accuracy", "1e-9"]) == 1
     assert main(["sweep", str(tmp_path / "absent.toml"), *store]) == 2
 
