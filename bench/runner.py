@@ -6,7 +6,10 @@ memory is its own), then watches it every ``POLL_S`` seconds:
 
 - wall time beyond ``limits.timeout_s``  -> SIGKILL, status ``timeout``;
 - resident memory beyond ``limits.memory_mib`` -> SIGKILL, status ``out-of-memory`` (a
-  ``MemoryError`` raised inside the task is recorded the same way);
+  ``MemoryError`` raised inside the task is recorded the same way). The cap is enforced by polling
+  the child's RSS, not by an address-space limit (which numerical libraries' large virtual
+  reservations would trip), so an allocation faster than ``POLL_S`` can overshoot it briefly, and
+  processes the task itself starts are not counted;
 - the child dies without answering (segfault, ``os.abort``, ``sys.exit``) -> status ``crashed``
   with the signal or exit code;
 - the backend raises -> ``failed`` (``unsupported`` for ``Unsupported``) with the message.
