@@ -50,9 +50,10 @@ from ..problems.spec import Problem
 from . import fock_ed
 from . import oscillator_basis as ob
 from .base import Backend, Parameter, SolverError, Support
-from .extrapolation import extrapolate_polynomial, extrapolate_power_law
+from .extrapolation import Extrapolation, extrapolate_polynomial, extrapolate_power_law
 from .result import Observable, Solution
 
+NON_MONOTONIC = "non-monotonic in the cutoff: last value, error = total variation along the ladder"
 COM_TOLERANCE = 1e-3  # <N_com> within this of an integer labels the centre-of-mass excitation
 
 
@@ -305,11 +306,26 @@ def extrapolate(cutoffs, energies, renormalized: bool):
     drifting (2+2, g = 2: p = 0.66 at c = 8-16, 1.76 at 24-32, 1.67 at 36-44), so the error bar is
     also at least twice the change of E_inf from the previous three cutoffs, and it is the whole
     correction |E_last - E_inf| when p moved by more than 25% or fewer than four cutoffs were run.
+    When the last three energies turn around (not monotonic), the last value is reported with the
+    total variation along the ladder as its error bar (model ``NON_MONOTONIC``).
     """
     cutoffs = np.asarray(cutoffs, dtype=float)
     energies = np.asarray(energies, dtype=float)
     if not renormalized:
         return extrapolate_polynomial(cutoffs**-0.5, energies, powers=(1.0, 2.0))
+    steps = np.diff(energies[-3:])
+    resolved = np.abs(steps) > 1e-10 * max(1.0, abs(energies[-1]))
+    if np.all(resolved) and steps[0] * steps[1] < 0:
+        # the renormalized energy is not variational and can turn around (seen for 2+2 with mass
+        # ratio 40/6, g = 2, near c = 36): no power law applies; report the last value with the
+        # whole variation along the ladder as a rough error bar
+        return Extrapolation(
+            value=float(energies[-1]),
+            error=float(np.sum(np.abs(np.diff(energies)))),
+            model=NON_MONOTONIC,
+            steps=tuple(cutoffs.tolist()),
+            values=tuple(energies.tolist()),
+        )
     fit = extrapolate_power_law(cutoffs[-3:], energies[-3:])
     correction = abs(energies[-1] - fit.value)
     error = max(fit.error, correction)
@@ -433,6 +449,7 @@ class OscillatorEDBackend(Backend):
             fits = [extrapolate(cutoffs, raw_all[:, i], renormalized) for i in range(len(keys))]
             energies = np.array([f.value for f in fits])
             errors = [f.error for f in fits]
+            turned = [i for i, f in enumerate(fits) if f.model == NON_MONOTONIC]
         elif len(runs) == 2:
             errors = list(np.abs(raw_all[1] - raw_all[0]))
         if errors is not None:  # never below what the eigensolver resolves
@@ -446,6 +463,11 @@ class OscillatorEDBackend(Backend):
         chosen = [tables[-1][keys[i]] for i in order]
         raw = raw_all[:, order]
         extrapolation = None if fits is None else [fits[i].as_dict() for i in order]
+        if fits is not None and any(i in turned for i in order):
+            warnings.append(
+                "a level's energy turned around along the cutoff ladder (the renormalized interaction is not"
+                " variational): its error bar is only the variation along the ladder; compare with renormalized=false"
+            )
 
         tol = params["degeneracy_tolerance"]
         all_final = [lv.energy for lv in final]
