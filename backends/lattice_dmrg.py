@@ -36,9 +36,10 @@ UNSUPPORTED_OBSERVABLES = {
     "noise": "noise correlations need four-point functions over all site quadruples",
 }
 # Default ladder of spacings (fractions of lattice.length_scale): coarser than lattice-ed's, because
-# the bond dimension DMRG needs grows with the number of sites; measured on 4+4 at g = 2 (benchmark
-# bench_lattice_run.py): the a^2/a^4 fit over these four spacings has a relative error bar of 3e-4.
-SPACING_FRACTIONS = (0.5, 0.4, 0.32, 0.25)
+# the bond dimension DMRG needs grows with the number of sites. Measured (bench_lattice_results.md):
+# 6+6 at g = 2 over these five spacings gives a relative error bar of 2e-4 in 5 CPU minutes; a ladder
+# starting at a = 0.5 is not yet asymptotic for N = 12 (its limit moved by 1.5e-3).
+SPACING_FRACTIONS = (0.4, 0.32, 0.25, 0.2, 0.16)
 # Discarded weights below this count as no truncation at all.
 NO_TRUNCATION = 1e-14
 
