@@ -44,7 +44,7 @@ def test_lattice_one_body_matvec(benchmark):
 
 @pytest.mark.parametrize("backend, problem, params", [
     ("two-body", Problem.create(1, 1, 2.0, states=3), {}),
-    ("oscillator-ed", Problem.create(2, 2, 2.0), {"cutoff": 10}),
+    ("oscillator-ed", Problem.create(2, 2, 2.0), {"cutoff": 16}),
 ])
 def test_small_solve(benchmark, backend, problem, params):
     from trapbench.backends import registry
