@@ -189,3 +189,10 @@ def test_box_trap_continuum_limit_equals_the_hard_wall_levels():
     for k in range(3):
         assert abs(result.energies[k] - expected[k]) <= result.energy_errors[k]
         assert abs(result.energies[k] - expected[k]) <= 1e-6 * expected[k]
+
+
+def test_a_box_too_small_for_the_density_is_reported():
+    # x_max = 2.5 cuts the 1+1 ground state (density ~ exp(-x^2)) at ~1e-3 of its peak.
+    result = BACKEND.solve(Problem.create(1, 1, 1.0), spacings=(0.4, 0.3), x_max=2.5)
+    assert any("lattice edge" in w and "increase x_max" in w for w in result.warnings)
+    assert not BACKEND.solve(Problem.create(1, 1, 1.0), spacings=(0.4, 0.3), x_max=6.0).warnings
