@@ -306,16 +306,16 @@ def extrapolate(cutoffs, energies, renormalized: bool):
     drifting (2+2, g = 2: p = 0.66 at c = 8-16, 1.76 at 24-32, 1.67 at 36-44), so the error bar is
     also at least twice the change of E_inf from the previous three cutoffs, and it is the whole
     correction |E_last - E_inf| when p moved by more than 25% or fewer than four cutoffs were run.
-    When the last three energies turn around (not monotonic), the last value is reported with the
+    When the energies along the ladder turn around (not monotonic), the last value is reported with the
     total variation along the ladder as its error bar (model ``NON_MONOTONIC``).
     """
     cutoffs = np.asarray(cutoffs, dtype=float)
     energies = np.asarray(energies, dtype=float)
     if not renormalized:
         return extrapolate_polynomial(cutoffs**-0.5, energies, powers=(1.0, 2.0))
-    steps = np.diff(energies[-3:])
-    resolved = np.abs(steps) > 1e-10 * max(1.0, abs(energies[-1]))
-    if np.all(resolved) and steps[0] * steps[1] < 0:
+    steps = np.diff(energies)
+    steps = steps[np.abs(steps) > 1e-10 * max(1.0, abs(energies[-1]))]
+    if len(steps) >= 2 and np.any(np.sign(steps) != np.sign(steps[-1])):
         # the renormalized energy is not variational and can turn around (seen for 2+2 with mass
         # ratio 40/6, g = 2, near c = 36): no power law applies; report the last value with the
         # whole variation along the ladder as a rough error bar
