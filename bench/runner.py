@@ -38,7 +38,6 @@ import sys
 import time
 import traceback
 from dataclasses import asdict, dataclass, field
-from typing import Any
 
 OK = "ok"
 FAILED = "failed"
