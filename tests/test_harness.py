@@ -76,7 +76,7 @@ class AllocToy(SleepToy):
         blocks = []
         for _ in range(params["mib"] // 20):
             blocks.append(np.ones(20 * 1024 * 1024 // 8))
-            time.sleep(0.002)
+            time.sleep(0.01)  # slow enough that the 20 ms memory poll sees every step
         return Solution(energies=[float(len(blocks))])
 
 
