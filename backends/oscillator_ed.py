@@ -152,12 +152,6 @@ def hamiltonian(problem: Problem, sector: SectorBasis, g: float) -> fock_ed.Prod
     )
 
 
-def contact_factorization(problem: Problem, n_orbitals: tuple[int, int]) -> fock_ed.ContactFactorization:
-    m_u, m_d = n_orbitals
-    quad = ob.contact_quadrature(m_u, problem.up.oscillator_length, m_d, problem.down.oscillator_length)
-    return fock_ed.ContactFactorization(quad.points, quad.weights, quad.values_up, quad.values_down)
-
-
 # ----------------------------------------------------------------------------- renormalization
 
 
@@ -528,8 +522,14 @@ class OscillatorEDBackend(Backend):
         basis = level.sector.basis
         m_u, m_d = level.sector.n_orbitals
         rho_u, rho_d = fock_ed.one_body_density_matrices(basis, level.vector)
-        gamma = fock_ed.pair_tensor(basis, level.vector)
-        delta_trunc = fock_ed.contact_expectation(gamma, contact_factorization(problem, (m_u, m_d)))
+        # <sum delta> in the basis = <psi|H(g=1) - H(g=0)|psi>: one matvec instead of the pair tensor
+        vector = level.vector
+        delta_trunc = float(
+            vector @ hamiltonian(problem, level.sector, 1.0).matvec(vector)
+            - vector @ hamiltonian(problem, level.sector, 0.0).matvec(vector)
+        )
+        wanted = set(problem.targets.observables)
+        gamma = fock_ed.pair_tensor(basis, vector) if wanted & {"pair_position", "pair_momentum", "noise"} else None
         delta = delta_trunc * slope  # dE/dg of the (renormalized) energy; slope = 1 for bare g
         trap = fock_ed.one_body_expectation(rho_u, ob.trap_matrix(m_u, problem.up.omega)) + fock_ed.one_body_expectation(
             rho_d, ob.trap_matrix(m_d, problem.down.omega)
@@ -543,7 +543,6 @@ class OscillatorEDBackend(Backend):
             "contact": (2 * mu) ** 2 * g**2 * delta,
         }
         virial = energy - 2 * trap - 0.5 * g * delta
-        wanted = set(problem.targets.observables)
         observables: dict[str, Observable] = {}
         x_max, p_max = problem.extent()
         x = np.linspace(-x_max, x_max, problem.targets.grid_points)

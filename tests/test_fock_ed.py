@@ -254,3 +254,12 @@ def test_observables_of_a_correlated_state_match_brute_force():
                 for d in range(M):
                     expected = np.vdot(left[(a, b)], right[(cc, d)])  # <psi| c+_a c_b d+_c d_d |psi>
                     assert gamma[a, b, cc, d] == pytest.approx(expected, abs=1e-12)
+    # <sum_q w_q rho_up(x_q) rho_down(x_q)> from Gamma against dense density operators
+    points, weights, values = np.arange(3.0), np.array([0.3, 0.5, 0.2]), rng.normal(size=(3, M))
+    expected = 0.0
+    for q in range(3):
+        rho_up = sum(values[q, a] * values[q, b] * c[a].T @ c[b] for a in range(M) for b in range(M))
+        rho_down = sum(values[q, a] * values[q, b] * c[M + a].T @ c[M + b] for a in range(M) for b in range(M))
+        expected += weights[q] * np.vdot(full, rho_up @ (rho_down @ full)).real
+    contact = fe.ContactFactorization(points, weights, values, values)
+    assert fe.contact_expectation(gamma, contact) == pytest.approx(expected, abs=1e-12)
