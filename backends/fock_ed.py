@@ -474,19 +474,6 @@ class ProductHamiltonian:
             total += int(np.sum(np.diff(up_stack.indptr) * (c1 - c0)))
         return total + self.basis.dim
 
-    def diagonal(self) -> np.ndarray:
-        """The diagonal of H in the basis (for preconditioners and checks)."""
-        n_u, n_d = self.basis.shape
-        if self._diag_one_body:
-            diag = self._one_body_diag.copy()
-        else:
-            diag = self._h_up.diagonal()[:, None] + self._h_down_t.diagonal()[None, :]
-        if self._interaction_diag is not None:
-            diag = diag + self._interaction_diag
-        elif self._chunks:
-            raise NotImplementedError("diagonal of a non-diagonal factorized interaction is not needed here")
-        return self.basis.from_matrix(diag)
-
     def to_dense(self) -> np.ndarray:
         """The full matrix (small bases only): H applied to every unit vector."""
         dim = self.basis.dim

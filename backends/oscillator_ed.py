@@ -367,7 +367,14 @@ class OscillatorEDBackend(Backend):
         Parameter("renormalized", bool, True, "replace g by g_eff(cutoff) fixed by the exact 1+1 energy"),
         Parameter("ladder", int, 4, "number of cutoffs solved (>= 3 extrapolates, 2 gives a difference)", minimum=1),
         Parameter("ladder_step", int, 4, "spacing between successive cutoffs of the ladder", minimum=1),
-        Parameter("extra_states", int, 2, "levels computed beyond the requested ones (degeneracies)", minimum=0),
+        Parameter(
+            "extra_states",
+            int,
+            2,
+            "levels computed per parity sector beyond the requested ones; degeneracies are counted among the"
+            " computed levels, so raise it for large multiplets (strong coupling, g = 0)",
+            minimum=0,
+        ),
         Parameter("tolerance", float, 1e-10, "Lanczos (eigsh) relative tolerance", minimum=0.0),
         Parameter("degeneracy_tolerance", float, 1e-6, "levels closer than this count as degenerate", minimum=0.0),
         Parameter(
@@ -463,8 +470,8 @@ class OscillatorEDBackend(Backend):
                 " variational): its error bar is only the variation along the ladder; compare with renormalized=false"
             )
 
-        tol = params["degeneracy_tolerance"]
-        all_final = [lv.energy for lv in final]
+        # degeneracy: size of the cluster (spacings < tolerance) among every level of the largest cutoff
+        clusters = dict(zip((id(lv) for lv in final), fock_ed.degeneracies([lv.energy for lv in final], params["degeneracy_tolerance"])))
         states = []
         for lv in chosen:
             n_com = com_quanta(problem, lv)
@@ -474,7 +481,7 @@ class OscillatorEDBackend(Backend):
             states.append(
                 {
                     "parity": lv.parity,
-                    "degeneracy": int(sum(abs(e - lv.energy) < tol for e in all_final)),
+                    "degeneracy": clusters[id(lv)],
                     "com": com,
                 }
             )
