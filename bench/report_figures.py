@@ -233,7 +233,8 @@ def densities_figure(frame: pd.DataFrame, store) -> FigureOutcome:
         ax.set_xlabel(X_LABEL)
         ax.grid(True, alpha=0.3)
     axes[0].set_ylabel(DENSITY_LABEL)
-    axes[-1].legend(fontsize="small", loc="upper right")
+    axes[0].set_ylim(0.0, 1.3 * axes[0].get_ylim()[1])  # headroom for the legend above the curves
+    axes[0].legend(fontsize="small", loc="upper left")
     caption = (f"One-body densities n_up(x) and n_down(x) of the lowest state of {int(n_up)}+{int(n_down)} fermions with"
                f" m_up/m_down = {ratio_text(mass_up / mass_down)} (each integrates to its particle number), at"
                f" g = {', '.join(f'{g:g}' for g in group['g'])}. With growing repulsion the light species is pushed"
