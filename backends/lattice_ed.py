@@ -167,8 +167,6 @@ class LatticeEDBackend(Backend):
     )
 
     def supports(self, problem: Problem) -> Support:
-        if problem.up.count == 0 or problem.down.count == 0:
-            return Support.no("a species without particles: the shared Fock-space engine needs N >= 1 per species")
         coarsest = lattice.make_grid(problem, max(lattice.default_spacings(problem)), lattice.half_width(problem))
         dim = dimension(problem, coarsest.sites)
         if dim > DEFAULT_MAX_DIMENSION:

@@ -196,3 +196,11 @@ def test_a_box_too_small_for_the_density_is_reported():
     result = BACKEND.solve(Problem.create(1, 1, 1.0), spacings=(0.4, 0.3), x_max=2.5)
     assert any("lattice edge" in w and "increase x_max" in w for w in result.warnings)
     assert not BACKEND.solve(Problem.create(1, 1, 1.0), spacings=(0.4, 0.3), x_max=6.0).warnings
+
+
+def test_species_without_particles_gives_the_free_fermion_levels():
+    # N spinless fermions in a harmonic trap: E = N^2/2 and N^2/2 + 1 (textbook result); g acts on nothing
+    result = get("lattice-ed").solve(Problem.create(2, 0, 1.0, states=2))
+    for energy, exact in zip(result.energies, (2.0, 3.0)):
+        assert abs(energy - exact) <= result.error_estimate
+        assert abs(energy - exact) < 1e-4 * exact
