@@ -280,3 +280,10 @@ def test_bad_parameters_and_unsupported_problems():
     box = Problem.from_dict({"up": {"count": 1}, "down": {"count": 1}, "trap": {"shape": "box", "half_width": 2}, "interaction": {"g": 1}})
     with pytest.raises(Unsupported, match="harmonic"):
         ED.solve(box)
+
+
+def test_every_copy_of_a_degenerate_level_is_kept():
+    # 2+1 at g = 0: E = 5/2 + q_up + q_down with multiplicities from partitions (textbook enumeration):
+    # 2.5 (1), 3.5 (2), 4.5 (4), 5.5 (...); Lanczos alone can return a 5.5 in place of a fourth 4.5
+    result = get("oscillator-ed").solve(Problem.create(2, 1, 0.0, states=8))
+    assert np.allclose(result.energies, [2.5, 3.5, 3.5, 4.5, 4.5, 4.5, 4.5, 5.5], atol=1e-8)
