@@ -168,7 +168,6 @@ def test_mass_ratio_40_over_6_runs_at_g_0_to_the_closed_form_and_large_systems_a
     assert result.states[0]["parity"] == -1  # two up fermions in orbitals 0 and 1
     assert not BACKEND.supports(Problem.create(4, 4, 2.0))
     assert "lattice-dmrg" in BACKEND.supports(Problem.create(4, 4, 2.0)).reason
-    assert not BACKEND.supports(Problem.create(2, 0, 1.0))
 
 
 def test_box_trap_continuum_limit_equals_the_hard_wall_levels():
