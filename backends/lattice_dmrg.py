@@ -28,7 +28,7 @@ from ..problems.spec import Problem
 from . import lattice, lattice_observables
 from .base import Backend, Parameter, Support
 from .extrapolation import extrapolate_polynomial
-from .lattice_ladder import LatticeLevels, resolve_ladder, solve_ladder
+from .lattice_ladder import LADDER_PARAMETERS, LatticeLevels, resolve_ladder, solve_ladder
 from .result import Solution
 
 UNSUPPORTED_OBSERVABLES = {
@@ -135,8 +135,7 @@ class LatticeDMRGBackend(Backend):
     summary = "Two-site DMRG (tenpy) on a finite-difference lattice, extrapolated in discarded weight and spacing"
     libraries = ("tenpy",)
     parameters = (
-        Parameter("spacings", tuple, None, "lattice spacings (>= 2; default: fractions of the shortest length)"),
-        Parameter("x_max", float, None, "lattice half width (default: widest occupied orbital plus a margin)"),
+        *LADDER_PARAMETERS,
         Parameter("chi", tuple, (64, 128, 256), "ladder of bond dimensions, ascending"),
         Parameter("max_sweeps", int, 40, "sweep limit per bond dimension", minimum=2),
         Parameter("tolerance", float, 1e-10, "stop sweeping when |dE| / max(|E|, 1) falls below this", minimum=0.0),

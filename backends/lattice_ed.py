@@ -25,7 +25,7 @@ from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import fock_ed, lattice, lattice_observables
 from .base import Backend, Parameter, Support
-from .lattice_ladder import LatticeLevels, resolve_ladder, solve_ladder
+from .lattice_ladder import LADDER_PARAMETERS, LatticeLevels, resolve_ladder, solve_ladder
 from .result import Observable, Solution
 
 DEFAULT_MAX_DIMENSION = 4_000_000
@@ -158,10 +158,8 @@ class LatticeEDBackend(Backend):
     name = "lattice-ed"
     version = "1"
     summary = "Exact diagonalization (product basis, Lanczos) on a finite-difference lattice, extrapolated in the spacing"
-    libraries = ("quspin",)
     parameters = (
-        Parameter("spacings", tuple, None, "lattice spacings (>= 2; default: fractions of the shortest length)"),
-        Parameter("x_max", float, None, "lattice half width (default: widest occupied orbital plus a margin)"),
+        *LADDER_PARAMETERS,
         Parameter("tolerance", float, 1e-12, "Lanczos (ARPACK) relative tolerance", minimum=0.0),
         Parameter("max_dimension", int, DEFAULT_MAX_DIMENSION, "refuse product bases larger than this", minimum=1),
     )

@@ -22,7 +22,14 @@ import numpy as np
 from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import lattice
+from .base import Parameter
 from .result import Observable, Solution
+
+# The discretization parameters every lattice backend takes.
+LADDER_PARAMETERS = (
+    Parameter("spacings", tuple, None, "lattice spacings (>= 2; default: fractions of the shortest length)"),
+    Parameter("x_max", float, None, "lattice half width (default: widest occupied orbital plus a margin)"),
+)
 
 
 @dataclass

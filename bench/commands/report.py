@@ -14,10 +14,13 @@ HELP = ("run suites (skipping results already stored) and write reports/: Markdo
         " agreement tables, accuracy-vs-cost and physics figures")
 ORDER = 66
 
+# The benchmark tables come from quick; the physics figures need the problems of figures.
+DEFAULT_SUITES = ("quick", "figures")
+
 
 def register(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--suite", action="append", default=None, metavar="SUITE",
-                        help="a built-in suite name or a suite TOML file (default quick); repeat to report several"
+                        help="a built-in suite name or a suite TOML file (default: quick and figures); repeat to report several"
                              " together (the first one's tolerances apply), e.g. --suite quick --suite figures")
     add_store_argument(parser)
     parser.add_argument("--output", type=Path, default=Path("reports"), metavar="FOLDER",
@@ -36,7 +39,7 @@ def run(args: argparse.Namespace) -> int:
     from ..suite import load_suite
     from ..sweep import limited_tasks, run_sweep
 
-    suites = [load_suite(name) for name in (args.suite or ["quick"])]
+    suites = [load_suite(name) for name in (args.suite or list(DEFAULT_SUITES))]
     options = options_from(args)
     start = time.perf_counter()
     keys: set[str] = set()
@@ -53,7 +56,7 @@ def run(args: argparse.Namespace) -> int:
             break
     with Store.open(args.store) as store:
         written = write_report(store, args.output, suites[0], keys, title=" + ".join(s.name for s in suites),
-                               command="trapbench report " + " ".join(f"--suite {name}" for name in args.suite or ["quick"]))
+                               command="trapbench report " + " ".join(f"--suite {name}" for name in args.suite or list(DEFAULT_SUITES)))
     print(f"report written to {args.output}/ ({len(written)} files) in {time.perf_counter() - start:.0f} s:"
           f" {written[0]} and {written[1]}", file=sys.stderr)
     return 130 if interrupted else 0
