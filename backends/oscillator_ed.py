@@ -348,7 +348,7 @@ def _by_parity_rank(levels: list[Level]) -> dict[tuple[int, int], Level]:
 
 class OscillatorEDBackend(Backend):
     name = "oscillator-ed"
-    version = "1"
+    version = "2"
     summary = (
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
@@ -485,10 +485,15 @@ class OscillatorEDBackend(Backend):
                     "com": com,
                 }
             )
-        c_final, trunc_final, g_final, slope_final = runs[-1][:4]
         observables, scalars, virial = {}, {}, []
         for index in range(min(params["observable_states"], count)):
-            obs, sca, vir = self._state_observables(problem, chosen[index], g_final, slope_final, float(energies[index]))
+            key = keys[order[index]]
+            ladder = np.array([self._expectations(problem, table[key], run[2], run[3]) for table, run in zip(tables, runs)])
+            if len(runs) >= 3:  # converge <V_trap> and dE/dg like the energy
+                trap_delta = tuple(extrapolate(cutoffs, ladder[:, j], renormalized).value for j in range(2))
+            else:
+                trap_delta = tuple(ladder[-1])
+            obs, sca, vir = self._state_observables(problem, chosen[index], float(energies[index]), trap_delta)
             suffix = "" if index == 0 else f"@{index}"
             for name, observable in obs.items():
                 observable.state = index
@@ -523,29 +528,44 @@ class OscillatorEDBackend(Backend):
         )
 
     # ------------------------------------------------------------------ observables
-    def _state_observables(self, problem: Problem, level: Level, g_used: float, slope: float, energy: float):
-        """Scalars (always) and the requested observables on grids of one state, from the largest
-        cutoff's eigenvector; the virial residual uses the reported (extrapolated) energy."""
-        basis = level.sector.basis
+    @staticmethod
+    def _expectations(problem: Problem, level: Level, g_used: float, slope: float) -> tuple[float, float]:
+        """(<V_trap>, dE/dg) of one level at one cutoff.
+
+        <sum delta> in the basis is <psi|H(g=1) - H(g=0)|psi> (one matvec instead of the pair tensor);
+        dE/dg = <sum delta>_trunc dg_eff/dg for the renormalized energy (slope = 1 for bare g).
+        """
         m_u, m_d = level.sector.n_orbitals
-        rho_u, rho_d = fock_ed.one_body_density_matrices(basis, level.vector)
-        # <sum delta> in the basis = <psi|H(g=1) - H(g=0)|psi>: one matvec instead of the pair tensor
+        rho_u, rho_d = fock_ed.one_body_density_matrices(level.sector.basis, level.vector)
         vector = level.vector
         delta_trunc = float(
             vector @ hamiltonian(problem, level.sector, 1.0).matvec(vector)
             - vector @ hamiltonian(problem, level.sector, 0.0).matvec(vector)
         )
-        wanted = set(problem.targets.observables)
-        gamma = fock_ed.pair_tensor(basis, vector) if wanted & {"pair_position", "pair_momentum", "noise"} else None
-        delta = delta_trunc * slope  # dE/dg of the (renormalized) energy; slope = 1 for bare g
         trap = fock_ed.one_body_expectation(rho_u, ob.trap_matrix(m_u, problem.up.omega)) + fock_ed.one_body_expectation(
             rho_d, ob.trap_matrix(m_d, problem.down.omega)
         )
+        return trap, delta_trunc * slope
+
+    def _state_observables(self, problem: Problem, level: Level, energy: float, trap_delta: tuple[float, float]):
+        """Scalars (always) and the requested observables on grids of one state.
+
+        ``trap_delta`` = (<V_trap>, dE/dg), extrapolated along the cutoff ladder like the energy, so
+        that the virial residual E - 2<V> - (g/2) dE/dg (anchors 3.4) tests converged quantities and
+        the kinetic energy is E - <V> - g dE/dg; grids come from the largest cutoff's eigenvector.
+        """
+        basis = level.sector.basis
+        m_u, m_d = level.sector.n_orbitals
+        rho_u, rho_d = fock_ed.one_body_density_matrices(basis, level.vector)
+        vector = level.vector
+        wanted = set(problem.targets.observables)
+        gamma = fock_ed.pair_tensor(basis, vector) if wanted & {"pair_position", "pair_momentum", "noise"} else None
+        trap, delta = (float(v) for v in trap_delta)
         g = problem.coupling
         mu = problem.reduced_mass()
         scalars = {
             "trap_energy": trap,
-            "kinetic_energy": level.energy - trap - g_used * delta_trunc,
+            "kinetic_energy": energy - trap - g * delta,
             "delta": delta,
             "contact": (2 * mu) ** 2 * g**2 * delta,
         }

@@ -287,3 +287,14 @@ def test_every_copy_of_a_degenerate_level_is_kept():
     # 2.5 (1), 3.5 (2), 4.5 (4), 5.5 (...); Lanczos alone can return a 5.5 in place of a fourth 4.5
     result = get("oscillator-ed").solve(Problem.create(2, 1, 0.0, states=8))
     assert np.allclose(result.energies, [2.5, 3.5, 3.5, 4.5, 4.5, 4.5, 4.5, 5.5], atol=1e-8)
+
+
+def test_trap_energy_and_contact_are_converged_along_the_ladder():
+    # <V_trap> and dE/dg of the exact 1+1 state (Busch et al., via the two-body backend), and the virial
+    # theorem E = 2<V> + (g/2) dE/dg (anchors section 3.4): the extrapolated scalars meet both
+    problem = Problem.create(1, 1, 2.0, mass_down=40 / 6)
+    exact = get("two-body").solve(problem)
+    result = get("oscillator-ed").solve(problem)
+    assert abs(result.scalars["delta"] - exact.scalars["delta"]) < 1e-7
+    assert abs(result.scalars["trap_energy"] - exact.scalars["trap_energy"]) < 2e-5
+    assert abs(result.diagnostics["virial_residual"]) < 5e-5
