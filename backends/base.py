@@ -197,6 +197,7 @@ class Backend:
             states=list(solution.states),
             observables=dict(solution.observables),
             scalars={k: float(v) for k, v in solution.scalars.items()},
+            scalar_errors={k: float(v) for k, v in solution.scalar_errors.items()},
             params=dict(params),
             error_estimate=None if solution.error_estimate is None else float(solution.error_estimate),
             energy_errors=None if solution.energy_errors is None else [float(e) for e in solution.energy_errors],

@@ -485,16 +485,20 @@ class OscillatorEDBackend(Backend):
                     "com": com,
                 }
             )
-        observables, scalars, virial = {}, {}, []
+        observables, scalars, scalar_errors, virial = {}, {}, {}, []
         for index in range(min(params["observable_states"], count)):
             key = keys[order[index]]
             ladder = np.array([self._expectations(problem, table[key], run[2], run[3]) for table, run in zip(tables, runs)])
             if len(runs) >= 3:  # converge <V_trap> and dE/dg like the energy
-                trap_delta = tuple(extrapolate(cutoffs, ladder[:, j], renormalized).value for j in range(2))
+                limits = [extrapolate(cutoffs, ladder[:, j], renormalized) for j in range(2)]
+                trap_delta = tuple(fit.value for fit in limits)
             else:
                 trap_delta = tuple(ladder[-1])
             obs, sca, vir = self._state_observables(problem, chosen[index], float(energies[index]), trap_delta)
             suffix = "" if index == 0 else f"@{index}"
+            if len(runs) >= 3:
+                scalar_errors["trap_energy" + suffix] = float(limits[0].error)
+                scalar_errors["delta" + suffix] = float(limits[1].error)
             for name, observable in obs.items():
                 observable.state = index
                 observables[name + suffix] = observable
@@ -521,6 +525,7 @@ class OscillatorEDBackend(Backend):
             states=states,
             observables=observables,
             scalars=scalars,
+            scalar_errors=scalar_errors,
             error_estimate=None if errors is None else float(max(errors)),
             energy_errors=errors,
             diagnostics=diagnostics,

@@ -88,7 +88,8 @@ class Solution:
 
     ``states`` holds one dict of quantum numbers per energy (keys such as ``parity`` (+1/-1),
     ``com`` (centre-of-mass excitation), ``degeneracy``); ``scalars`` holds single numbers such as
-    ``contact`` or ``trap_energy`` with their meaning documented by the backend;
+    ``contact`` or ``trap_energy`` with their meaning documented by the backend, and
+    ``scalar_errors`` error bars for those of them the backend can bound;
     ``error_estimate`` bounds |E - E_exact| for the reported energies (None when unknown).
     """
 
@@ -100,6 +101,7 @@ class Solution:
     energy_errors: list[float] | None = None
     diagnostics: dict[str, Any] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
+    scalar_errors: dict[str, float] = field(default_factory=dict)  # last: keeps positional construction
 
 
 @dataclass
@@ -124,6 +126,7 @@ class Result:
     diagnostics: dict[str, Any] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
     units: dict[str, str] = field(default_factory=lambda: dict(UNITS))
+    scalar_errors: dict[str, float] = field(default_factory=dict)
 
     @property
     def ground_energy(self) -> float:

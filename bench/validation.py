@@ -234,6 +234,7 @@ def check_hellmann_feynman(runner: Runner, problem: Problem, tolerance: Toleranc
     g = problem.coupling
     step = DIFFERENCE_STEP * max(1.0, abs(g))
     slope, error = _derivative(runner, base, g, step)
+    error += getattr(result, "scalar_errors", {}).get("delta", 0.0)
     reported = result.scalars["delta"]
     deviation = abs(reported - slope)
     allowed = tolerance.allowed(slope, error) + abs(slope) * 1e-5
@@ -249,9 +250,11 @@ def check_virial(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verd
     if "trap_energy" not in result.scalars:
         raise Skip(f"{result.backend} does not report the scalar 'trap_energy' = <V_trap>")
     g = problem.coupling
-    error = level_error(result, 0)
+    scalar_errors = getattr(result, "scalar_errors", {})
+    error = level_error(result, 0) + 2 * scalar_errors.get("trap_energy", 0.0)
     if "delta" in result.scalars:
         slope = result.scalars["delta"]
+        error += abs(g) / 2 * scalar_errors.get("delta", 0.0)
     else:
         slope, difference_error = _derivative(runner, base, g, DIFFERENCE_STEP * max(1.0, abs(g)))
         error += abs(g) / 2 * difference_error
