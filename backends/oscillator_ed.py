@@ -55,6 +55,7 @@ from .result import Observable, Solution
 
 NON_MONOTONIC = "non-monotonic in the cutoff: last value, error = total variation along the ladder"
 COM_TOLERANCE = 1e-3  # <N_com> within this of an integer labels the centre-of-mass excitation
+SCALAR_ERROR_FLOOR = 1e-8  # relative; see the extrapolated scalars in _compute
 
 
 # ----------------------------------------------------------------------------- basis
@@ -497,8 +498,11 @@ class OscillatorEDBackend(Backend):
             obs, sca, vir = self._state_observables(problem, chosen[index], float(energies[index]), trap_delta)
             suffix = "" if index == 0 else f"@{index}"
             if len(runs) >= 3:
-                scalar_errors["trap_energy" + suffix] = float(limits[0].error)
-                scalar_errors["delta" + suffix] = float(limits[1].error)
+                # floor: dg_eff/dg comes from a central difference of the exact pair energy (step 1e-4 g),
+                # good to about 1e-8 relative
+                for name, fit in zip(("trap_energy", "delta"), limits):
+                    floor = SCALAR_ERROR_FLOOR * max(1.0, abs(fit.value))
+                    scalar_errors[name + suffix] = float(max(fit.error, floor))
             for name, observable in obs.items():
                 observable.state = index
                 observables[name + suffix] = observable
