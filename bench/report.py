@@ -23,7 +23,6 @@ import base64
 import datetime as _dt
 import html
 import json
-import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -36,7 +35,7 @@ from ..backends.provenance import machine as host_machine
 from . import report_figures
 from .report_figures import mass_ratio, ratio_text
 from .tables import (accuracy_vs_cost_table, attach_references, cost_vs_particle_number_table, failures_table,
-                     successful_ground_states, to_markdown)
+                     format_value, successful_ground_states, to_markdown)
 
 MAP_TARGETS = (1e-3, 1e-5)
 SCALING_ACCURACY = 1e-3
@@ -139,24 +138,13 @@ def render_html(document: Document, folder: Path) -> str:
     return "\n".join(parts)
 
 
-def _html_cell(value) -> str:
-    """A table cell as text, numbers formatted like the Markdown tables (12 significant digits, 3 below 1e-3)."""
-    if value is None or (isinstance(value, float) and math.isnan(value)):
-        return ""
-    if isinstance(value, (bool, np.bool_)):
-        return "yes" if value else "no"
-    if isinstance(value, (float, np.floating)):
-        return f"{value:.12g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.3g}"
-    return str(value)
-
-
 def _slug(text: str) -> str:
     return re.sub(r"[^A-Za-z0-9_-]+", "_", text).strip("_") or "problem"
 
 
 def _table_html(frame: pd.DataFrame) -> str:
     head = "".join(f"<th>{html.escape(str(c))}</th>" for c in frame.columns)
-    body = "".join("<tr>" + "".join(f"<td>{html.escape(_html_cell(v))}</td>" for v in row) + "</tr>"
+    body = "".join("<tr>" + "".join(f"<td>{html.escape(format_value(v))}</td>" for v in row) + "</tr>"
                    for row in frame.itertuples(index=False))
     if not body:
         body = f'<tr><td colspan="{max(len(frame.columns), 1)}">(no rows)</td></tr>'

@@ -219,14 +219,19 @@ def failures_table(frame: pd.DataFrame) -> pd.DataFrame:
 PRECISE_COLUMNS = frozenset({"energy", "ref_value", "baseline", "current", "g"})
 
 
-def _cell(value: Any, digits: int = 12) -> str:
+def format_value(value: Any, digits: int = 12) -> str:
+    """A table cell as plain text: `digits` significant digits (3 below 1e-3), yes/no, blank for missing."""
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return ""
     if isinstance(value, (bool, np.bool_)):
         return "yes" if value else "no"
     if isinstance(value, (float, np.floating)):
         return f"{value:.{digits}g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.3g}"
-    return str(value).replace("|", "\\|").replace("\n", " ")
+    return str(value)
+
+
+def _cell(value: Any, digits: int = 12) -> str:
+    return format_value(value, digits).replace("|", "\\|").replace("\n", " ")
 
 
 def to_markdown(table: pd.DataFrame) -> str:

@@ -44,7 +44,6 @@ def peak_memory_bytes() -> int:
 
 
 def run_case(index: int, budget: float) -> dict:
-    import numpy as np
     from threadpoolctl import threadpool_limits
 
     from trapbench.backends import oscillator_ed as oe
