@@ -44,18 +44,81 @@ class Extrapolation:
         }
 
 
-def _fit_polynomial(h: np.ndarray, y: np.ndarray, powers: Sequence[float]) -> tuple[float, float, np.ndarray]:
-    design = np.column_stack([np.ones_like(h)] + [h**p for p in powers])
-    coef, *_ = np.linalg.lstsq(design, y, rcond=None)
-    dof = len(h) - design.shape[1]
+@dataclass(frozen=True)
+class LinearFit:
+    """Weighted least-squares solution of y ~ design @ coefficients.
+
+    ``stderr`` are the standard errors sqrt(diag(s^2 (A^T W A)^-1)) with s^2 = residual / dof, the
+    usual estimate when the points' scatter is unknown; they are NaN when dof = 0 (an exact fit says
+    nothing about its own uncertainty). ``residual`` is the weighted sum of squared residuals.
+    """
+
+    coefficients: np.ndarray
+    stderr: np.ndarray
+    residual: float
+    dof: int
+
+
+@dataclass(frozen=True)
+class LineFit:
+    """Straight line y ~ intercept + slope x, with the standard errors of both (NaN when dof = 0)."""
+
+    intercept: float
+    slope: float
+    intercept_error: float
+    slope_error: float
+    residual: float
+    dof: int
+
+
+def fit_linear(design, y, weights=None) -> LinearFit:
+    """Least squares: minimize sum_i w_i (y_i - sum_k A_ik c_k)^2 over the coefficients c.
+
+    ``design`` is the matrix A (points x coefficients); a one-dimensional ``design`` is read as the
+    abscissa x of a straight line, A = [1, x]. ``weights`` w_i >= 0 (default 1) multiply the squared
+    residuals, e.g. inverse variances.
+    """
+    y = np.asarray(y, dtype=float)
+    design = np.asarray(design, dtype=float)
+    if design.ndim == 1:
+        design = np.column_stack([np.ones_like(design), design])
+    if design.ndim != 2 or design.shape[0] != y.shape[0]:
+        raise ValueError(f"design has shape {design.shape} but y has {y.shape[0]} points; give one design row per point")
+    if design.shape[0] < design.shape[1]:
+        raise ValueError(f"{design.shape[0]} points cannot fix {design.shape[1]} coefficients; add points or drop terms")
+    w = np.ones_like(y) if weights is None else np.asarray(weights, dtype=float)
+    if w.shape != y.shape or np.any(w < 0) or not np.all(np.isfinite(w)):
+        raise ValueError("weights must be finite, non-negative and one per point")
+    root_w = np.sqrt(w)
+    coefficients, *_ = np.linalg.lstsq(design * root_w[:, None], y * root_w, rcond=None)
+    residual = float(w @ (y - design @ coefficients) ** 2)
+    dof = design.shape[0] - design.shape[1]
     if dof > 0:
-        residual = y - design @ coef
-        sigma2 = float(residual @ residual) / dof
-        cov = sigma2 * np.linalg.pinv(design.T @ design)
-        stderr = float(np.sqrt(max(cov[0, 0], 0.0)))
+        covariance = residual / dof * np.linalg.pinv(design.T @ (design * w[:, None]))
+        stderr = np.sqrt(np.maximum(np.diag(covariance), 0.0))
     else:
-        stderr = 0.0
-    return float(coef[0]), stderr, coef
+        stderr = np.full(design.shape[1], np.nan)
+    return LinearFit(coefficients=coefficients, stderr=stderr, residual=residual, dof=dof)
+
+
+def fit_line(x, y, weights=None) -> LineFit:
+    """Weighted straight-line fit y ~ intercept + slope x (see ``fit_linear``); needs two points."""
+    fit = fit_linear(np.asarray(x, dtype=float).ravel(), y, weights)
+    return LineFit(
+        intercept=float(fit.coefficients[0]),
+        slope=float(fit.coefficients[1]),
+        intercept_error=float(fit.stderr[0]),
+        slope_error=float(fit.stderr[1]),
+        residual=fit.residual,
+        dof=fit.dof,
+    )
+
+
+def _fit_polynomial(h: np.ndarray, y: np.ndarray, powers: Sequence[float]) -> tuple[float, float, np.ndarray]:
+    fit = fit_linear(np.column_stack([np.ones_like(h)] + [h**p for p in powers]), y)
+    # an exact fit (no degrees of freedom) contributes no statistical error; the other estimates bound it
+    stderr = 0.0 if fit.dof == 0 else float(fit.stderr[0])
+    return float(fit.coefficients[0]), stderr, fit.coefficients
 
 
 def extrapolate_polynomial(
