@@ -26,15 +26,11 @@ from threadpoolctl import threadpool_limits
 from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import lattice, lattice_observables
-from .base import Backend, Parameter, Support
+from .base import Backend, Capabilities, Parameter
 from .extrapolation import extrapolate_polynomial
 from .lattice_ladder import LADDER_PARAMETERS, LatticeLevels, resolve_ladder, solve_ladder
 from .result import Solution
 
-UNSUPPORTED_OBSERVABLES = {
-    "pair_momentum": "momentum pair correlations need four-point functions over all site quadruples",
-    "noise": "noise correlations need four-point functions over all site quadruples",
-}
 # Default ladder of spacings (fractions of lattice.length_scale): coarser than lattice-ed's, because
 # the bond dimension DMRG needs grows with the number of sites. Measured (bench_lattice_results.md):
 # 6+6 at g = 2 over these five spacings gives a relative error bar of 2e-4 in 5 CPU minutes; a ladder
@@ -143,13 +139,14 @@ class LatticeDMRGBackend(Backend):
         Parameter("threads", int, 1, "BLAS threads", minimum=1),
     )
 
-    def supports(self, problem: Problem) -> Support:
-        for name in problem.targets.observables:
-            if name in UNSUPPORTED_OBSERVABLES:
-                return Support.no(f"observable '{name}' is not computed: {UNSUPPORTED_OBSERVABLES[name]}; use lattice-ed")
-        if problem.targets.parity != "any":
-            return Support.no("parity sectors are not resolved by the MPS; ask for parity 'any' or use lattice-ed")
-        return Support.yes()
+    # momentum pair maps and noise need four-point functions over all site quadruples, and the MPS does
+    # not resolve parity sectors: lattice-ed does both
+    capabilities = Capabilities(
+        trap_shapes=("harmonic", "harmonic+gaussian", "box"),
+        parity_sectors=False,
+        observables=("density", "momentum", "obdm", "pair_position", "contact", "trap_energy"),
+        error_bars=True,
+    )
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         chis = tuple(int(c) for c in params["chi"])

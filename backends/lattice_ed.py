@@ -24,7 +24,7 @@ import scipy.sparse as sp
 from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import fock_ed, lattice, lattice_observables
-from .base import Backend, Parameter, Support
+from .base import Backend, Capabilities, Parameter, Support
 from .lattice_ladder import LADDER_PARAMETERS, LatticeLevels, resolve_ladder, solve_ladder
 from .result import Observable, Solution
 
@@ -164,13 +164,18 @@ class LatticeEDBackend(Backend):
         Parameter("max_dimension", int, DEFAULT_MAX_DIMENSION, "refuse product bases larger than this", minimum=1),
     )
 
-    def supports(self, problem: Problem) -> Support:
+    capabilities = Capabilities(
+        trap_shapes=("harmonic", "harmonic+gaussian", "box"), observables=("density", "momentum", "obdm", "pair_position", "pair_momentum", "noise", "contact", "trap_energy"), error_bars=True
+    )
+
+    def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:
         coarsest = lattice.make_grid(problem, max(lattice.default_spacings(problem)), lattice.half_width(problem))
         dim = dimension(problem, coarsest.sites)
-        if dim > DEFAULT_MAX_DIMENSION:
+        limit = (params or {}).get("max_dimension", DEFAULT_MAX_DIMENSION)
+        if dim > limit:
             return Support.no(
                 f"even the coarsest default lattice ({coarsest.sites} sites) has a basis of {dim:.3g} states"
-                f" (> {DEFAULT_MAX_DIMENSION:.0e}); use lattice-dmrg or oscillator-ed"
+                f" (> max_dimension = {limit:.3g}); raise max_dimension, or use lattice-dmrg or oscillator-ed"
             )
         return Support.yes()
 

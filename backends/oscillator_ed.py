@@ -49,7 +49,7 @@ from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import fock_ed
 from . import oscillator_basis as ob
-from .base import Backend, Parameter, SolverError, Support
+from .base import Backend, Capabilities, Parameter, SolverError
 from .extrapolation import Extrapolation, extrapolate_polynomial, extrapolate_power_law
 from .result import Observable, Solution
 
@@ -354,6 +354,8 @@ class OscillatorEDBackend(Backend):
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
     )
+    # beyond ~10 particles the determinant basis grows too fast: a lattice method is the better tool
+    capabilities = Capabilities(max_particles=10, observables=("density", "momentum", "obdm", "pair_position", "pair_momentum", "noise", "contact", "trap_energy"), error_bars=True)
     parameters = (
         Parameter("truncation", str, "energy", "basis cutoff: 'energy' (E <= E_0 + cutoff) or 'orbital'", choices=("energy", "orbital")),
         Parameter(
@@ -386,13 +388,6 @@ class OscillatorEDBackend(Backend):
             minimum=1,
         ),
     )
-
-    def supports(self, problem: Problem) -> Support:
-        if not problem.trap.is_harmonic:
-            return Support.no(f"the oscillator basis needs a harmonic trap (got '{problem.trap.shape}')")
-        if problem.n_particles > 10:
-            return Support.no(f"{problem.n_particles} particles: the basis grows too fast beyond ~10; use a lattice method")
-        return Support.yes()
 
     def default_cutoff(self, problem: Problem, truncation: str) -> int:
         """Largest cutoff of the default ladder: a few seconds of CPU per problem (see benchmarks)."""

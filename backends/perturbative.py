@@ -24,7 +24,7 @@ from typing import Any
 import numpy as np
 
 from ..problems.spec import Problem
-from .base import Backend, SolverError, Support
+from .base import Backend, Capabilities, SolverError
 from .result import Solution
 
 DEGENERACY_TOLERANCE = 1e-10
@@ -71,11 +71,7 @@ class PerturbativeBackend(Backend):
     version = "1"
     summary = "Non-interacting levels + exact first-order shift in g (degenerate perturbation theory); small |g| only"
     parameters = ()
-
-    def supports(self, problem: Problem) -> Support:
-        if not problem.trap.is_harmonic:
-            return Support.no(f"oscillator orbitals need a harmonic trap (got '{problem.trap.shape}')")
-        return Support.yes("first order in g: valid for small |g| only")
+    capabilities = Capabilities()  # energies only, in the harmonic trap
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         g = problem.coupling

@@ -33,7 +33,7 @@ import numpy as np
 
 from ..problems.references import STRONG_COUPLING_C2, STRONG_COUPLING_MIN_RATIO
 from ..problems.spec import Problem
-from .base import Backend, Parameter, Support
+from .base import Backend, Capabilities, Parameter, Support
 from .result import Observable, Solution
 from .spin_chain import MAX_CHAIN_STATES, chain_is_tractable, spin_chain_spectrum, spin_resolved_densities
 
@@ -59,17 +59,18 @@ class StrongCouplingBackend(Backend):
         ),
     )
 
-    def supports(self, problem: Problem) -> Support:
+    # unequal masses or trap frequencies lift the degeneracy of the fermionized manifold the chain acts
+    # in; the expansion is in 1/g about g = +inf, so only the repulsive branch
+    capabilities = Capabilities(
+        unequal_masses=False,
+        unequal_frequencies=False,
+        couplings="repulsive",
+        observables=("density", "contact"),
+        error_bars=True,
+    )
+
+    def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:
         up, down = problem.species
-        if not problem.trap.is_harmonic:
-            return Support.no(f"the spin chain is built for the harmonic trap (got '{problem.trap.shape}')")
-        if not problem.equal_masses:
-            return Support.no(
-                f"unequal masses ({up.mass:g} and {down.mass:g}) lift the degeneracy of the fermionized manifold;"
-                " use an ED backend"
-            )
-        if not problem.equal_frequencies:
-            return Support.no("unequal trap frequencies lift the degeneracy of the fermionized manifold")
         if up.count < 1 or down.count < 1:
             return Support.no("both species need at least one particle (otherwise g does nothing: use g = 0 results)")
         if not chain_is_tractable(up.count, down.count):
@@ -77,8 +78,6 @@ class StrongCouplingBackend(Backend):
                 f"the spin chain of {up.count}+{down.count} has {math.comb(problem.n_particles, up.count)} states;"
                 f" at most {MAX_CHAIN_STATES} are diagonalized here"
             )
-        if any(g <= 0 for g in problem.g):
-            return Support.no("only the repulsive branch g > 0 is described (the expansion is in 1/g about g = +inf)")
         size = math.comb(problem.n_particles, up.count)
         wanted = problem.targets.parity
         if wanted != "any":
@@ -88,7 +87,7 @@ class StrongCouplingBackend(Backend):
                 f"the fermionized manifold has {size} states in parity sector '{wanted}';"
                 f" ask for targets.states <= {size}"
             )
-        return Support.yes("valid at large g only: the error grows like K^2/g^2")
+        return Support.yes()
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         up, down = problem.species

@@ -31,7 +31,7 @@ import numpy as np
 from scipy import interpolate, optimize, special
 
 from ..problems.spec import Problem
-from .base import Backend, Parameter, Support
+from .base import Backend, Capabilities, Parameter
 from .result import Observable, Solution
 
 # Brent tolerances: |e - e_exact| <= XTOL + RTOL |e| (scipy.optimize.brentq's guarantee).
@@ -99,6 +99,12 @@ class TwoBodyBackend(Backend):
     name = "two-body"
     version = "1"
     summary = "Exact 1+1 solution (Busch et al., Found. Phys. 28, 549 (1998)); any masses, any g"
+    capabilities = Capabilities(
+        particle_counts=((1, 1),),
+        unequal_frequencies=False,  # the centre of mass separates only with one trap frequency
+        observables=("density", "momentum", "contact", "trap_energy"),
+        error_bars=True,
+    )
     parameters = (
         Parameter(
             "relative_points",
@@ -108,19 +114,6 @@ class TwoBodyBackend(Backend):
             minimum=200,
         ),
     )
-
-    def supports(self, problem: Problem) -> Support:
-        if (problem.up.count, problem.down.count) != (1, 1):
-            return Support.no(
-                f"the two-body solution needs exactly 1+1 particles (got {problem.up.count}+{problem.down.count})"
-            )
-        if not problem.trap.is_harmonic:
-            return Support.no(f"the two-body solution needs a harmonic trap (got '{problem.trap.shape}')")
-        if not problem.equal_frequencies:
-            return Support.no(
-                "the two-body solution needs equal trap frequencies (the centre of mass does not separate otherwise)"
-            )
-        return Support.yes()
 
     # ------------------------------------------------------------------ spectrum
     def spectrum(self, problem: Problem) -> list[dict[str, Any]]:

@@ -31,19 +31,22 @@ def test_json_round_trip_is_lossless():
 
 PLUGIN = '''
 """A user's own solver: the non-interacting energy, exact only at g = 0."""
-from trapbench.backends import Backend, Solution, Support
+from trapbench.backends import Backend, Capabilities, Solution, Support
 
 
 class FreeFermions(Backend):
     name = "free-fermions"
     version = "0.1"
     summary = "non-interacting reference"
+    capabilities = Capabilities(unequal_masses=False, unequal_frequencies=False, excited_states=False)
 
-    def supports(self, problem):
+    def supports(self, problem, params):
         return Support.yes() if problem.coupling == 0 else Support.no("only g = 0")
 
     def compute(self, problem, params):
-        return Solution(energies=[(problem.up.count ** 2 + problem.down.count ** 2) / 2])
+        n_up, n_down = problem.up.count, problem.down.count
+        parity = (-1) ** (n_up * (n_up - 1) // 2 + n_down * (n_down - 1) // 2)
+        return Solution(energies=[(n_up ** 2 + n_down ** 2) / 2], states=[{"parity": parity, "com": 0}])
 '''
 
 
@@ -82,10 +85,17 @@ def test_plugin_found_through_entry_point(installed_plugin):
         env=env, capture_output=True, text=True, timeout=120,
     )
     assert solved.returncode == 0, solved.stderr
-    # (N_up^2 + N_down^2)/2 = 6.5 (anchors section 1)
+    # Pauli principle in the oscillator levels n + 1/2: sum_{n < N} (n + 1/2) = N^2/2 per species, so
+    # (9 + 4)/2 = 6.5 (textbook, common practice)
     assert json.loads(solved.stdout)["energies"] == [6.5]
     refused = subprocess.run(
         [sys.executable, "-m", "trapbench.bench.cli", "solve", "--up", "3", "--down", "2", "--g", "1", "-b", "free-fermions"],
         env=env, capture_output=True, text=True, timeout=120,
     )
     assert refused.returncode == 2 and "only g = 0" in refused.stderr
+    excited = subprocess.run(
+        [sys.executable, "-m", "trapbench.bench.cli", "solve", "--up", "3", "--down", "2", "--g", "0", "--states", "3",
+         "-b", "free-fermions"],
+        env=env, capture_output=True, text=True, timeout=120,
+    )
+    assert excited.returncode == 2 and "ground state only" in excited.stderr

@@ -176,7 +176,7 @@ def test_heavy_light_densities_and_momentum_tail(backend):
 
 
 def test_rejects_other_particle_numbers_with_reason(backend):
-    support = backend.supports(Problem.create(2, 1, 1.0))
+    support = backend.admits(Problem.create(2, 1, 1.0))
     assert not support and "1+1" in support.reason
-    support = backend.supports(Problem.create(1, 1, 1.0, omega_down=2.0))
+    support = backend.admits(Problem.create(1, 1, 1.0, omega_down=2.0))
     assert not support and "trap frequencies" in support.reason

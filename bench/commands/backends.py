@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 
 from ...backends import registry
+from ...backends.base import support_of
 from .problem_options import add_problem_options, problem_from_args
 
 NAME = "backends"
@@ -29,9 +30,8 @@ def run(args: argparse.Namespace) -> int:
             continue
         line = f"{name:16s} {getattr(backend, 'summary', '')}"
         if problem is not None:
-            checks = [backend.supports(point) for point in problem.points()]
-            failed = [c for c in checks if not c]
-            line += "\n" + " " * 17 + ("-> can solve it" if not failed else f"-> cannot: {failed[0].reason}")
+            support = support_of(backend, problem)
+            line += "\n" + " " * 17 + ("-> can solve it" if support else f"-> cannot: {support.reason}")
         print(line)
         if args.verbose:
             for p in getattr(backend, "parameters", ()):
