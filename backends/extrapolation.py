@@ -1,23 +1,38 @@
 """Extrapolation of a ladder of approximations to the exact limit, with an error bar.
 
-Two asymptotic forms serve every backend:
+The one module for least squares and convergence models in the package.
+
+Least squares: ``fit_linear`` (weighted, with standard errors) and ``fit_line``.
+
+Asymptotic forms:
 
 - ``extrapolate_polynomial``: E(h) = E_0 + sum_k c_k h^(p_k) with known powers (Richardson
-  extrapolation generalized to weighted least squares), e.g. h = lattice spacing a with powers
-  (2, 3) or (2, 4); h = 1/chi or a truncation error for DMRG with power 1.
+  extrapolation generalized to least squares), e.g. h = lattice spacing a with powers (2, 4).
 - ``extrapolate_power_law``: E(n) = E_inf + A n^(-p) with unknown p (fitted), e.g. n = an orbital or
   energy cutoff of a basis expansion.
 
-The error bar is deliberately conservative (common practice in convergence studies): it is the
+Their error bar is deliberately conservative (common practice in convergence studies): it is the
 largest of (i) the fit's own standard error, (ii) the change of the limit when the least-converged
 point is dropped, (iii) the change when the model loses its highest-order term, and (iv) a floor of
 ``floor_fraction`` times the last correction (E_last - E_0). A single point gives no extrapolation.
+
+Models for the convergence ladder (``backends/ladder.py``): callables ``model(steps, values) ->
+Extrapolation`` with a ``minimum_points`` attribute, one per way a method approaches its limit:
+
+- ``PolynomialModel``: polynomial in a power of the step (lattice spacing a: powers (2, 4) in a;
+  bare contact interaction in an oscillator basis: powers (1, 2) in c^(-1/2));
+- ``DriftingPowerLaw``: E_inf + A c^(-p) with a drifting fitted p (renormalized oscillator basis);
+- ``DiscardedWeightLinear``: linear in the discarded weight of a DMRG bond-dimension ladder.
+
+A model that cannot apply its form (e.g. values that turn around) still returns a limit and an
+honest error bar, and says why in ``Extrapolation.warning``; nothing is signalled by strings in
+``model``.
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -32,9 +47,10 @@ class Extrapolation:
     steps: tuple[float, ...]
     values: tuple[float, ...]
     parameters: dict = field(default_factory=dict)
+    warning: str | None = None  # set when the model's form did not apply and a fallback was used
 
     def as_dict(self) -> dict:
-        return {
+        data = {
             "value": self.value,
             "error": self.error,
             "model": self.model,
@@ -42,6 +58,9 @@ class Extrapolation:
             "values": list(self.values),
             "parameters": dict(self.parameters),
         }
+        if self.warning:
+            data["warning"] = self.warning
+        return data
 
 
 @dataclass(frozen=True)
@@ -210,3 +229,96 @@ def extrapolate_power_law(
         values=tuple(y.tolist()),
         parameters={"amplitude": amplitude, "power": power},
     )
+
+
+# ----------------------------------------------------------------------------- ladder models
+
+
+@dataclass(frozen=True)
+class PolynomialModel:
+    """E(h) = E_0 + sum_k c_k h^(p_k) with h = step^exponent, the limit h -> 0.
+
+    ``exponent`` = 1 for a lattice spacing (h = a -> 0); -1/2 for an oscillator cutoff c with a bare
+    contact interaction (h = c^(-1/2) -> 0 as c -> infinity). With fewer than 1 + len(powers) points
+    the highest powers are dropped (two spacings: Richardson extrapolation in the first power).
+    """
+
+    powers: tuple[float, ...] = (2.0, 4.0)
+    exponent: float = 1.0
+    minimum_points: int = 2
+
+    def __call__(self, steps: Sequence[float], values: Sequence[float]) -> Extrapolation:
+        h = np.asarray(steps, dtype=float) ** self.exponent
+        kept = self.powers[: max(1, min(len(self.powers), len(h) - 1))]
+        return extrapolate_polynomial(h, values, powers=kept)
+
+
+@dataclass(frozen=True)
+class DriftingPowerLaw:
+    """E(c) = E_inf + A c^(-p), p fitted to the last three cutoffs, for an exponent still drifting.
+
+    Fitted by ``extrapolate_power_law`` (its error bar shifts p by 25%). Where p still drifts along
+    the reachable cutoffs (2+2, g = 2 in a renormalized oscillator basis: p = 0.66 at c = 8-16, 1.76
+    at 24-32, 1.67 at 36-44), the error bar is also at least twice the change of E_inf from the
+    previous three cutoffs, and it is the whole correction |E_last - E_inf| when p moved by more than
+    25% or fewer than four cutoffs were given. Values that turn around along the ladder (not
+    monotonic, e.g. a non-variational renormalized energy) follow no power law: the last value is
+    returned with the total variation along the ladder as its error bar, and a ``warning``.
+    """
+
+    minimum_points: int = 3
+
+    def __call__(self, steps: Sequence[float], values: Sequence[float]) -> Extrapolation:
+        cutoffs = np.asarray(steps, dtype=float)
+        energies = np.asarray(values, dtype=float)
+        changes = np.diff(energies)
+        changes = changes[np.abs(changes) > 1e-10 * max(1.0, abs(energies[-1]))]
+        if len(changes) >= 2 and np.any(np.sign(changes) != np.sign(changes[-1])):
+            return Extrapolation(
+                value=float(energies[-1]),
+                error=float(np.sum(np.abs(np.diff(energies)))),
+                model="last value (not monotonic in the cutoff)",
+                steps=tuple(cutoffs.tolist()),
+                values=tuple(energies.tolist()),
+                warning=(
+                    "the energy turned around along the cutoff ladder (not variational, e.g. a renormalized"
+                    " interaction): last value, error bar = total variation along the ladder"
+                ),
+            )
+        fit = extrapolate_power_law(cutoffs[-3:], energies[-3:])
+        correction = abs(energies[-1] - fit.value)
+        error = max(fit.error, correction)
+        if len(cutoffs) >= 4:
+            previous = extrapolate_power_law(cutoffs[-4:-1], energies[-4:-1])
+            power, earlier = fit.parameters["power"], previous.parameters["power"]
+            error = max(fit.error, 2 * abs(fit.value - previous.value))
+            if abs(power - earlier) > 0.25 * power:
+                error = max(error, correction)
+        return replace(fit, error=float(error), steps=tuple(cutoffs.tolist()), values=tuple(energies.tolist()))
+
+
+@dataclass(frozen=True)
+class DiscardedWeightLinear:
+    """E(eps) = E_0 + c eps in the discarded weight eps of a bond-dimension ladder (common practice).
+
+    Used when the two largest bond dimensions still truncate (eps > ``no_truncation``) and all
+    weights differ; the error bar is the larger of the fit's (``extrapolate_polynomial``, power 1)
+    and half the extrapolation distance |E_last - E_0|. Otherwise the last energy with the change from
+    the previous one as error. A single rung is exact only if it did not truncate.
+    """
+
+    no_truncation: float = 1e-14
+    minimum_points: int = 1
+
+    def __call__(self, steps: Sequence[float], values: Sequence[float]) -> Extrapolation:
+        weights, energies = list(map(float, steps)), list(map(float, values))
+        if len(energies) == 1:
+            if weights[0] > self.no_truncation:
+                raise ValueError(f"one truncating bond dimension (discarded weight {weights[0]:.2e}) gives no error bar")
+            return Extrapolation(energies[0], 0.0, "no truncation", tuple(weights), tuple(energies))
+        if min(weights[-2:]) > self.no_truncation and len(set(weights)) == len(weights):
+            fit = extrapolate_polynomial(weights, energies, powers=(1.0,))
+            return replace(fit, error=max(fit.error, abs(energies[-1] - fit.value) * 0.5))
+        return Extrapolation(
+            energies[-1], abs(energies[-1] - energies[-2]), "last value (no truncation left)", tuple(weights), tuple(energies)
+        )

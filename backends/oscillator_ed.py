@@ -11,7 +11,7 @@ one-body energies omega_s (n + 1/2). The many-body basis is Slater determinants 
 
 Parity (x -> -x) is diagonal in this basis, (-1)^(sum of orbital indices), so each sector is a
 sub-basis, solved separately. The contact term uses exact Gauss-Hermite matrix elements through the
-factorized form g sum_q w_q rho_up(x_q) rho_down(x_q) (``oscillator_basis.contact_quadrature``,
+factorized form g sum_q w_q rho_up(x_q) rho_down(x_q) (``problems.exact.contact_quadrature``,
 ``fock_ed.ProductHamiltonian``); nothing is summed on a grid.
 
 Renormalized interaction (``renormalized = true``; Lindgren et al., New J. Phys. 16, 063003 (2014);
@@ -20,13 +20,15 @@ replaced by g_eff(cutoff) such that the 1+1 problem in the same truncated basis 
 ground energy (Busch et al., the ``two-body`` backend's root). Needs equal trap frequencies.
 <sum delta> is then reported as dE/dg = <delta>_trunc dg_eff/dg with dg_eff/dg from the 1+1 problem.
 
-Convergence: ``ladder`` cutoffs (cutoff, cutoff - step, ...) are solved; each level is followed
-across them by (parity sector, rank in the sector) and, with >= 3 cutoffs, extrapolated
-(``extrapolate``): bare interaction E_inf + a c^-1/2 + b c^-1 (measured 1+1 error exponents:
+Convergence: ``ladder`` cutoffs (cutoff, cutoff - step, ...) run through the shared convergence
+ladder (``backends/ladder.py``, which states how every error bar is formed): each level is followed
+across them by (parity sector, rank in the sector) and, with >= 3 cutoffs, extrapolated with
+``cutoff_model``: bare interaction E_inf + a c^-1/2 + b c^-1 (measured 1+1 error exponents:
 0.50-0.53 in the energy cutoff for g = 0.5..10, 0.57 in the orbital cutoff n_max = 10-80);
 renormalized interaction E_inf + A c^-p with p fitted (2+2, g = 2: p rises from 0.7 to 1.76 over
-c = 8-32, then 1.67 at c = 36-44). ``error_estimate`` is the largest error bar of the reported
-levels; with 2 cutoffs it is the change between them; with one cutoff it is None.
+c = 8-32, then 1.67 at c = 36-44). The solver floor is the Lanczos tolerance. <V_trap> and dE/dg are
+extrapolated the same way (``scalar_errors``); the kinetic energy and the contact derived from them
+carry the propagated error bars.
 
 Scalars (``result.SCALAR_NAMES``) and observables (``result.OBSERVABLE_NAMES``) are computed from
 the largest cutoff's eigenvectors for the ``observable_states`` lowest states (suffix @k for k > 0);
@@ -48,14 +50,14 @@ import numpy as np
 from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import fock_ed
-from . import oscillator_basis as ob
+from ..problems import exact as ob
 from .base import Backend, Capabilities, Parameter, SolverError
-from .extrapolation import Extrapolation, extrapolate_polynomial, extrapolate_power_law
+from .extrapolation import DriftingPowerLaw, PolynomialModel
+from .ladder import Rung, RungLevel, rank_keys, run_ladder
 from .result import Observable, Solution
 
-NON_MONOTONIC = "non-monotonic in the cutoff: last value, error = total variation along the ladder"
 COM_TOLERANCE = 1e-3  # <N_com> within this of an integer labels the centre-of-mass excitation
-SCALAR_ERROR_FLOOR = 1e-8  # relative; see the extrapolated scalars in _compute
+SCALAR_ERROR_FLOOR = 1e-8  # relative; see the ladder call in _compute
 
 
 # ----------------------------------------------------------------------------- basis
@@ -158,7 +160,7 @@ def hamiltonian(problem: Problem, sector: SectorBasis, g: float) -> fock_ed.Prod
 
 def exact_pair_energy(g: float, reduced_mass: float, omega: float) -> float:
     """Ground energy of 1+1 (Busch et al.): omega (1/2 + e_0(lambda)), lambda = g sqrt(mu/omega)."""
-    from .two_body import even_relative_level
+    from ..problems.exact.busch import even_relative_level
 
     return omega * (0.5 + even_relative_level(g * math.sqrt(reduced_mass / omega), 0))
 
@@ -289,59 +291,38 @@ def com_quanta(problem: Problem, level: Level) -> float | None:
 # ----------------------------------------------------------------------------- extrapolation
 
 
-def extrapolate(cutoffs, energies, renormalized: bool):
-    """Limit of infinite cutoff c with an error bar.
+def cutoff_model(renormalized: bool):
+    """The ladder model of the infinite-cutoff limit.
 
     Bare contact interaction: the error decays as c^(-1/2) (the delta function's oscillator-basis
     expansion; measured p = 0.50-0.53 for 1+1 at g = 0.5..10, see tests), so the model is
-    E(c) = E_inf + a c^(-1/2) + b c^(-1) (``extrapolate_polynomial`` in h = c^(-1/2)).
+    E(c) = E_inf + a c^(-1/2) + b c^(-1), a polynomial in h = c^(-1/2).
 
-    Renormalized interaction: E(c) = E_inf + A c^(-p) with p fitted to the last three cutoffs
-    (``extrapolate_power_law``; its error bar shifts p by 25%). At reachable cutoffs p is still
-    drifting (2+2, g = 2: p = 0.66 at c = 8-16, 1.76 at 24-32, 1.67 at 36-44), so the error bar is
-    also at least twice the change of E_inf from the previous three cutoffs, and it is the whole
-    correction |E_last - E_inf| when p moved by more than 25% or fewer than four cutoffs were run.
-    When the energies along the ladder turn around (not monotonic), the last value is reported with the
-    total variation along the ladder as its error bar (model ``NON_MONOTONIC``).
+    Renormalized interaction: E(c) = E_inf + A c^(-p) with p fitted to the last three cutoffs and
+    still drifting at reachable cutoffs (``extrapolation.DriftingPowerLaw``, which also handles an
+    energy that turns around: the renormalized interaction is not variational).
     """
-    cutoffs = np.asarray(cutoffs, dtype=float)
-    energies = np.asarray(energies, dtype=float)
-    if not renormalized:
-        return extrapolate_polynomial(cutoffs**-0.5, energies, powers=(1.0, 2.0))
-    steps = np.diff(energies)
-    steps = steps[np.abs(steps) > 1e-10 * max(1.0, abs(energies[-1]))]
-    if len(steps) >= 2 and np.any(np.sign(steps) != np.sign(steps[-1])):
-        # the renormalized energy is not variational and can turn around (seen for 2+2 with mass
-        # ratio 40/6, g = 2, near c = 36): no power law applies; report the last value with the
-        # whole variation along the ladder as a rough error bar
-        return Extrapolation(
-            value=float(energies[-1]),
-            error=float(np.sum(np.abs(np.diff(energies)))),
-            model=NON_MONOTONIC,
-            steps=tuple(cutoffs.tolist()),
-            values=tuple(energies.tolist()),
-        )
-    fit = extrapolate_power_law(cutoffs[-3:], energies[-3:])
-    correction = abs(energies[-1] - fit.value)
-    error = max(fit.error, correction)
-    if len(cutoffs) >= 4:
-        previous = extrapolate_power_law(cutoffs[-4:-1], energies[-4:-1])
-        power, earlier = fit.parameters["power"], previous.parameters["power"]
-        error = max(fit.error, 2 * abs(fit.value - previous.value))
-        if abs(power - earlier) > 0.25 * power:
-            error = max(error, correction)
-    return replace(fit, error=float(error), steps=tuple(cutoffs.tolist()), values=tuple(energies.tolist()))
+    if renormalized:
+        return DriftingPowerLaw()
+    return PolynomialModel(powers=(1.0, 2.0), exponent=-0.5, minimum_points=3)
 
 
-def _by_parity_rank(levels: list[Level]) -> dict[tuple[int, int], Level]:
-    """{(parity, rank within that parity sector): level} for levels sorted by energy."""
-    table: dict[tuple[int, int], Level] = {}
-    counts: dict[int, int] = {}
-    for level in levels:
-        rank = counts.get(level.parity, 0)
-        counts[level.parity] = rank + 1
-        table[(level.parity, rank)] = level
-    return table
+def derived_scalar_errors(problem: Problem, energy_error, trap_error, delta_error, suffix: str) -> dict[str, float]:
+    """Error bars of <V_trap>, dE/dg and of the scalars derived from them and E.
+
+    kinetic = E - <V_trap> - g dE/dg and contact = (2 mu)^2 g^2 dE/dg, so their bars are
+    dE + d<V_trap> + |g| d(dE/dg) and (2 mu)^2 g^2 d(dE/dg) (linear propagation, errors added).
+    """
+    g = problem.coupling
+    errors = {}
+    if trap_error is not None:
+        errors["trap_energy" + suffix] = trap_error
+    if delta_error is not None:
+        errors["delta" + suffix] = delta_error
+        errors["contact" + suffix] = (2 * problem.reduced_mass()) ** 2 * g**2 * delta_error
+        if trap_error is not None and energy_error is not None:
+            errors["kinetic_energy" + suffix] = energy_error + trap_error + abs(g) * delta_error
+    return errors
 
 
 # ----------------------------------------------------------------------------- backend
@@ -426,82 +407,64 @@ class OscillatorEDBackend(Backend):
         k = wanted + params["extra_states"]
         parities = {"any": (+1, -1), "even": (+1,), "odd": (-1,)}[problem.targets.parity]
 
-        runs = []
-        for c in cutoffs:
+        def solve_rung(c: int, final: bool) -> Rung:
             trunc = Truncation(kind, c)
             g_used, slope = effective_coupling(problem, trunc, g) if renormalized else (g, 1.0)
             levels, diag = solve_cutoff(problem, trunc, g_used, k, parities, params["tolerance"])
-            runs.append((c, trunc, g_used, slope, levels, diag))
-        final = runs[-1][4]
-        # follow each level across the ladder by (parity sector, rank within the sector): level
-        # order across sectors can change with the cutoff, order within a sector cannot
-        tables = [_by_parity_rank(run[4]) for run in runs]
-        keys = [key for key in tables[-1] if all(key in table for table in tables)]
-        raw_all = np.array([[table[key].energy for key in keys] for table in tables])
+            diag["g_used"] = g_used
+            # degeneracy: size of the cluster (spacings < tolerance) among every level of this cutoff
+            clusters = fock_ed.degeneracies([lv.energy for lv in levels], params["degeneracy_tolerance"])
+            found = {}
+            for key, lv, cluster in zip(rank_keys([lv.parity for lv in levels]), levels, clusters):
+                found[key] = RungLevel(
+                    energy=lv.energy,
+                    labels={"parity": lv.parity, "degeneracy": cluster, "com": None},
+                    scalars=lambda lv=lv: dict(zip(("trap_energy", "delta"), self._expectations(problem, lv, g_used, slope))),
+                    payload=lv,
+                )
+            return Rung(c, found, diag)
 
-        energies = raw_all[-1].copy()
-        errors: list[float] | None = None
-        fits = None
-        if len(runs) >= 3:
-            fits = [extrapolate(cutoffs, raw_all[:, i], renormalized) for i in range(len(keys))]
-            energies = np.array([f.value for f in fits])
-            errors = [f.error for f in fits]
-            turned = [i for i, f in enumerate(fits) if f.model == NON_MONOTONIC]
-        elif len(runs) == 2:
-            errors = list(np.abs(raw_all[1] - raw_all[0]))
-        if errors is not None:  # never below what the eigensolver resolves
-            floor = max(params["tolerance"], 1e-12)
-            errors = [max(float(err), floor * max(1.0, abs(e))) for err, e in zip(errors, energies)]
-        order = np.argsort(energies, kind="stable")[:wanted]
-        count = len(order)
-        energies = energies[order]
-        if errors is not None:
-            errors = [float(errors[i]) for i in order]
-        chosen = [tables[-1][keys[i]] for i in order]
-        raw = raw_all[:, order]
-        extrapolation = None if fits is None else [fits[i].as_dict() for i in order]
-        if fits is not None and any(i in turned for i in order):
-            warnings.append(
-                "a level's energy turned around along the cutoff ladder (the renormalized interaction is not"
-                " variational): its error bar is only the variation along the ladder; compare with renormalized=false"
-            )
-
-        # degeneracy: size of the cluster (spacings < tolerance) among every level of the largest cutoff
-        clusters = dict(zip((id(lv) for lv in final), fock_ed.degeneracies([lv.energy for lv in final], params["degeneracy_tolerance"])))
-        states = []
-        for lv in chosen:
+        # levels are followed by (parity sector, rank within the sector): level order across sectors
+        # can change with the cutoff, order within a sector cannot. <V_trap> and dE/dg converge like
+        # the energy; dg_eff/dg comes from a central difference of the exact pair energy (step 1e-4 g),
+        # good to about 1e-8 relative: their error floor.
+        ladder = run_ladder(
+            cutoffs,
+            solve_rung,
+            cutoff_model(renormalized),
+            keep=wanted,
+            scalar_states=params["observable_states"],
+            floor=max(params["tolerance"], 1e-12),
+            scalar_floor=SCALAR_ERROR_FLOOR,
+        )
+        warnings += ladder.warnings
+        count = len(ladder.keys)
+        chosen = [ladder.final.levels[key].payload for key in ladder.keys]
+        states = ladder.states
+        for state, lv in zip(states, chosen):
             n_com = com_quanta(problem, lv)
-            com = None
             if n_com is not None and abs(n_com - round(n_com)) < COM_TOLERANCE:
-                com = int(round(n_com))
-            states.append(
-                {
-                    "parity": lv.parity,
-                    "degeneracy": clusters[id(lv)],
-                    "com": com,
-                }
-            )
+                state["com"] = int(round(n_com))
+
         observables, scalars, scalar_errors, virial = {}, {}, {}, []
         for index in range(min(params["observable_states"], count)):
-            key = keys[order[index]]
-            ladder = np.array([self._expectations(problem, table[key], run[2], run[3]) for table, run in zip(tables, runs)])
-            if len(runs) >= 3:  # converge <V_trap> and dE/dg like the energy
-                limits = [extrapolate(cutoffs, ladder[:, j], renormalized) for j in range(2)]
-                trap_delta = tuple(fit.value for fit in limits)
-            else:
-                trap_delta = tuple(ladder[-1])
-            obs, sca, vir = self._state_observables(problem, chosen[index], float(energies[index]), trap_delta)
             suffix = "" if index == 0 else f"@{index}"
-            if len(runs) >= 3:
-                # floor: dg_eff/dg comes from a central difference of the exact pair energy (step 1e-4 g),
-                # good to about 1e-8 relative
-                for name, fit in zip(("trap_energy", "delta"), limits):
-                    floor = SCALAR_ERROR_FLOOR * max(1.0, abs(fit.value))
-                    scalar_errors[name + suffix] = float(max(fit.error, floor))
+            trap_delta = (ladder.scalars["trap_energy" + suffix], ladder.scalars["delta" + suffix])
+            energy = ladder.energies[index]
+            obs, sca, vir = self._state_observables(problem, chosen[index], energy, trap_delta)
             for name, observable in obs.items():
                 observable.state = index
                 observables[name + suffix] = observable
             scalars.update({name + suffix: value for name, value in sca.items()})
+            scalar_errors.update(
+                derived_scalar_errors(
+                    problem,
+                    None if ladder.energy_errors is None else ladder.energy_errors[index],
+                    ladder.scalar_errors.get("trap_energy" + suffix),
+                    ladder.scalar_errors.get("delta" + suffix),
+                    suffix,
+                )
+            )
             virial.append(vir)
         if count < wanted:
             warnings.append(f"the basis holds only {count} states in the requested sector(s)")
@@ -509,24 +472,22 @@ class OscillatorEDBackend(Backend):
             "interaction": "renormalized" if renormalized else "bare",
             "truncation": kind,
             "cutoffs": cutoffs,
-            "raw_energies": raw.tolist(),
-            "g_used": [run[2] for run in runs],
-            "dimensions": [run[5]["dimension"] for run in runs],
-            "matvecs": [run[5]["matvecs"] for run in runs],
+            **ladder.diagnostics(),
+            "g_used": [rung.diagnostics["g_used"] for rung in ladder.rungs],
+            "dimensions": [rung.diagnostics["dimension"] for rung in ladder.rungs],
+            "matvecs": [rung.diagnostics["matvecs"] for rung in ladder.rungs],
             "n_orbitals": list(chosen[0].sector.n_orbitals),
             "virial_residual": virial[0],
             "virial_residuals": virial,
         }
-        if extrapolation is not None:
-            diagnostics["extrapolation"] = extrapolation
         return Solution(
-            energies=[float(e) for e in energies],
+            energies=[float(e) for e in ladder.energies],
             states=states,
             observables=observables,
             scalars=scalars,
             scalar_errors=scalar_errors,
-            error_estimate=None if errors is None else float(max(errors)),
-            energy_errors=errors,
+            error_estimate=ladder.error_estimate,
+            energy_errors=ladder.energy_errors,
             diagnostics=diagnostics,
             warnings=warnings,
         )
