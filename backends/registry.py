@@ -24,6 +24,7 @@ BUILTIN = {
     "lattice-ed": "trapbench.backends.lattice_ed:LatticeEDBackend",
     "lattice-dmrg": "trapbench.backends.lattice_dmrg:LatticeDMRGBackend",
     "strong-coupling": "trapbench.backends.strong_coupling:StrongCouplingBackend",
+    "three-body": "trapbench.backends.three_body:ThreeBodyBackend",
 }
 
 

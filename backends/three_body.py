@@ -1,0 +1,249 @@
+"""Backend ``three-body``: precision solver for 2+1 (and 1+2) fermions in a common harmonic trap.
+
+Method. With one trap frequency omega the centre of mass separates exactly (E = omega (n_cm + 1/2)
++ E_rel). The relative motion of two identical fermions and a third particle, in mass-scaled Jacobi
+coordinates, is a 2D isotropic oscillator whose contact interactions sit on the two coincidence
+lines of the odd particle with the pair; the pair's antisymmetry and the parity reduce it to a quarter
+plane with one contact ray (``jacobi_plane``, where the geometry is derived). That problem is solved
+by Galerkin spectral elements in polar coordinates (element boundary on the ray, so the contact
+condition enters exactly through the weak form and convergence in the polynomial order p is
+exponential; hp-FEM as in C. Schwab, "p- and hp-Finite Element Methods", Oxford 1998). Units:
+hbar = omega = 1 inside; a common omega rescales E(g, omega) = omega E(g / sqrt(omega), 1).
+
+The mesh adapts to g: radial elements graded geometrically toward rho = 0 below rho ~ 1/|lambda|
+(lambda = g sqrt(mu), mu the pair-odd reduced mass), the scale on which the contact changes the
+angular shape, up to R where the highest wanted level's Gaussian tail is below 1e-18; for g < 0 the
+angular mesh is graded around the ray on the bound pair's width 1/(3 |lambda|) (at rho ~ 3).
+
+Error bars. The mesh is fixed and p runs over a ladder (order - (ladder - 1) step, ..., order); the
+spaces are nested, so each level decreases monotonically to its limit (min-max principle). With
+differences d_prev, d_last of the last three rungs, convergence at a ratio r = d_last/d_prev <= 1/2
+leaves at most d_last r/(1 - r) <= d_last below the finest value: the bar is d_last; slower
+convergence gets 2 d_last / (1 - r) (r < 1) or 10 max(d) with a warning. A floor of 1e-12 max(1, |E|)
+covers rounding (measured scatter ~1e-13). Scalars are Hellmann-Feynman derivatives of the same Ritz
+values (dE/dg = <sum delta>, dE/d(omega^2) ~ <rho^2>), with bars by the same rule.
+
+Scalars (result.SCALAR_NAMES; state k > 0 with suffix @k): ``delta`` = <sum_ij delta(x_i - x_j)> =
+dE/dg, ``contact`` = (2 mu)^2 g^2 <sum delta>, ``trap_energy`` = <sum V_trap> = omega ((n_cm + 1/2)/2
++ <rho^2>/2) and ``kinetic_energy`` = E - trap_energy - g delta. The virial theorem
+E = 2 <V_trap> + (g/2) <sum delta> holds for the exact states; its residual is in diagnostics.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..problems.spec import Problem
+from .base import Backend, Capabilities, Parameter, SolverError, Support
+from .jacobi_plane import QuarterPlane, angular_nodes, jacobi_angle, radial_nodes
+from .result import Solution
+
+ROUNDING_FLOOR = 1e-12  # relative to max(1, |value|): scatter of converged Ritz values, measured ~1e-13
+TAIL_EXPONENT = 41.0  # R solves (2E + 2) ln R - R^2 = -41: the level's Gaussian tail below 1e-18 at R
+RELATIVE_PARITIES = (-1, +1)
+
+
+@dataclass
+class RelativeLevel:
+    energy: float  # E_rel in units of omega
+    error: float
+    parity: int  # relative parity (x -> -x)
+    ray_density: float  # int psi^2 d rho on the ray (quarter-plane normalization)
+    ray_density_error: float
+    rho_squared: float
+    rho_squared_error: float
+    converged: bool
+
+
+def ladder_error(values: np.ndarray) -> tuple[float, bool]:
+    """Error bar of the last entry of a p-ladder (coarse -> fine) and whether convergence was geometric."""
+    values = np.asarray(values, dtype=float)
+    floor = ROUNDING_FLOOR * max(1.0, abs(values[-1]))
+    if values.size < 2:
+        return math.inf, False
+    last = abs(values[-1] - values[-2])
+    if values.size < 3:
+        return max(last, floor), False
+    previous = abs(values[-2] - values[-3])
+    if last <= floor or last <= 0.5 * previous:
+        return max(last, floor), True
+    ratio = last / previous
+    if ratio < 1:
+        return max(2 * last / (1 - ratio), floor), False
+    return max(10 * max(last, previous), floor), False
+
+
+def outer_radius(energy: float) -> float:
+    """R with (2E + 2) ln R - R^2 <= -TAIL_EXPONENT: the level's Gaussian tail is negligible beyond it."""
+    radius = 6.0
+    while (2 * max(energy, 0.0) + 2) * math.log(radius) - radius**2 > -TAIL_EXPONENT:
+        radius += 0.25
+    return radius
+
+
+class ThreeBodyBackend(Backend):
+    name = "three-body"
+    version = "1"
+    summary = (
+        "2+1 / 1+2 in a common harmonic trap: Galerkin spectral elements in the mass-scaled Jacobi plane"
+        " (contact rays on element boundaries), p-ladder error bars; any masses, any g"
+    )
+    capabilities = Capabilities(
+        particle_counts=((2, 1), (1, 2)),
+        unequal_frequencies=False,  # the centre of mass separates only with one trap frequency
+        observables=("contact", "trap_energy"),
+        error_bars=True,
+    )
+    parameters = (
+        Parameter("order", int, 14, "polynomial degree of the finest rung, in rho and in phi", minimum=4),
+        Parameter("ladder", int, 3, "rungs of the p-ladder (>= 3 for a geometric-convergence check)", minimum=2),
+        Parameter("step", int, 2, "degree increment between rungs", minimum=1),
+        Parameter(
+            "radius",
+            float,
+            None,
+            "outer radius R of the relative plane (oscillator lengths); default from the highest wanted level",
+            minimum=3.0,
+            allow_none=True,
+        ),
+    )
+
+    def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:
+        if sorted((problem.up.count, problem.down.count)) != [1, 2]:
+            return Support.no(
+                f"solves two identical fermions plus one other particle, 2+1 or 1+2 (got {problem.up.count}+{problem.down.count})"
+            )
+        if not problem.trap.is_harmonic:
+            return Support.no(f"needs a harmonic trap (got '{problem.trap.shape}')")
+        if not problem.equal_frequencies:
+            return Support.no(
+                "needs one trap frequency for both species: only then does the centre of mass separate"
+                f" (got omega_up = {problem.up.omega:g}, omega_down = {problem.down.omega:g})"
+            )
+        if params is not None:
+            lowest = params["order"] - (params["ladder"] - 1) * params["step"]
+            if lowest < 2:
+                return Support.no(
+                    f"the p-ladder reaches degree {lowest}; raise param.order or lower param.ladder / param.step"
+                )
+        return Support.yes()
+
+    # ------------------------------------------------------------------ relative problem
+    def relative_levels(self, problem: Problem, params: dict[str, Any], count: int) -> tuple[list[RelativeLevel], dict]:
+        """The ``count`` lowest relative levels of each relative parity, in units of omega, with error bars."""
+        pair, odd = (problem.up, problem.down) if problem.up.count == 2 else (problem.down, problem.up)
+        omega = pair.omega
+        mu = pair.mass * odd.mass / (pair.mass + odd.mass)
+        alpha = jacobi_angle(pair.mass, odd.mass)
+        lam = problem.coupling / math.sqrt(omega) * math.sqrt(mu)
+        core = 1.0 / max(1.0, abs(lam))
+        radius = params["radius"] or outer_radius(6.0 + 2.0 * count)
+        radial = radial_nodes(radius, core)
+        angular = angular_nodes(alpha, 1.0 / (3.0 * abs(lam)) if lam < 0 else None)
+        # lowest levels: >= 2 (relative parity -1) and >= 3 (+1) at g >= 0; for g < 0 each of the two
+        # contact lines binds at most -mu g^2 with half the kinetic energy, so E_rel >= -2 lambda^2
+        sigma = 1.5 if lam >= 0 else -2.0 * lam * lam - 1.0
+        orders = [params["order"] - k * params["step"] for k in range(params["ladder"] - 1, -1, -1)]
+        levels: list[RelativeLevel] = []
+        dimensions = []
+        for parity in RELATIVE_PARITIES:
+            runs = []
+            for order in orders:
+                plane = QuarterPlane(alpha, lam, parity, order, radial, angular)
+                runs.append(plane.lowest(count, sigma))
+            dimensions.append(runs[-1].dimension)
+            energies = np.array([run.energies for run in runs])
+            if np.any(np.diff(energies, axis=0) > 1e-9 * np.maximum(1.0, np.abs(energies[1:]))):
+                raise SolverError(
+                    f"{self.name}: a level rose with the polynomial order (min-max principle violated);"
+                    f" energies along the ladder {energies.tolist()}"
+                )
+            for k in range(energies.shape[1]):
+                error, converged = ladder_error(energies[:, k])
+                ray = np.array([run.ray_density[k] for run in runs])
+                rho2 = np.array([run.rho_squared[k] for run in runs])
+                levels.append(
+                    RelativeLevel(
+                        energy=float(energies[-1, k]),
+                        error=error,
+                        parity=parity,
+                        ray_density=float(ray[-1]),
+                        ray_density_error=ladder_error(ray)[0],
+                        rho_squared=float(rho2[-1]),
+                        rho_squared_error=ladder_error(rho2)[0],
+                        converged=converged,
+                    )
+                )
+        info = {
+            "alpha": alpha,
+            "lambda": lam,
+            "radius": radius,
+            "orders": orders,
+            "radial_elements": len(radial) - 1,
+            "angular_elements": len(angular) - 1,
+            "dimension_per_sector": dimensions,
+        }
+        return levels, info
+
+    # ------------------------------------------------------------------ full spectrum
+    def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
+        wanted = problem.targets.states
+        omega, g = problem.up.omega, problem.coupling
+        pair, odd = (problem.up, problem.down) if problem.up.count == 2 else (problem.down, problem.up)
+        mu = pair.mass * odd.mass / (pair.mass + odd.mass)
+        relative, info = self.relative_levels(problem, params, wanted)
+        # every total level: relative level x centre-of-mass excitation n; parity = p_rel (-1)^n.
+        # ``wanted`` relative levels per relative parity contain the lowest ``wanted`` total levels of
+        # either total parity (a relative level beyond them comes after its lower siblings at the same n).
+        spectrum = []
+        for level in relative:
+            for n in range(wanted + 1):
+                spectrum.append((omega * (level.energy + n + 0.5), level, n, level.parity * (-1) ** n))
+        spectrum.sort(key=lambda item: item[0])
+        sector = {"any": None, "even": 1, "odd": -1}[problem.targets.parity]
+        chosen = [item for item in spectrum if sector is None or item[3] == sector][:wanted]
+        energies, errors, states, warnings = [], [], [], []
+        scalars: dict[str, float] = {}
+        scalar_errors: dict[str, float] = {}
+        virial = []
+        for k, (energy, level, n, parity) in enumerate(chosen):
+            error = omega * level.error
+            degeneracy = sum(
+                1
+                for other in spectrum
+                if abs(other[0] - energy) <= max(2 * (error + omega * other[1].error), 1e-9 * max(1.0, abs(energy)))
+            )
+            energies.append(energy)
+            errors.append(error)
+            states.append({"parity": parity, "com": n, "degeneracy": degeneracy, "relative_parity": level.parity})
+            if not level.converged:
+                warnings.append(f"state {k}: the p-ladder did not converge geometrically; its error bar is widened")
+            suffix = "" if k == 0 else f"@{k}"
+            delta = math.sqrt(omega) * math.sqrt(mu) * level.ray_density
+            delta_error = math.sqrt(omega) * math.sqrt(mu) * level.ray_density_error
+            trap = omega * ((n + 0.5) / 2 + level.rho_squared / 2)
+            trap_error = omega * level.rho_squared_error / 2
+            scalars[f"delta{suffix}"] = delta
+            scalars[f"contact{suffix}"] = (2 * mu) ** 2 * g * g * delta
+            scalars[f"trap_energy{suffix}"] = trap
+            scalars[f"kinetic_energy{suffix}"] = energy - trap - g * delta
+            scalar_errors[f"delta{suffix}"] = delta_error
+            scalar_errors[f"contact{suffix}"] = (2 * mu) ** 2 * g * g * delta_error
+            scalar_errors[f"trap_energy{suffix}"] = trap_error
+            scalar_errors[f"kinetic_energy{suffix}"] = error + trap_error + abs(g) * delta_error
+            virial.append(energy - 2 * trap - 0.5 * g * delta)
+        info["virial_residuals"] = virial
+        return Solution(
+            energies=energies,
+            states=states,
+            scalars=scalars,
+            scalar_errors=scalar_errors,
+            error_estimate=max(errors),
+            energy_errors=errors,
+            diagnostics=info,
+            warnings=warnings,
+        )
