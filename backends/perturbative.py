@@ -10,36 +10,26 @@ V = g sum_{i up, j down} delta(x_i - x_j): within each degenerate manifold of E0
 W_IJ = <I| sum delta |J> is diagonalized, E = E0 + g w. For a non-degenerate ground state
 w = sum_{i < N_up} sum_{j < N_down} integral phi_i(x; b_up)^2 phi_j(x; b_down)^2 dx.
 Matrix elements follow from the Slater-Condon rules for the one-body densities rho_s(x), and the
-x-integrals of four oscillator orbitals are done exactly by Gauss-Hermite quadrature (the integrand
-is a polynomial times exp(-x^2 (1/b_up^2 + 1/b_down^2))). The result is exact at g = 0 and
+x-integrals of four oscillator orbitals are done exactly by the Gauss-Hermite contact quadrature of
+``trapbench.problems.exact.gauss_hermite`` (the integrand is a polynomial times
+exp(-x^2 (1/b_up^2 + 1/b_down^2))). The result is exact at g = 0 and
 first-order only otherwise: valid for |g| small against the level spacing.
 """
 
 from __future__ import annotations
 
 import itertools
-import math
 from typing import Any
 
 import numpy as np
 
+from ..problems.exact.gauss_hermite import contact_quadrature
 from ..problems.spec import Problem
 from .base import Backend, Capabilities, SolverError
 from .result import Solution
 
 DEGENERACY_TOLERANCE = 1e-10
 MAX_EXCITATION_STEPS = 40
-
-
-def hermite_polynomial_part(n_max: int, y: np.ndarray) -> np.ndarray:
-    """h_n(y) for n = 0..n_max, where phi_n(y) = h_n(y) exp(-y^2/2) is the normalized oscillator orbital."""
-    values = np.zeros((n_max + 1, len(y)))
-    values[0] = np.pi**-0.25
-    if n_max >= 1:
-        values[1] = math.sqrt(2) * y * values[0]
-    for k in range(1, n_max):
-        values[k + 1] = math.sqrt(2 / (k + 1)) * y * values[k] - math.sqrt(k / (k + 1)) * values[k - 1]
-    return values
 
 
 def configurations(count: int, max_excitation: int) -> list[tuple[tuple[int, ...], int]]:
@@ -153,14 +143,9 @@ class PerturbativeBackend(Backend):
     @staticmethod
     def _interaction_matrix(problem: Problem, pairs: list) -> np.ndarray:
         """W_IJ = <I| sum_{i up, j down} delta(x_i - x_j) |J> within one manifold, exactly."""
-        n_max = max(max(u + d, default=0) for u, d in pairs)
-        b_up, b_down = problem.up.oscillator_length, problem.down.oscillator_length
-        alpha = 1 / b_up**2 + 1 / b_down**2  # phi_a phi_b chi_c chi_d ~ exp(-alpha x^2)
-        nodes, weights = np.polynomial.hermite.hermgauss(2 * n_max + 2)
-        x = nodes / math.sqrt(alpha)
-        weights = weights / math.sqrt(alpha)
-        orbitals_up = hermite_polynomial_part(n_max, x / b_up) / math.sqrt(b_up)
-        orbitals_down = hermite_polynomial_part(n_max, x / b_down) / math.sqrt(b_down)
+        n_orbitals = max(max(u + d, default=0) for u, d in pairs) + 1
+        quad = contact_quadrature(n_orbitals, problem.up.oscillator_length, n_orbitals, problem.down.oscillator_length)
+        orbitals_up, orbitals_down, weights = quad.values_up.T, quad.values_down.T, quad.weights
         size = len(pairs)
         matrix = np.zeros((size, size))
         if problem.up.count == 0 or problem.down.count == 0:

@@ -10,7 +10,8 @@ degenerate at N^2/2 (fermionization); to first order in 1/g they split as
 with K the eigenvalues of H_spin = sum_k J_k (1 - P_{k,k+1}) in the (N_up, N_down) sector. The
 exchange coefficients J_k come from the Slater determinant of N spinless fermions; they are reduced
 exactly to one-dimensional integrals and integrated by Gauss-Legendre quadrature with node doubling
-until two successive results agree to ``tolerance`` (see ``backends.spin_chain``).
+until two successive results agree to ``tolerance`` (``trapbench.problems.exact.exchange``); the chain
+is diagonalized by reversal sector in ``backends.spin_chain``.
 
 Reported per state (ascending energy = descending K): parity (-1)^(N(N-1)/2) times the chain-reversal
 eigenvalue; ``com`` = 0 (the manifold is built on the fermionized state, whose centre of mass is in
@@ -18,9 +19,12 @@ its ground state); scalars ``delta`` = dE/dg = omega sqrt(m/omega) K/g~^2 and ``
 (2 mu)^2 g^2 dE/dg = m^2 g^2 dE/dg = (m omega)^(3/2) K, both of the O(1/g) model; observables ``density_up``/``density_down`` at g = inf (Deuretzbacher et al. 2014):
 n_s(x) = sum_i rho_i(x) Prob(site i has spin s), rho_i the density of the i-th particle from the left.
 
-Error estimate: the neglected term is O(1/g~^2); its coefficient is known for 1+1 only ((1 - ln 2) K^2,
-from Busch's equation), so each level carries the estimate omega K^2/g~^2 (an estimate, not a bound);
-the K = 0 level (the spin-symmetric, fully antisymmetric state) is exact at every g.
+Error estimate (rule of this backend, calibrated on no other method): the neglected term is
+c2/g~^2; c2 is known for 1+1 only, c2 = (1 - ln 2) K^2 = 0.31 K^2 (expanding Busch's equation,
+T. Busch et al., Found. Phys. 28, 549 (1998), about lambda = inf). Each level carries
+NEXT_ORDER_FACTOR K^2/g~^2 with NEXT_ORDER_FACTOR = 1, about three times the 1+1 coefficient: for
+N > 2 this is an estimate, not a bound. The K = 0 level (the spin-symmetric, fully antisymmetric
+state) is exact at every g. Below g~ = MIN_COUPLING_OVER_K K_max the expansion is flagged unreliable.
 The repulsive branch only: g <= 0 is unsupported.
 """
 
@@ -31,11 +35,15 @@ from typing import Any
 
 import numpy as np
 
-from ..problems.references import STRONG_COUPLING_C2, STRONG_COUPLING_MIN_RATIO
 from ..problems.spec import Problem
 from .base import Backend, Capabilities, Parameter, Support
 from .result import Observable, Solution
 from .spin_chain import MAX_CHAIN_STATES, chain_is_tractable, spin_chain_spectrum, spin_resolved_densities
+
+# |c2| <= NEXT_ORDER_FACTOR K^2 is assumed for the neglected O(1/g^2) term (see the module docstring)
+NEXT_ORDER_FACTOR = 1.0
+# below g~ = MIN_COUPLING_OVER_K * K_max the levels of the manifold are not well separated by 1/g: warn
+MIN_COUPLING_OVER_K = 2.0
 
 
 def _suffix(state: int) -> str:
@@ -100,7 +108,7 @@ class StrongCouplingBackend(Backend):
         g_scaled = problem.coupling * math.sqrt(mass / omega)
         k_values = [float(spectrum.k_values[i]) for i in chosen]
         energies = [omega * (n * n / 2 - k / g_scaled) for k in k_values]
-        errors = [omega * STRONG_COUPLING_C2 * k * k / g_scaled**2 for k in k_values]
+        errors = [omega * NEXT_ORDER_FACTOR * k * k / g_scaled**2 for k in k_values]
         states = [
             {
                 "parity": int(spectrum.spatial_parity[i]),
@@ -131,7 +139,7 @@ class StrongCouplingBackend(Backend):
                         state=position,
                     )
         warnings = []
-        if g_scaled < STRONG_COUPLING_MIN_RATIO * max(spectrum.k_values):
+        if g_scaled < MIN_COUPLING_OVER_K * max(spectrum.k_values):
             warnings.append(
                 f"g = {g_scaled:.4g} is not large against K_max = {max(spectrum.k_values):.4g}:"
                 " the first-order expansion in 1/g is unreliable here"

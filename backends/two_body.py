@@ -15,11 +15,8 @@ with wave functions psi(y) ~ D_nu(sqrt(2) |y|), nu = e - 1/2 (parabolic-cylinder
 Total energies are E = omega (n + 1/2 + e); parity is (-1)^n for even relative states and -(-1)^n
 for odd ones. Units: hbar = omega_ref = 1, masses in m0.
 
-Root finding: for lambda > 0 (and for the excited even levels at lambda < 0) equation (*) is
-rewritten as the entire function h(e) = 1/Gamma(1/4 - e/2) + (lambda/2)/Gamma(3/4 - e/2), whose
-roots interlace with the non-interacting levels and are bracketed exactly; the attractive ground
-state (e < 1/2) is solved as log Gamma(3/4 - e/2) - log Gamma(1/4 - e/2) = log(-lambda/2), which
-stays finite for deeply bound pairs. Brent's method to machine precision.
+Root finding: the double-precision Brent route of ``trapbench.problems.exact.busch``
+(``even_relative_level``), whose error XTOL + RTOL |e| is reported as each level's error bar.
 """
 
 from __future__ import annotations
@@ -28,50 +25,13 @@ import math
 from typing import Any
 
 import numpy as np
-from scipy import interpolate, optimize, special
+from scipy import interpolate, special
 
+from ..problems.exact.busch import RTOL, XTOL, relative_levels
+from ..problems.exact.oscillator import hermite_function
 from ..problems.spec import Problem
 from .base import Backend, Capabilities, Parameter
 from .result import Observable, Solution
-
-# Brent tolerances: |e - e_exact| <= XTOL + RTOL |e| (scipy.optimize.brentq's guarantee).
-XTOL = 1e-14
-RTOL = 4 * np.finfo(float).eps
-SMALL_LAMBDA = 1e-13  # below this the attractive root is 1/2 + lambda/sqrt(pi) to double precision
-
-
-def even_relative_level(lam: float, n: int) -> float:
-    """The n-th even relative level e_n(lambda) of equation (*), in units of omega."""
-    if lam == 0.0:
-        return 0.5 + 2 * n
-
-    def h(e: float) -> float:
-        return special.rgamma(0.25 - e / 2) + 0.5 * lam * special.rgamma(0.75 - e / 2)
-
-    if lam > 0:
-        return optimize.brentq(h, 0.5 + 2 * n, 1.5 + 2 * n, xtol=XTOL, rtol=RTOL)
-    if n >= 1:
-        return optimize.brentq(h, 2 * n - 0.5, 2 * n + 0.5, xtol=XTOL, rtol=RTOL)
-    if -lam < SMALL_LAMBDA:
-        return 0.5 + lam / math.sqrt(math.pi)
-    # attractive ground state, e < 1/2: Gamma(a)/Gamma(b) grows like sqrt(b) as e -> -inf and
-    # behaves like sqrt(pi) b as b -> 0+, which brackets the root.
-    target = math.log(-lam / 2)
-
-    def f(e: float) -> float:
-        return special.gammaln(0.75 - e / 2) - special.gammaln(0.25 - e / 2) - target
-
-    low = -0.5 * lam * lam - 2.0
-    high = 0.5 - (-lam) / (10 * math.sqrt(math.pi))
-    return optimize.brentq(f, low, high, xtol=XTOL, rtol=RTOL)
-
-
-def relative_levels(lam: float, count: int) -> list[tuple[float, int]]:
-    """The lowest ``count`` even and ``count`` odd relative levels as (e, relative parity) pairs."""
-    even = [(even_relative_level(lam, n), +1) for n in range(count)]
-    odd = [(2 * j + 1.5, -1) for j in range(count)]
-    return sorted(even + odd)
-
 
 def relative_wavefunction(e: float, parity: int, y: np.ndarray) -> np.ndarray:
     """psi(y) for the relative level e (normalized numerically by the caller).
@@ -83,16 +43,6 @@ def relative_wavefunction(e: float, parity: int, y: np.ndarray) -> np.ndarray:
         return values
     n = int(round(e - 0.5))
     return hermite_function(n, y)
-
-
-def hermite_function(n: int, y: np.ndarray) -> np.ndarray:
-    """Normalized oscillator eigenfunction phi_n(y) (unit width), by the stable three-term recurrence."""
-    y = np.asarray(y, dtype=float)
-    previous = np.zeros_like(y)
-    current = np.pi**-0.25 * np.exp(-0.5 * y * y)
-    for k in range(n):
-        previous, current = current, math.sqrt(2 / (k + 1)) * y * current - math.sqrt(k / (k + 1)) * previous
-    return current
 
 
 class TwoBodyBackend(Backend):

@@ -27,7 +27,7 @@ def one_blas_thread():
 
 @pytest.mark.parametrize("lam", [3.0, -3.0])
 def test_two_body_relative_level(benchmark, lam):
-    two_body = pytest.importorskip("trapbench.backends.two_body")
+    two_body = pytest.importorskip("trapbench.problems.exact.busch")
     e = benchmark(two_body.even_relative_level, lam, 0)
     assert (e > 0.5) == (lam > 0)
 
