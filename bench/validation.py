@@ -44,15 +44,14 @@ at the absolute and relative tolerances alone.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
 
-from ..backends.base import Unsupported
+from ..backends.base import Unsupported, support_of
 from ..backends.result import Result
-from ..problems.catalogue import entries as catalogue_entries
 from ..problems.references import noninteracting_levels, references_for
 from ..problems.spec import Problem
 
@@ -103,7 +102,7 @@ class Runner:
 
     def solve(self, problem: Problem) -> Result:
         if problem.key not in self._cache:
-            support = self.backend.supports(problem)
+            support = support_of(self.backend, problem, self.params)
             if not support:
                 raise Skip(f"{self.backend.name} does not support {problem.describe()}: {support.reason}")
             try:
@@ -468,27 +467,6 @@ def run_check(name: str, runner: Runner, problem: Problem, tolerance: Tolerance)
         return Verdict(name, problem.describe(), "skip", str(exc))
     except Exception as exc:  # a solver failure is a finding of the validation, reported as such
         return Verdict(name, problem.describe(), "error", f"{exc.__class__.__name__}: {exc}")
-
-
-def validate(
-    backend: Any,
-    problems: Iterable[Problem] | None = None,
-    params: dict[str, Any] | None = None,
-    tolerance: Tolerance = Tolerance(),
-    checks: Sequence[str] | None = None,
-    catalogue_max_particles: int = 0,
-) -> list[Verdict]:
-    """Run the checks on each problem, then the references of the catalogue entries up to that size."""
-    if hasattr(backend, "resolve_params"):
-        backend.resolve_params(params or {})  # unknown or malformed parameters: SpecError before any work
-    runner = Runner(backend, params)
-    names = list(checks) if checks else list(CHECKS)
-    verdicts = [run_check(name, runner, problem, tolerance) for problem in (problems or default_problems()) for name in names]
-    for entry in catalogue_entries():
-        if entry.problem.n_particles <= catalogue_max_particles:
-            verdict = run_check("references", runner, entry.problem, tolerance)
-            verdicts.append(replace(verdict, problem=entry.name))
-    return verdicts
 
 
 def verdict_table(verdicts: Sequence[Verdict]) -> str:

@@ -16,7 +16,8 @@ from trapbench.backends.registry import get
 from trapbench.backends.result import Solution
 from trapbench.backends.two_body import TwoBodyBackend
 from trapbench.bench.cli import main
-from trapbench.bench.validation import Tolerance, validate
+from trapbench.bench.check_suite import validate
+from trapbench.bench.validation import Tolerance
 from trapbench.problems.errors import SpecError
 from trapbench.problems.spec import Problem
 
@@ -106,7 +107,7 @@ class PlugIn:
         self._inner = TwoBodyBackend()
 
     def supports(self, problem):
-        return self._inner.supports(problem)
+        return self._inner.admits(problem)
 
     def solve(self, problem, **params):
         return self._inner.solve(problem, **params)
@@ -126,12 +127,16 @@ def test_exact_two_body_backend_passes_every_check():
     ran = {v.check for v in verdicts if v.status == "pass"}
     assert ran == {"non-interacting", "references", "weak-coupling-slope", "hellmann-feynman", "virial",
                    "com-tower", "parity-labels", "antisymmetric-state", "monotonic-bounds", "species-swap",
-                   "normalization", "contact-convention"}
+                   "normalization", "contact-convention",
+                   "declaration", "refusal", "state-count", "parity-sector", "observables", "error-bars"}
 
 
 def test_plug_in_without_base_class_is_checked_alike():
     verdicts = validate(PlugIn(), TWO_BODY_PROBLEMS[:1])
-    assert not failed_checks(verdicts) and "pass" in statuses(verdicts, "virial")
+    # the physics checks run through the plain protocol; the contract asks for a capabilities declaration
+    assert failed_checks(verdicts) == {"declaration"}
+    assert "capabilities" in next(v.reason for v in verdicts if v.check == "declaration")
+    assert "pass" in statuses(verdicts, "virial")
 
 
 def test_wrong_interaction_sign_is_flagged():

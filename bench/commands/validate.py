@@ -1,7 +1,8 @@
-"""``trapbench validate --backend NAME [PROBLEM]``: solver-independent physics checks and the catalogue's references.
+"""``trapbench validate --backend NAME [PROBLEM]``: the common check suite (contract and physics) of one backend.
 
-Without a problem (spec file or --up/--down/--g) the checks run on small built-in problems
-(``bench.validation.default_problems``); with one, on each of its values of g.
+Without a problem (spec file or --up/--down/--g) the checks run on the small built-in problems the backend
+admits (``bench.check_suite``); with one, on each of its values of g. ``--tier quick`` (default) keeps the
+physics checks to the smallest problem and the smallest with three or more particles; ``--tier thorough`` runs them all and the catalogue's references.
 """
 
 from __future__ import annotations
@@ -20,6 +21,7 @@ ORDER = 40
 
 
 def register(parser: argparse.ArgumentParser) -> None:
+    from ..check_suite import CONTRACT_CHECKS, TIERS
     from ..validation import CHECKS, Tolerance
 
     default = Tolerance()
@@ -27,11 +29,16 @@ def register(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--backend", "-b", required=True, metavar="NAME", help="the backend to validate")
     parser.add_argument("--param", "-p", action="append", metavar="KEY=VALUE",
                         help="numerical parameter of the backend (repeatable)")
-    parser.add_argument("--check", action="append", metavar="NAME", choices=list(CHECKS),
-                        help="run only this check (repeatable); default: all of " + ", ".join(CHECKS))
-    parser.add_argument("--catalogue", type=int, default=3, metavar="N",
-                        help="also compare with the references of every catalogue entry with at most N particles"
-                             " (default 3; 0 turns it off)")
+    names = ["declaration", *CONTRACT_CHECKS, *CHECKS]
+    parser.add_argument("--check", action="append", metavar="NAME", choices=names,
+                        help="run only this check (repeatable); default: all of " + ", ".join(names))
+    parser.add_argument("--tier", choices=TIERS, default="quick",
+                        help="quick (default): the contract and the physics checks on the smallest problem and the smallest"
+                             " with three or more particles;"
+                             " thorough: every physics check on every problem, and the catalogue's references")
+    parser.add_argument("--catalogue", type=int, default=None, metavar="N",
+                        help="compare with the references of every catalogue entry with at most N particles"
+                             " (default: 3 with --tier thorough, 0 with quick)")
     parser.add_argument("--absolute", type=float, default=default.absolute, metavar="TOL",
                         help=f"absolute tolerance in hbar*omega (default {default.absolute:g})")
     parser.add_argument("--relative", type=float, default=default.relative, metavar="TOL",
@@ -42,7 +49,8 @@ def register(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from ..validation import Tolerance, validate, verdict_table
+    from ..check_suite import validate
+    from ..validation import Tolerance, verdict_table
 
     for field in ("absolute", "relative", "error_factor"):
         if getattr(args, field) < 0:
@@ -51,7 +59,8 @@ def run(args: argparse.Namespace) -> int:
     tolerance = Tolerance(args.absolute, args.relative, args.error_factor)
     problem = problem_from_args(args)  # None: the built-in small problems
     verdicts = validate(backend, problems=None if problem is None else problem.points(), params=parse_params(args.param),
-                        tolerance=tolerance, checks=args.check, catalogue_max_particles=args.catalogue)
+                        tolerance=tolerance, checks=args.check, catalogue_max_particles=args.catalogue, tier=args.tier,
+                        progress=not args.json)
     if args.json:
         print(json.dumps([asdict(v) for v in verdicts], indent=1))
     else:

@@ -1,0 +1,363 @@
+"""The common check suite: every contract and physics check that applies to a backend, chosen from what it declares.
+
+``backend_checks(backend, params, tier)`` yields ``BackendCheck`` items -- one check on one problem each --
+in the manner of a library's estimator checks: which checks run, and on which problems, follows from the
+backend's declared ``capabilities`` (``backends.base.Capabilities``) and from what it admits, never from its
+name. ``trapbench validate``, the project's own tests and a plug-in author's tests all run this one list:
+
+    from trapbench.bench.check_suite import check_cases, assert_check
+
+    @pytest.mark.parametrize("check", check_cases("my-method", params={"cutoff": 8}))
+    def test_my_method(check):
+        assert_check(check)
+
+Contract checks (``CONTRACT_CHECKS``; the protocol of ``backends/base.py``, common practice):
+
+- ``declaration``: name, version, summary, documented parameters and a ``Capabilities`` declaration;
+- ``refusal``: a request outside the declared capabilities (an observable it does not offer, particle numbers,
+  coupling sign, parity sectors, excited states) is refused with ``Unsupported`` naming what is missing,
+  before any work;
+- ``state-count``: as many ascending energies as asked for (1 and 3);
+- ``parity-sector``: every state of an even (odd) sector request is labelled +1 (-1);
+- ``observables``: every declared observable is returned under the shared names of ``backends/result.py``,
+  finite, on its grids, and every scalar name is registered;
+- ``error-bars``: a backend that declares error bars reports one finite, non-negative bar per energy.
+
+Physics checks: those of ``bench.validation.CHECKS`` (exact properties of the Hamiltonian, each stated there
+with its origin), run on the small problems the backend admits. Tiers: ``quick`` (the contract, and the
+physics checks on the smallest admitted problem and the smallest one with three or more particles; the default of ``trapbench validate``) and
+``thorough`` (every physics check on every admitted default problem, and the catalogue's references).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass, replace
+from typing import Any
+
+import numpy as np
+
+from ..backends import registry
+from ..backends.base import Backend, Capabilities, ContractError, Unsupported, support_of
+from ..backends.result import OBSERVABLE_NAMES, SCALAR_NAMES
+from ..problems.catalogue import entries as catalogue_entries
+from ..problems.spec import OBSERVABLES, Problem
+from .validation import CHECKS, Runner, Skip, Tolerance, Verdict, default_problems, run_check
+
+TIERS = ("quick", "thorough")
+
+
+@dataclass(frozen=True)
+class BackendCheck:
+    """One check (contract or physics) of one backend on one problem; ``run()`` gives its Verdict."""
+
+    name: str
+    kind: str  # "contract" or "physics"
+    problem: Problem | None
+    run: Callable[[], Verdict]
+
+    @property
+    def id(self) -> str:
+        where = "" if self.problem is None else f"[{self.problem.describe()}]"
+        return f"{self.kind}:{self.name}{where}"
+
+
+# ----------------------------------------------------------------------------- contract checks
+
+
+def _capabilities(backend: Any) -> Capabilities:
+    """The declaration; a check that needs one skips a backend without it (``declaration`` fails instead)."""
+    declared = getattr(backend, "capabilities", None)
+    if not isinstance(declared, Capabilities):
+        raise Skip(f"{backend.name} declares no capabilities to check against")
+    return declared
+
+
+def _verdict(name: str, problem: Problem | None, status: str, reason: str) -> Verdict:
+    return Verdict(name, "-" if problem is None else problem.describe(), status, reason)
+
+
+def _solve(backend: Any, problem: Problem, params: dict[str, Any]):
+    """Solve through the protocol; a refusal is a skip, a broken contract a failure (raised as ContractError)."""
+    support = support_of(backend, problem, params)
+    if not support:
+        raise Skip(f"{backend.name} does not admit {problem.describe()}: {support.reason}")
+    return backend.solve(problem, **params)
+
+
+def check_declaration(backend: Any, params: dict[str, Any]) -> Verdict:
+    name = "declaration"
+    missing = [field for field in ("name", "version", "summary") if not getattr(backend, field, "")]
+    if not isinstance(getattr(backend, "capabilities", None), Capabilities):
+        missing.append("capabilities (a backends.base.Capabilities)")
+    undocumented = [p.name for p in getattr(backend, "parameters", ()) if not getattr(p, "doc", "").strip()]
+    if missing or undocumented:
+        parts = ([f"missing {', '.join(missing)}"] if missing else []) + (
+            [f"parameters without documentation: {', '.join(undocumented)}"] if undocumented else [])
+        return _verdict(name, None, "fail", "; ".join(parts))
+    return _verdict(name, None, "pass", "name, version, summary, capabilities and documented parameters declared")
+
+
+def _outside_requests(problem: Problem, capabilities: Capabilities) -> list[tuple[str, Problem, str]]:
+    """(what, problem, word the refusal must contain) for requests the declaration rules out."""
+    requests = []
+    for observable in OBSERVABLES:
+        if observable not in capabilities.observables:
+            requests.append((f"observable {observable}", problem.with_targets(states=1, observables=[observable]), observable))
+    if capabilities.couplings == "repulsive":
+        requests.append(("g < 0", problem.at(-abs(problem.coupling) or -1.0), "repulsive"))
+    if not capabilities.parity_sectors:
+        requests.append(("a parity sector", problem.with_targets(states=1, parity="even"), "parity"))
+    if not capabilities.excited_states:
+        requests.append(("excited states", problem.with_targets(states=3), "ground state"))
+    if capabilities.particle_counts is not None:
+        counts = {(problem.up.count + 1, problem.down.count), (problem.up.count, problem.down.count + 1)}
+        for up, down in sorted(counts - set(capabilities.particle_counts)):
+            requests.append((f"{up}+{down} particles", replace(problem, up=replace(problem.up, count=up),
+                                                                down=replace(problem.down, count=down)), "particles"))
+    return requests
+
+
+def check_refusal(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+    name = "refusal"
+    requests = _outside_requests(problem, _capabilities(backend))
+    if not requests:
+        raise Skip("the declaration rules nothing out on this problem")
+    for what, request, word in requests:
+        try:
+            backend.solve(request, **params)
+        except Unsupported as exc:
+            if word not in str(exc):
+                return _verdict(name, problem, "fail", f"{what} was refused, but the reason does not say '{word}': {exc}")
+            continue
+        except Exception as exc:  # anything but a clear refusal is a broken contract
+            return _verdict(name, problem, "fail", f"{what}: expected Unsupported, got {exc.__class__.__name__}: {exc}")
+        return _verdict(name, problem, "fail", f"{what} lies outside the declared capabilities but was computed")
+    return _verdict(name, problem, "pass", f"refused {len(requests)} requests outside its capabilities with reasons")
+
+
+def check_state_count(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+    name = "state-count"
+    declared = getattr(backend, "capabilities", None)
+    counts = (1,) if isinstance(declared, Capabilities) and not declared.excited_states else (1, 3)
+    for states in counts:
+        try:
+            result = _solve(backend, problem.with_targets(states=states, observables=[]), params)
+        except ContractError as exc:
+            return _verdict(name, problem, "fail", str(exc))
+        energies = list(result.energies)
+        if len(energies) != states:
+            return _verdict(name, problem, "fail", f"asked for {states} states, got {len(energies)} energies")
+        if any(b < a for a, b in zip(energies, energies[1:])) or not all(map(math.isfinite, energies)):
+            return _verdict(name, problem, "fail", f"energies not finite and ascending: {energies}")
+    return _verdict(name, problem, "pass", f"returned exactly {', '.join(map(str, counts))} ascending energies")
+
+
+def check_parity_sector(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+    name = "parity-sector"
+    if not _capabilities(backend).parity_sectors:
+        raise Skip("the backend declares no parity sectors")
+    states = 2 if _capabilities(backend).excited_states else 1
+    for sector, sign in (("even", 1), ("odd", -1)):
+        try:
+            result = _solve(backend, problem.with_targets(states=states, parity=sector, observables=[]), params)
+        except ContractError as exc:
+            return _verdict(name, problem, "fail", str(exc))
+        labels = [s.get("parity") if isinstance(s, dict) else None for s in result.states]
+        if len(labels) != len(result.energies) or any(label != sign for label in labels):
+            return _verdict(name, problem, "fail", f"the {sector} sector returned states labelled {labels}")
+    return _verdict(name, problem, "pass", "even and odd sector requests return states of that parity only")
+
+
+def check_observables(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+    name = "observables"
+    offered = list(_capabilities(backend).observables)
+    if not offered:
+        raise Skip("the backend declares no observables")
+    try:
+        result = _solve(backend, problem.with_targets(states=1, observables=offered), params)
+    except ContractError as exc:
+        return _verdict(name, problem, "fail", str(exc))
+    unregistered = [n for n in result.observables if n.split("@")[0] not in OBSERVABLE_NAMES]
+    unregistered += [n for n in result.scalars if n.split("@")[0] not in SCALAR_NAMES]
+    if unregistered:
+        return _verdict(name, problem, "fail", f"unregistered names {unregistered}")
+    for key, observable in result.observables.items():
+        values = np.asarray(observable.values)
+        if not np.all(np.isfinite(values)):
+            return _verdict(name, problem, "fail", f"observable {key} has non-finite values")
+        shape = tuple(len(axis) for axis in observable.axes.values())
+        if values.shape != shape:
+            return _verdict(name, problem, "fail", f"observable {key} has shape {values.shape}, its axes {shape}")
+    bad = [k for k, v in result.scalars.items() if not math.isfinite(v)]
+    if bad:
+        return _verdict(name, problem, "fail", f"non-finite scalars {bad}")
+    return _verdict(name, problem, "pass", f"{', '.join(offered)} returned under the shared names")
+
+
+def check_error_bars(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+    name = "error-bars"
+    if not _capabilities(backend).error_bars:
+        raise Skip("the backend declares no error bars")
+    result = _solve(backend, problem.with_targets(observables=[]), params)
+    errors = result.energy_errors
+    if errors is None or len(errors) != len(result.energies):
+        return _verdict(name, problem, "fail", f"declares error bars but returned energy_errors = {errors}")
+    if any(not math.isfinite(e) or e < 0 for e in errors):
+        return _verdict(name, problem, "fail", f"error bars must be finite and >= 0, got {errors}")
+    return _verdict(name, problem, "pass", f"{len(errors)} finite error bars")
+
+
+CONTRACT_CHECKS: dict[str, Callable[..., Verdict]] = {
+    "refusal": check_refusal,
+    "state-count": check_state_count,
+    "parity-sector": check_parity_sector,
+    "observables": check_observables,
+    "error-bars": check_error_bars,
+}
+
+
+# ----------------------------------------------------------------------------- selection
+
+
+def _guarded(name: str, problem: Problem | None, body: Callable[[], Verdict]) -> Callable[[], Verdict]:
+    def run() -> Verdict:
+        try:
+            return body()
+        except Skip as exc:
+            return _verdict(name, problem, "skip", str(exc))
+        except Exception as exc:  # a crash inside a check is a finding about the backend
+            return _verdict(name, problem, "error", f"{exc.__class__.__name__}: {exc}")
+
+    return run
+
+
+def admitted_problems(backend: Any, params: dict[str, Any], problems: Iterable[Problem] | None = None) -> list[Problem]:
+    """The candidate problems (default: ``validation.default_problems`` and, for a repulsive-only backend, the
+    same at strong coupling) that the backend admits with ``params``, smallest first."""
+    candidates = list(problems) if problems is not None else default_problems()
+    declared = getattr(backend, "capabilities", None)
+    if problems is None and isinstance(declared, Capabilities) and declared.couplings == "repulsive":
+        candidates = [p.at(max(30.0, abs(p.coupling))) for p in candidates]
+    found = []
+    for problem in candidates:
+        for point in problem.points():
+            if support_of(backend, point, params):
+                found.append(point)
+    return sorted(found, key=lambda p: (p.n_particles, p.targets.states))
+
+
+def quick_problems(admitted: Sequence[Problem]) -> list[Problem]:
+    """The smallest admitted problem and the smallest with three or more particles (where interactions
+    between more than one pair first show)."""
+    chosen = list(admitted[:1])
+    chosen += [p for p in admitted if p.n_particles >= 3][:1]
+    return chosen
+
+
+def backend_checks(
+    backend: Any,
+    params: dict[str, Any] | None = None,
+    tier: str = "quick",
+    tolerance: Tolerance = Tolerance(),
+    problems: Iterable[Problem] | None = None,
+    only: Sequence[str] | None = None,
+    catalogue_max_particles: int | None = None,
+) -> list[BackendCheck]:
+    """Every check that applies to ``backend`` (an instance or a registered name), in running order.
+
+    ``tier`` "quick" keeps the physics checks to the ``quick_problems`` of the admitted default problems; "thorough" runs
+    them on all, plus the references of the catalogue entries with at most ``catalogue_max_particles``
+    particles (default 3 for "thorough", 0 for "quick"). Problems given explicitly are all checked, whatever
+    the tier. ``only`` restricts the suite to the named checks (contract or physics).
+    """
+    if tier not in TIERS:
+        raise ValueError(f"tier: got {tier!r}; allowed: {', '.join(TIERS)}")
+    backend = registry.get(backend) if isinstance(backend, str) else backend
+    params = dict(params or {})
+    if isinstance(backend, Backend):
+        params = backend.resolve_params(params)  # malformed parameters: SpecError before any work
+    unknown = sorted(set(only or ()) - set(CONTRACT_CHECKS) - set(CHECKS) - {"declaration"})
+    if unknown:
+        raise ValueError(f"unknown check(s) {unknown}; known: declaration, {', '.join([*CONTRACT_CHECKS, *CHECKS])}")
+    wanted = (lambda name: name in only) if only else (lambda name: True)
+    problems = None if problems is None else list(problems)
+    admitted = admitted_problems(backend, params, problems)
+    runner = Runner(backend, params)
+    checks = []
+    if wanted("declaration"):
+        checks.append(BackendCheck("declaration", "contract", None,
+                                   _guarded("declaration", None, lambda: check_declaration(backend, params))))
+    if admitted:
+        smallest = admitted[0]
+        for name, function in CONTRACT_CHECKS.items():
+            if wanted(name):
+                checks.append(BackendCheck(name, "contract", smallest,
+                                           _guarded(name, smallest, lambda f=function: f(backend, params, smallest))))
+    chosen = admitted if tier == "thorough" or problems is not None else quick_problems(admitted)
+    names = [name for name in CHECKS if wanted(name)]
+    for problem in chosen:
+        for name in names:
+            checks.append(BackendCheck(name, "physics", problem,
+                                       lambda n=name, p=problem: run_check(n, runner, p, tolerance)))
+    limit = (3 if tier == "thorough" else 0) if catalogue_max_particles is None else catalogue_max_particles
+    for entry in catalogue_entries():
+        if entry.problem.n_particles <= limit and wanted("references"):
+            checks.append(BackendCheck(
+                "references", "physics", entry.problem,
+                lambda e=entry: replace(run_check("references", runner, e.problem, tolerance), problem=e.name)))
+    return checks
+
+
+def run_checks(checks: Sequence[BackendCheck], progress: bool = False) -> list[Verdict]:
+    """Run ``checks`` in order (a progress bar on stderr with ``progress``); one Verdict each."""
+    if progress:
+        from tqdm import tqdm
+
+        checks = tqdm(checks, desc="checks", unit="check", leave=False)
+    return [check.run() for check in checks]
+
+
+def validate(
+    backend: Any,
+    problems: Iterable[Problem] | None = None,
+    params: dict[str, Any] | None = None,
+    tolerance: Tolerance = Tolerance(),
+    checks: Sequence[str] | None = None,
+    catalogue_max_particles: int | None = None,
+    tier: str = "quick",
+    progress: bool = False,
+) -> list[Verdict]:
+    """The verdicts of ``backend_checks`` (what ``trapbench validate`` prints)."""
+    suite = backend_checks(backend, params, tier, tolerance, problems, checks, catalogue_max_particles)
+    return run_checks(suite, progress)
+
+
+# ----------------------------------------------------------------------------- pytest helper
+
+
+def check_cases(backend: Any, params: dict[str, Any] | None = None, tier: str = "quick",
+                known_failures: dict[str, str] | None = None, **options: Any) -> list:
+    """The checks of ``backend_checks`` as pytest parameters (ids = check ids); ``known_failures`` maps a check
+    name (or a full id) to the reason it is expected to fail, which marks it xfail(strict=True)."""
+    import pytest
+
+    known = known_failures or {}
+    cases = []
+    for check in backend_checks(backend, params, tier, **options):
+        reason = known.get(check.id) or known.get(check.name)
+        marks = [pytest.mark.xfail(reason=reason, strict=True)] if reason else []
+        cases.append(pytest.param(check, id=check.id, marks=marks))
+    return cases
+
+
+def assert_check(check: BackendCheck) -> Verdict:
+    """Run one check inside a test: a skip skips, a failure fails with the check's reason."""
+    import pytest
+
+    verdict = check.run()
+    if verdict.status == "skip":
+        pytest.skip(verdict.reason)
+    assert not verdict.failed, f"{check.id}: {verdict.status}: {verdict.reason}"
+    return verdict
