@@ -581,48 +581,46 @@ def lowest_eigenpairs(
     """The k lowest eigenvalues (ascending) and eigenvectors (columns) of a real symmetric operator.
 
     Dense ``eigh`` below ``dense_limit``; otherwise Lanczos (ARPACK ``eigsh``, which='SA',
-    ncv = max(2k+1, 24)). BLAS runs on one thread (shared machines; common practice).
+    ncv = max(2k+1, 24)). BLAS uses the thread count its caller set (trapbench runs tasks on
+    ``--blas-threads`` threads, default 1: the common practice on shared machines).
     """
-    from threadpoolctl import threadpool_limits
-
     dim = operator.shape[0]
     k = min(k, dim)
-    with threadpool_limits(limits=1):
-        if dim <= dense_limit:
-            if isinstance(operator, np.ndarray):
-                matrix = operator
-            else:
-                matrix = operator @ np.eye(dim)
-                matrix = 0.5 * (matrix + matrix.T)
-            values, vectors = np.linalg.eigh(matrix)
-            return values[:k], vectors[:, :k]
-        ncv = min(dim, max(2 * k + 1, 24))
-        values, vectors = eigsh(operator, k=k, which="SA", tol=tol, v0=v0, ncv=ncv)
-        order = np.argsort(values)
+    if dim <= dense_limit:
+        if isinstance(operator, np.ndarray):
+            matrix = operator
+        else:
+            matrix = operator @ np.eye(dim)
+            matrix = 0.5 * (matrix + matrix.T)
+        values, vectors = np.linalg.eigh(matrix)
+        return values[:k], vectors[:, :k]
+    ncv = min(dim, max(2 * k + 1, 24))
+    values, vectors = eigsh(operator, k=k, which="SA", tol=tol, v0=v0, ncv=ncv)
+    order = np.argsort(values)
+    values, vectors = values[order], vectors[:, order]
+    # Lanczos builds one Krylov space: copies of an exactly degenerate level beyond the first are
+    # found only through rounding, if at all. Move the found vectors up by a shift larger than the
+    # spread of the levels and search again; repeat while new vectors appear below the k-th level.
+    for _ in range(k):
+        if dim - k < k:
+            break
+        shift = 2.0 * (values[-1] - values[0]) + 1.0
+        found = vectors
+
+        def deflated(x, found=found, shift=shift):
+            x = np.asarray(x).reshape(dim, -1)
+            return (operator @ x) + shift * (found @ (found.T @ x))
+
+        more_values, more_vectors = eigsh(
+            LinearOperator((dim, dim), matvec=deflated, matmat=deflated, dtype=float), k=k, which="SA", tol=tol, ncv=ncv
+        )
+        new = more_values < values[-1] - max(abs(tol), 1e-12) * max(1.0, abs(values[-1]))
+        if not np.any(new):
+            break
+        values = np.concatenate([values, more_values[new]])
+        vectors = np.concatenate([vectors, more_vectors[:, new]], axis=1)
+        order = np.argsort(values)[:k]
         values, vectors = values[order], vectors[:, order]
-        # Lanczos builds one Krylov space: copies of an exactly degenerate level beyond the first are
-        # found only through rounding, if at all. Move the found vectors up by a shift larger than the
-        # spread of the levels and search again; repeat while new vectors appear below the k-th level.
-        for _ in range(k):
-            if dim - k < k:
-                break
-            shift = 2.0 * (values[-1] - values[0]) + 1.0
-            found = vectors
-
-            def deflated(x, found=found, shift=shift):
-                x = np.asarray(x).reshape(dim, -1)
-                return (operator @ x) + shift * (found @ (found.T @ x))
-
-            more_values, more_vectors = eigsh(
-                LinearOperator((dim, dim), matvec=deflated, matmat=deflated, dtype=float), k=k, which="SA", tol=tol, ncv=ncv
-            )
-            new = more_values < values[-1] - max(abs(tol), 1e-12) * max(1.0, abs(values[-1]))
-            if not np.any(new):
-                break
-            values = np.concatenate([values, more_values[new]])
-            vectors = np.concatenate([vectors, more_vectors[:, new]], axis=1)
-            order = np.argsort(values)[:k]
-            values, vectors = values[order], vectors[:, order]
     return values, vectors
 
 

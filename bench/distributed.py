@@ -1,28 +1,38 @@
 """Running a sweep's tasks on Dask: a local cluster (``--workers N``) or an existing scheduler.
 
-Each Dask task calls ``runner.run_on_worker``, which runs the trapbench task in its own child
-process on that worker (same limits and measurements as a serial sweep, so the same numbers), and
-returns the outcome as plain data. Results flow back to the coordinating process, which alone
-writes the store, as they complete.
+Each Dask task calls ``runner.run_on_worker``, which runs the trapbench task isolated on that worker
+(same limits and measurements as a serial sweep, so the same numbers) and returns the outcome as
+plain data. Results flow back to the coordinating process, which alone writes the store, as they
+complete.
 
-Workers must be allowed to start child processes. ``--workers N`` starts a
-``distributed.LocalCluster`` with N single-threaded, non-daemonic worker processes. Workers of an
-existing cluster (``--scheduler tcp://host:8786``, e.g. started with ``dask scheduler`` and
-``dask worker`` on an HPC allocation) need trapbench installed and the environment variable
-``DASK_DISTRIBUTED__WORKER__DAEMON=False`` set when they start; a worker that cannot start a
-child records its tasks as failed with that advice.
+Workers need trapbench installed and nothing else: a worker in Dask's default configuration is a
+daemonic process, which ``multiprocessing`` forbids to start children, so its tasks run in a fresh
+interpreter (``subprocess``; it costs the interpreter start and imports per task, see
+``bench/benchmarks/bench_harness_results.md``). ``--workers N`` starts a ``distributed.LocalCluster``
+of N single-threaded non-daemonic workers, which use the cheaper forkserver.
+
+The coordinator never waits without bound: it stops (``SweepStalled``) when no worker has been
+connected for ``worker_wait_s`` seconds, or when no task has finished for ``stall_s`` seconds
+(default: the largest task time limit plus ``STALL_MARGIN_S``; a task cannot legitimately take
+longer, since its worker kills it at its limit). Everything finished before is in the store.
 """
 
 from __future__ import annotations
 
+import time
 from collections.abc import Callable
 
-from .runner import FAILED, Limits, Outcome, backend_modules, payload_for, run_on_worker
+from .executor import FAILED, Limits, Outcome, payload_for
+from .runner import backend_modules, run_on_worker
 from .suite import Task
 
 LOCAL_CLUSTER_OPTIONS = {"threads_per_worker": 1, "processes": True, "dashboard_address": None}
-DAEMON_ADVICE = ("the Dask worker may not start child processes; start workers with"
-                 " DASK_DISTRIBUTED__WORKER__DAEMON=False")
+POLL_S = 1.0
+STALL_MARGIN_S = 120.0
+
+
+class SweepStalled(RuntimeError):
+    """A Dask sweep cannot make progress (no workers, or nothing finishes); the message says which."""
 
 
 def local_cluster(workers: int):
@@ -34,6 +44,13 @@ def local_cluster(workers: int):
         return LocalCluster(n_workers=workers, **LOCAL_CLUSTER_OPTIONS)
 
 
+def _worker_count(client) -> int:
+    try:
+        return len(client.nthreads())
+    except Exception:  # the scheduler itself is gone: as good as no worker
+        return 0
+
+
 def run_on_dask(
     tasks: list[Task],
     limits_of: Callable[[Task], Limits],
@@ -41,36 +58,66 @@ def run_on_dask(
     *,
     workers: int = 0,
     scheduler: str | None = None,
+    worker_wait_s: float = 60.0,
+    stall_s: float | None = None,
 ) -> None:
-    """Submit ``tasks``; call ``finished(task, outcome)`` in this process as each one completes."""
-    from distributed import Client, as_completed
+    """Submit ``tasks``; call ``finished(task, outcome)`` in this process as each one completes.
+
+    Raises SweepStalled (after cancelling what is left) when the cluster stops making progress.
+    """
+    from distributed import Client, wait
 
     if not tasks:
         return
+    if stall_s is None:
+        stall_s = max(limits_of(t).timeout_s for t in tasks) + STALL_MARGIN_S
     cluster = None if scheduler else local_cluster(max(1, workers))
     client = Client(scheduler) if scheduler else Client(cluster)
+    pending: dict = {}
     try:
-        futures = {}
         preload = backend_modules(sorted({t.backend for t in tasks}))
         for task in tasks:
             future = client.submit(run_on_worker, payload_for(task), limits_of(task), preload, pure=False,
                                    key=f"trapbench-{task.key}")
-            futures[future.key] = (future, task)
-        for future in as_completed([f for f, _ in futures.values()]):
-            task = futures[future.key][1]
+            pending[future] = task
+        last_progress = time.monotonic()
+        without_workers_since = None
+        while pending:
             try:
-                data = future.result()
-                data.pop("worker_pid", None)
-                outcome = Outcome(**data)
-            except AssertionError as exc:  # multiprocessing refuses children of daemonic processes
-                outcome = Outcome(status=FAILED, error=f"{DAEMON_ADVICE} ({exc})")
-            except Exception as exc:  # a lost worker or a serialization failure: record, go on
-                outcome = Outcome(status=FAILED, error=f"Dask could not run the task: {type(exc).__name__}: {exc}")
-            finished(task, outcome)
-    except KeyboardInterrupt:
-        client.cancel([f for f, _ in futures.values()], force=True)
+                done = wait(list(pending), timeout=POLL_S, return_when="FIRST_COMPLETED").done
+            except TimeoutError:
+                done = set()
+            for future in done:
+                finished(pending.pop(future), _outcome_of(future))
+                last_progress = time.monotonic()
+            if done or not pending:
+                continue
+            now = time.monotonic()
+            if _worker_count(client) == 0:
+                without_workers_since = without_workers_since or now
+                if now - without_workers_since > worker_wait_s:
+                    raise SweepStalled(f"no Dask worker connected for {worker_wait_s:g} s ({len(pending)} task(s) not run);"
+                                       " start workers (or check the scheduler) and resume")
+            else:
+                without_workers_since = None
+            if now - last_progress > stall_s:
+                raise SweepStalled(f"no task finished for {stall_s:g} s ({len(pending)} task(s) not run); check the"
+                                   " workers, or raise the wait with --stall-timeout")
+    except (KeyboardInterrupt, SweepStalled):
+        client.cancel(list(pending), force=True)
         raise
     finally:
-        client.close()
+        client.close(timeout=10)
         if cluster is not None:
-            cluster.close()
+            cluster.close(timeout=30)
+
+
+def _outcome_of(future) -> Outcome:
+    """The task's outcome, or a failure saying why Dask could not produce one (a lost worker, ...)."""
+    try:
+        data = future.result()
+        data.pop("worker_pid", None)
+        return Outcome(**data)
+    except Exception as exc:  # a killed worker or a serialization failure: recorded, retried next sweep
+        return Outcome(status=FAILED, error=f"Dask could not run the task: {type(exc).__name__}: {exc}",
+                       error_type=type(exc).__name__)

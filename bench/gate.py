@@ -10,8 +10,13 @@ A baseline is a JSON file written by ``write_baseline`` (``trapbench check --upd
 ``compare(tasks, baseline, tolerance)`` returns one row per compared quantity with a verdict.
 Regressions (the gate fails) are: a value that moved beyond its tolerance
 (|x - x_base| > abs + rel |x_base|), a task that succeeded in the baseline and now fails, a task
-(or a level, or a scalar) of the baseline that is missing now. Not regressions: tasks new since the
-baseline, and tasks that failed before and now succeed ("fixed") or still fail.
+(or a level, or a scalar) of the baseline that is missing now, and a task of the suite that the
+baseline does not cover ("new") -- unless new tasks are expected (``allow_new``, ``check
+--allow-new``). A gate that compared no task of the baseline at all never passes. Not regressions:
+tasks that failed before and now succeed ("fixed") or still fail.
+
+``read_baseline`` checks the whole document (types and required fields of every entry) and names
+the file, the offending entry and what to do in one line (``SpecError``).
 
 From pytest, use ``assert_no_regression`` or the ``trapbench_gate`` fixture of
 ``trapbench.bench.pytest_plugin``.
@@ -34,6 +39,7 @@ from .suite import DEFAULT_TOLERANCES, Tolerance
 FORMAT = "trapbench-baseline"
 VERSION = 1
 REGRESSIONS = ("changed", "new failure", "missing")
+NEW = "new"
 SCALAR_DEFAULT = Tolerance(abs=1e-9, rel=1e-6)
 
 
@@ -68,20 +74,70 @@ def write_baseline(path: str | Path, document: dict) -> Path:
 
 
 def read_baseline(path: str | Path) -> dict:
+    """The baseline document at ``path``, checked completely; SpecError (one line) for any defect."""
     path = Path(path)
     try:
         document = json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
         raise SpecError("--baseline", f"no file '{path}'; create it with --update-baseline") from None
-    except (OSError, json.JSONDecodeError) as exc:
-        raise SpecError("--baseline", f"cannot read '{path}' ({exc})") from None
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise SpecError("--baseline", f"cannot read '{path}' as JSON ({exc}); restore it or write a new one with"
+                                      " --update-baseline") from None
     if not isinstance(document, dict) or document.get("format") != FORMAT:
-        raise SpecError("--baseline", f"'{path}' is not a trapbench baseline (missing \"format\": \"{FORMAT}\")")
+        raise SpecError("--baseline", f"'{path}' is not a trapbench baseline (missing \"format\": \"{FORMAT}\");"
+                                      " write one with --update-baseline")
     if document.get("version") != VERSION:
-        raise SpecError("--baseline", f"'{path}' has version {document.get('version')}; this trapbench reads {VERSION}")
-    if not isinstance(document.get("tasks"), dict):
-        raise SpecError("--baseline.tasks", f"'{path}' has no task table")
+        raise SpecError("--baseline", f"'{path}' has version {document.get('version')!r}; this trapbench reads {VERSION}"
+                                      " (write a new one with --update-baseline)")
+    problem = _baseline_defect(document)
+    if problem:
+        raise SpecError("--baseline", f"'{path}': {problem}; fix that entry or write a new baseline with --update-baseline")
     return document
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
+def _baseline_defect(document: dict) -> str | None:
+    """The first malformed field of a baseline document, as "field: got ...; expected ...", or None."""
+    tolerances = document.get("tolerances", {})
+    if not isinstance(tolerances, dict):
+        return f"tolerances: got {tolerances!r:.60}; expected a table quantity -> {{abs, rel}}"
+    for quantity, rule in tolerances.items():
+        if not isinstance(rule, dict) or not set(rule) <= {"abs", "rel"}:
+            return f"tolerances.{quantity}: got {rule!r:.60}; expected {{\"abs\": number, \"rel\": number}}"
+        for key, value in rule.items():
+            if not _is_number(value) or value < 0:
+                return f"tolerances.{quantity}.{key}: got {value!r:.60}; expected a number >= 0"
+    tasks = document.get("tasks")
+    if not isinstance(tasks, dict):
+        return f"tasks: got {tasks!r:.60}; expected a table task key -> entry"
+    for key, entry in tasks.items():
+        where = f"tasks.{key}"
+        if not isinstance(entry, dict):
+            return f"{where}: got {entry!r:.60}; expected a table"
+        if not isinstance(entry.get("status"), str):
+            return f"{where}.status: got {entry.get('status')!r:.60}; expected a status such as \"ok\""
+        energies = entry.get("energies")
+        if entry["status"] == "ok" and not isinstance(energies, list):
+            return f"{where}.energies: got {energies!r:.60}; an ok task needs a list of energies"
+        for i, energy in enumerate(energies or []):
+            if not _is_number(energy):
+                return f"{where}.energies[{i}]: got {energy!r:.60}; expected a finite number"
+        scalars = entry.get("scalars")
+        if scalars is not None and not isinstance(scalars, dict):
+            return f"{where}.scalars: got {scalars!r:.60}; expected a table name -> number"
+        for name, value in (scalars or {}).items():
+            if not _is_number(value):
+                return f"{where}.scalars.{name}: got {value!r:.60}; expected a finite number"
+        for field, kind, expected in (("params", dict, "a table"), ("problem_name", str, "a string"),
+                                      ("backend", str, "a string")):
+            if entry.get(field) is not None and not isinstance(entry[field], kind):
+                return f"{where}.{field}: got {entry[field]!r:.60}; expected {expected}"
+        if entry.get("g") is not None and not _is_number(entry["g"]):
+            return f"{where}.g: got {entry['g']!r:.60}; expected a number"
+    return None
 
 
 def _tolerance_from(document: dict) -> Callable[[str, str | None], Tolerance]:
@@ -93,10 +149,6 @@ def _tolerance_from(document: dict) -> Callable[[str, str | None], Tolerance]:
         return DEFAULT_TOLERANCES.get(quantity, SCALAR_DEFAULT)
 
     return tolerance
-
-
-def _finite(x) -> bool:
-    return isinstance(x, (int, float)) and math.isfinite(x)
 
 
 def compare(
@@ -141,26 +193,36 @@ def compare(
             rule = tolerance(quantity, backend)
             difference = value - base
             allowed = rule.allowed(base)
-            ok = _finite(value) and abs(difference) <= allowed
+            ok = _is_number(value) and abs(difference) <= allowed
             add(key, entry, label, base, value, "ok" if ok else "changed", difference, allowed)
     for key, now in current.items():
         if key not in baseline["tasks"]:
-            add(key, now, "task", None, now["status"], "new", note="not in the baseline")
+            add(key, now, "task", None, now["status"], NEW, note="not in the baseline")
     return pd.DataFrame(rows, columns=["problem_name", "g", "backend", "params", "quantity", "baseline", "current",
                                        "difference", "allowed", "verdict", "note", "task_key"])
 
 
 @dataclass
 class GateResult:
+    """The diff and the gate's verdict; ``allow_new`` accepts tasks the baseline does not cover."""
+
     diff: pd.DataFrame
+    allow_new: bool = False
 
     @property
     def regressions(self) -> pd.DataFrame:
-        return self.diff[self.diff["verdict"].isin(REGRESSIONS)]
+        failing = REGRESSIONS if self.allow_new else REGRESSIONS + (NEW,)
+        return self.diff[self.diff["verdict"].isin(failing)]
+
+    @property
+    def compared_nothing(self) -> bool:
+        """No task of the baseline is among the current results: nothing was actually checked."""
+        present = self.diff[(self.diff["verdict"] != NEW) & (self.diff["verdict"] != "missing")]
+        return present.empty
 
     @property
     def passed(self) -> bool:
-        return self.regressions.empty
+        return self.regressions.empty and not self.compared_nothing
 
     def report(self, everything: bool = False) -> str:
         from .tables import to_markdown
@@ -168,20 +230,32 @@ class GateResult:
         counts = self.diff["verdict"].value_counts().to_dict()
         summary = ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
         shown = self.diff if everything else self.diff[self.diff["verdict"] != "ok"]
-        verdict = "PASSED" if self.passed else f"FAILED: {len(self.regressions)} regression(s)"
+        if self.compared_nothing:
+            verdict = "FAILED: the baseline covers none of the current tasks (write one with --update-baseline)"
+        elif self.passed:
+            verdict = "PASSED"
+        else:
+            verdict = f"FAILED: {len(self.regressions)} regression(s)"
+        new = int((self.diff["verdict"] == NEW).sum())
+        if new and not self.allow_new:
+            verdict += f"; {new} task(s) not in the baseline (listed as 'new'; pass --allow-new if they are expected)"
         table = to_markdown(shown.drop(columns=["task_key"])) if not shown.empty else "(every value within tolerance)"
         return f"regression gate {verdict} ({summary})\n\n{table}\n"
 
 
-def check_against(tasks: pd.DataFrame, baseline_path: str | Path, suite=None) -> GateResult:
+def check_against(tasks: pd.DataFrame, baseline_path: str | Path, suite=None, allow_new: bool = False) -> GateResult:
     """Compare a tasks frame with the baseline file, under the suite's tolerances when a suite is given."""
     baseline = read_baseline(baseline_path)
     tolerance = suite.tolerance if suite is not None else None
-    return GateResult(compare(tasks, baseline, tolerance))
+    return GateResult(compare(tasks, baseline, tolerance), allow_new)
 
 
-def assert_no_regression(suite, baseline_path: str | Path, store_path: str | Path | None = None, **options) -> GateResult:
-    """Run ``suite`` (a Suite, built-in name or path) afresh and raise AssertionError with the diff on any regression."""
+def assert_no_regression(suite, baseline_path: str | Path, store_path: str | Path | None = None,
+                         allow_new: bool = False, **options) -> GateResult:
+    """Run ``suite`` (a Suite, built-in name or path) afresh and raise AssertionError with the diff on any regression.
+
+    ``allow_new``: tasks of the suite that the baseline does not cover are not regressions.
+    """
     from .store import Store
     from .suite import load_suite
     from .sweep import SweepOptions, run_sweep
@@ -193,7 +267,7 @@ def assert_no_regression(suite, baseline_path: str | Path, store_path: str | Pat
     report = run_sweep(suite, SweepOptions(store_path=store_path, **options))
     with Store.open(store_path) as store:
         tasks = store.tasks_frame(keys=report.task_keys)
-    result = check_against(tasks, baseline_path, suite)
+    result = check_against(tasks, baseline_path, suite, allow_new)
     if not result.passed:
         raise AssertionError(result.report())
     return result

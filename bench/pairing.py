@@ -20,18 +20,15 @@ coefficients c1 of ``problems.references``.
 
 from __future__ import annotations
 
-import argparse
 import math
-import sys
 from collections.abc import Iterable, Sequence
 from typing import Any
 
 import pandas as pd
 
 from ..backends import registry
-from ..backends.base import SolverError, Unsupported
-from ..problems.errors import SpecError
 from ..problems.spec import Problem
+from .executor import OK, Limits, execute
 
 DEFINITION = "Delta(N+1) = E(N+1) - [E(N) + E(N+2)]/2, N even, N_up = ceil(N/2), N_down = floor(N/2)"
 
@@ -48,27 +45,30 @@ def ground_energies(
     params: dict[str, Any] | None = None,
     mass_up: float = 1.0,
     mass_down: float = 1.0,
+    *,
+    isolated: bool = False,
+    limits: Limits | None = None,
 ) -> pd.DataFrame:
-    """One row per N: backend, N, n_up, n_down, g, energy, error (the backend's own) and status/reason."""
+    """One row per N: backend, N, n_up, n_down, g, energy, error (the backend's own), cpu_time_s and status/reason.
+
+    Each size runs through ``executor.execute`` (in this process, or isolated under ``limits``); a
+    size the backend declines or fails on is a row with its status and reason, never an exception.
+    """
     rows = []
     for n in particle_numbers:
         n_up, n_down = balanced_counts(n)
         problem = Problem.create(n_up, n_down, g, mass_up=mass_up, mass_down=mass_down, label=f"{n_up}+{n_down}")
-        row = {"backend": backend.name, "N": n, "n_up": n_up, "n_down": n_down, "g": g,
-               "energy": math.nan, "error": math.nan, "cpu_time_s": math.nan, "status": "ok", "reason": ""}
-        support = backend.supports(problem)
-        if not support:
-            row.update(status="unsupported", reason=support.reason)
+        row = {"backend": backend if isinstance(backend, str) else backend.name, "N": n, "n_up": n_up,
+               "n_down": n_down, "g": g, "energy": math.nan, "error": math.nan, "cpu_time_s": math.nan,
+               "status": OK, "reason": ""}
+        outcome = execute(backend, problem, params, isolated=isolated, limits=limits)
+        if outcome.ok:
+            result = outcome.solved()
+            error = result.energy_errors[0] if result.energy_errors else result.error_estimate
+            row.update(energy=result.energies[0], error=math.nan if error is None else abs(error),
+                       cpu_time_s=result.cpu_time_s)
         else:
-            try:
-                result = backend.solve(problem, **(params or {}))
-            except (Unsupported, SolverError, SpecError, ArithmeticError, MemoryError) as exc:
-                # SpecError here: the backend's parameters do not fit this size (e.g. a basis cap)
-                row.update(status="failed", reason=f"{exc.__class__.__name__}: {exc}")
-            else:
-                error = result.energy_errors[0] if result.energy_errors else result.error_estimate
-                row.update(energy=result.energies[0], error=math.nan if error is None else abs(error),
-                           cpu_time_s=result.cpu_time_s)
+            row.update(status=outcome.status, reason=outcome.error.splitlines()[0])
         rows.append(row)
     return pd.DataFrame(rows)
 
@@ -99,33 +99,16 @@ def odd_even_analysis(
     g: float,
     particle_numbers: Iterable[int] = range(2, 9),
     params: dict[str, dict[str, Any]] | None = None,
+    *,
+    isolated: bool = False,
+    limits: Limits | None = None,
 ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Energies and gaps for several backends (by name) at one coupling g."""
     params = params or {}
     numbers = list(particle_numbers)
     energies = pd.concat(
-        [ground_energies(registry.get(name), g, numbers, params.get(name)) for name in backend_names],
+        [ground_energies(registry.get(name), g, numbers, params.get(name), isolated=isolated, limits=limits)
+         for name in backend_names],
         ignore_index=True,
     )
     return energies, pairing_gaps(energies)
-
-
-def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m trapbench.bench.pairing", description=__doc__.split("\n")[0])
-    parser.add_argument("--backend", "-b", action="append", required=True, help="backend name (repeatable)")
-    parser.add_argument("--g", type=float, required=True, help="coupling (attractive: negative)")
-    parser.add_argument("--max-particles", type=int, default=8, help="largest N (default 8)")
-    args = parser.parse_args(argv)
-    energies, gaps = odd_even_analysis(args.backend, args.g, range(2, args.max_particles + 1))
-    print(f"ground energies at g = {args.g:g} (hbar*omega)")
-    print(energies.pivot(index="N", columns="backend", values="energy").to_string())
-    for row in energies[energies["status"] != "ok"].itertuples():
-        print(f"  {row.backend} N = {row.N}: {row.status}: {row.reason}")
-    print(f"\npairing gap, {DEFINITION}")
-    if not gaps.empty:
-        print(gaps.pivot(index="N", columns="backend", values="gap").to_string())
-    return 0
-
-
-if __name__ == "__main__":
-    sys.exit(main())

@@ -6,7 +6,8 @@ Enable it in a ``conftest.py`` with ``pytest_plugins = ["trapbench.bench.pytest_
         trapbench_gate("quick", "baselines/quick.json")        # built-in suite name or suite file
 
 The fixture runs the suite afresh into a temporary store and fails the test with the diff table
-when any value moved beyond its tolerance, a task newly fails, or a baseline result is missing.
+when any value moved beyond its tolerance, a task newly fails, a baseline result is missing, or a
+task of the suite is not in the baseline (``trapbench_gate(..., allow_new=True)`` accepts those).
 ``pytest --trapbench-update-baseline`` writes the current results as the new baseline instead.
 """
 
@@ -24,13 +25,13 @@ def pytest_addoption(parser) -> None:
 
 @pytest.fixture
 def trapbench_gate(request, tmp_path):
-    """Callable ``(suite, baseline_path, **sweep_options) -> GateResult``; fails the test on a regression."""
+    """Callable ``(suite, baseline_path, allow_new=False, **sweep_options) -> GateResult``; fails the test on a regression."""
     from .gate import assert_no_regression, baseline_from_tasks, write_baseline
     from .store import Store
     from .suite import load_suite
     from .sweep import SweepOptions, run_sweep
 
-    def gate(suite, baseline_path: str | Path, **options):
+    def gate(suite, baseline_path: str | Path, allow_new: bool = False, **options):
         if not hasattr(suite, "tasks"):
             suite = load_suite(suite)
         store_path = tmp_path / "trapbench-gate.sqlite"
@@ -41,7 +42,7 @@ def trapbench_gate(request, tmp_path):
             write_baseline(baseline_path, baseline_from_tasks(tasks, suite.name, suite.tolerance_table))
             return None
         try:
-            return assert_no_regression(suite, baseline_path, store_path, **options)
+            return assert_no_regression(suite, baseline_path, store_path, allow_new, **options)
         except AssertionError as exc:
             pytest.fail(str(exc), pytrace=False)
 

@@ -1,8 +1,15 @@
-"""Run one task in its own child process, with a wall-time limit and a memory cap, and measure it.
+"""Isolation for the executor: run one task in its own child process, with a wall-time limit and a memory cap, and measure it.
 
-``run_isolated(payload, limits)`` starts a child from a forkserver (numpy, scipy, trapbench and the
-suite's backend modules are imported once in the server, so each task starts in milliseconds and its
-memory is its own), then watches it every ``POLL_S`` seconds:
+``run_isolated(payload, limits)`` starts the child in one of two ways:
+
+- ``forkserver`` (default): a child forked from a server that imported numpy, scipy, trapbench and
+  the suite's backend modules once, so each task starts in milliseconds and its memory is its own;
+- ``subprocess``: a fresh interpreter (``python -m trapbench.bench.runner``), chosen automatically
+  inside a daemonic process -- a Dask worker in its default configuration -- where
+  ``multiprocessing`` may not start children. It pays the interpreter start and the imports per
+  task (measured in ``bench/benchmarks/bench_harness_results.md``).
+
+Either way the parent watches the child every ``POLL_S`` seconds:
 
 - wall time beyond ``limits.timeout_s``  -> SIGKILL, status ``timeout``;
 - resident memory beyond ``limits.memory_mib`` -> SIGKILL, status ``out-of-memory`` (a
@@ -12,78 +19,38 @@ memory is its own), then watches it every ``POLL_S`` seconds:
   processes the task itself starts are not counted;
 - the child dies without answering (segfault, ``os.abort``, ``sys.exit``) -> status ``crashed``
   with the signal or exit code;
-- the backend raises -> ``failed`` (``unsupported`` for ``Unsupported``) with the message.
+- otherwise the child's own answer, classified by ``executor.solve_payload``.
 
-Measured for every task: wall time (parent clock, child start to end), CPU time of the child
-(user + system, from the child's own ``getrusage``; the last ``/proc`` sample when it was killed)
-and the peak resident set size of that process: the child resets its high-water mark by writing
-"5" to ``/proc/self/clear_refs`` (Linux >= 4.0) and reports ``VmHWM`` at the end; the parent's own
-polled maximum is the fallback. The forked child shares the server's already-imported libraries,
-which count towards its RSS (tens of MiB), the same for every task.
-
-BLAS/OpenMP thread pools are limited to ``limits.blas_threads`` (default 1, common practice when
-several tasks share a machine) with threadpoolctl.
+Measured for every task: wall time (parent clock, child start to end; with ``subprocess`` it
+includes the interpreter start), CPU time of the solve in the child (user + system from its own
+``getrusage``; the last ``/proc`` sample when it was killed) and its peak resident set size: the
+child resets its high-water mark by writing "5" to ``/proc/self/clear_refs`` (Linux >= 4.0) once
+its libraries are imported and reports ``VmHWM`` at the end; the parent's polled maximum is the
+fallback. The already-imported libraries count towards that peak (tens of MiB), the same for every task.
 """
 
 from __future__ import annotations
 
 import contextlib
-import datetime as _dt
+import json
 import multiprocessing
 import os
-import platform
 import resource
 import signal
+import subprocess
 import sys
+import tempfile
 import time
-import traceback
-from dataclasses import asdict, dataclass, field
+from pathlib import Path
 
-OK = "ok"
-FAILED = "failed"
-UNSUPPORTED = "unsupported"
-CRASHED = "crashed"
-TIMEOUT = "timeout"
-OUT_OF_MEMORY = "out-of-memory"
-MISSING_BACKEND = "missing-backend"
-STATUSES = (OK, FAILED, UNSUPPORTED, CRASHED, TIMEOUT, OUT_OF_MEMORY, MISSING_BACKEND)
+from .executor import CRASHED, OUT_OF_MEMORY, TIMEOUT, Limits, Outcome, now_utc, solve_payload
 
 POLL_S = 0.02
 MIB = 1024 * 1024
+FORKSERVER = "forkserver"
+SUBPROCESS = "subprocess"
 BASE_PRELOAD = ("numpy", "scipy", "scipy.sparse", "scipy.sparse.linalg", "threadpoolctl", "trapbench.backends",
-                "trapbench.bench.runner", "trapbench.bench.warm")
-
-
-@dataclass(frozen=True)
-class Limits:
-    """Per-task limits: wall time in seconds, resident memory in MiB, BLAS threads."""
-
-    timeout_s: float = 600.0
-    memory_mib: float = 4096.0
-    blas_threads: int = 1
-
-
-@dataclass
-class Outcome:
-    """What happened to one task. ``result`` is ``Result.to_json_dict()`` when status is ``ok``."""
-
-    status: str
-    error: str = ""
-    result: dict | None = None
-    wall_time_s: float = 0.0
-    cpu_time_s: float = 0.0
-    peak_rss_bytes: int = 0
-    exit_code: int | None = None
-    started_utc: str = ""
-    finished_utc: str = ""
-    host: str = field(default_factory=platform.node)
-
-    def to_dict(self) -> dict:
-        return asdict(self)
-
-
-def _now() -> str:
-    return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
+                "trapbench.bench.executor", "trapbench.bench.runner", "trapbench.bench.warm")
 
 
 # ----------------------------------------------------------------------------- the child
@@ -108,42 +75,41 @@ def _status_kib(key: str) -> int:
     return 0
 
 
-def _child_main(conn, payload: dict, sys_path: list[str] | None) -> None:
-    """Entry point of the child: solve one task and send (status, error, result, cpu, peak)."""
+def _measured_solve(payload: dict) -> tuple:
+    """(status, error, error_type, result, cpu seconds, peak bytes) of the solve in this process."""
+    _reset_peak_rss()
+    before = resource.getrusage(resource.RUSAGE_SELF)
+    status, error, error_type, result = solve_payload(payload["backend"], payload["problem"], payload["params"],
+                                                      payload["blas_threads"])
+    after = resource.getrusage(resource.RUSAGE_SELF)
+    cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+    return status, error, error_type, result, cpu, _status_kib("VmHWM") * 1024
+
+
+def _forked_main(conn, payload: dict, sys_path: list[str] | None) -> None:
+    """Entry point of a forkserver child: solve one task and send the measured answer."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the coordinator decides what Ctrl-C stops
     if sys_path is not None:
         sys.path[:] = sys_path
-    _reset_peak_rss()
-    before = resource.getrusage(resource.RUSAGE_SELF)
-    status, error, result = FAILED, "", None
-    try:
-        from threadpoolctl import threadpool_limits
+    answer = _measured_solve(payload)  # a task that exits or dies here closes the pipe unanswered: "crashed"
+    conn.send(answer)
+    conn.close()
 
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of a ``subprocess`` child: ``python -m trapbench.bench.runner PAYLOAD.json ANSWER.json``."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    payload_path, answer_path = argv if argv is not None else sys.argv[1:3]
+    payload = json.loads(Path(payload_path).read_text(encoding="utf-8"))
+    with contextlib.suppress(Exception):  # import the backend before measuring, as the forkserver does
         from ..backends import registry
-        from ..backends.base import SolverError, Unsupported
-        from ..problems.spec import Problem
 
-        try:
-            with threadpool_limits(limits=payload["blas_threads"]):
-                backend = registry.get(payload["backend"])
-                problem = Problem.from_dict(payload["problem"])
-                result = backend.solve(problem, **payload["params"]).to_json_dict()
-            status = OK
-        except MemoryError as exc:
-            status, error = OUT_OF_MEMORY, f"MemoryError inside the task: {exc}"
-        except Unsupported as exc:
-            status, error = UNSUPPORTED, str(exc)
-        except SolverError as exc:
-            status, error = FAILED, f"SolverError: {exc}"
-        except Exception as exc:  # any backend bug is recorded, never fatal to the sweep
-            tail = "".join(traceback.format_exception(exc)[-3:]).strip()
-            status, error = FAILED, f"{type(exc).__name__}: {exc}\n{tail}"
-    finally:
-        after = resource.getrusage(resource.RUSAGE_SELF)
-        cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
-        peak = _status_kib("VmHWM") * 1024
-        conn.send((status, error, result, cpu, peak))
-        conn.close()
+        registry.get(payload["backend"])
+    answer = _measured_solve(payload)
+    partial = Path(answer_path + ".part")
+    partial.write_text(json.dumps(answer), encoding="utf-8")
+    partial.rename(answer_path)  # the parent never reads half an answer
+    return 0
 
 
 # ----------------------------------------------------------------------------- the parent
@@ -168,6 +134,11 @@ def backend_modules(names: list[str]) -> tuple[str, ...]:
     return tuple(targets[n].split(":")[0] for n in names if n in targets)
 
 
+def default_method() -> str:
+    """``subprocess`` inside a daemonic process (multiprocessing refuses its children), else ``forkserver``."""
+    return SUBPROCESS if multiprocessing.current_process().daemon else FORKSERVER
+
+
 def _signal_name(code: int) -> str:
     try:
         return signal.Signals(-code).name
@@ -183,52 +154,108 @@ def _main_module_hidden():
     a script without an ``if __name__ == "__main__"`` guard (or code read from stdin) would be
     re-executed, or fail, in every task process.
     """
-    main = sys.modules.get("__main__")
-    if main is None:
+    main_module = sys.modules.get("__main__")
+    if main_module is None:
         yield
         return
-    saved = {k: main.__dict__[k] for k in ("__spec__", "__file__") if k in main.__dict__}
-    main.__dict__["__spec__"] = None
-    main.__dict__.pop("__file__", None)
+    saved = {k: main_module.__dict__[k] for k in ("__spec__", "__file__") if k in main_module.__dict__}
+    main_module.__dict__["__spec__"] = None
+    main_module.__dict__.pop("__file__", None)
     try:
         yield
     finally:
-        main.__dict__.update(saved)
+        main_module.__dict__.update(saved)
 
 
-def run_isolated(payload: dict, limits: Limits, sys_path: list[str] | None = None) -> Outcome:
-    """Solve ``payload`` (``backend``, ``problem`` as a dict, ``params``) in a child; never raises for the task's faults.
+class _ForkedChild:
+    """A forkserver child answering through a pipe."""
+
+    def __init__(self, payload: dict, sys_path: list[str]):
+        ctx = context()
+        self._receiver, sender = ctx.Pipe(duplex=False)
+        self._process = ctx.Process(target=_forked_main, args=(sender, payload, sys_path))
+        with _main_module_hidden():
+            self._process.start()
+        sender.close()
+        self.pid = self._process.pid
+
+    def answer(self, wait_s: float) -> tuple[bool, tuple | None]:
+        """(finished, answer): finished when the child answered or its end of the pipe closed."""
+        if not self._receiver.poll(wait_s):
+            return (not self._process.is_alive() and not self._receiver.poll(0)), None
+        try:
+            return True, self._receiver.recv()
+        except EOFError:
+            return True, None
+
+    def kill(self) -> None:
+        self._process.kill()
+
+    def close(self) -> int | None:
+        self._process.join(timeout=10)
+        self._receiver.close()
+        return self._process.exitcode
+
+
+class _SubprocessChild:
+    """A fresh interpreter answering through a file (no ``multiprocessing``: allowed in daemonic processes)."""
+
+    def __init__(self, payload: dict, sys_path: list[str]):
+        self._folder = tempfile.TemporaryDirectory(prefix="trapbench-task-")
+        payload_path = Path(self._folder.name) / "payload.json"
+        payload_path.write_text(json.dumps(payload), encoding="utf-8")
+        self._answer_path = Path(self._folder.name) / "answer.json"
+        env = {**os.environ, "PYTHONPATH": os.pathsep.join(p for p in sys_path if p)}
+        self._process = subprocess.Popen([sys.executable, "-m", "trapbench.bench.runner", str(payload_path),
+                                          str(self._answer_path)], env=env, stdin=subprocess.DEVNULL)
+        self.pid = self._process.pid
+
+    def answer(self, wait_s: float) -> tuple[bool, tuple | None]:
+        try:
+            self._process.wait(timeout=wait_s)
+        except subprocess.TimeoutExpired:
+            return False, None
+        if self._process.returncode == 0 and self._answer_path.exists():
+            return True, tuple(json.loads(self._answer_path.read_text(encoding="utf-8")))
+        return True, None
+
+    def kill(self) -> None:
+        self._process.kill()
+
+    def close(self) -> int | None:
+        with contextlib.suppress(subprocess.TimeoutExpired):
+            self._process.wait(timeout=10)
+        self._folder.cleanup()
+        return self._process.returncode
+
+
+def run_isolated(payload: dict, limits: Limits, sys_path: list[str] | None = None, method: str | None = None) -> Outcome:
+    """Solve ``payload`` (``backend`` name, ``problem`` as a dict, ``params``) in a child; never raises for the task's faults.
 
     ``sys_path`` (default: this process's ``sys.path``) is installed in the child so that backends
-    found through entry points on the coordinator's path are found there too.
+    found through entry points on the caller's path are found there too. ``method`` is ``forkserver``
+    or ``subprocess`` (default: ``default_method()``).
     """
     import psutil
 
     payload = {**payload, "blas_threads": limits.blas_threads}
-    ctx = context()
-    receiver, sender = ctx.Pipe(duplex=False)
-    process = ctx.Process(target=_child_main, args=(sender, payload, list(sys.path) if sys_path is None else sys_path))
-    started = _now()
+    sys_path = list(sys.path) if sys_path is None else sys_path
+    method = method or default_method()
+    started = now_utc()
     start = time.perf_counter()
-    with _main_module_hidden():
-        process.start()
-    sender.close()
+    child = _SubprocessChild(payload, sys_path) if method == SUBPROCESS else _ForkedChild(payload, sys_path)
     cap = limits.memory_mib * MIB
     polled_peak, polled_cpu = 0, 0.0
-    message, killed_for = None, None
+    answer, killed_for = None, None
     try:
-        watched = psutil.Process(process.pid)
+        watched = psutil.Process(child.pid)
     except psutil.Error:
         watched = None
     try:
         while True:
-            if receiver.poll(POLL_S):
-                try:
-                    message = receiver.recv()
-                except EOFError:
-                    message = None
+            finished, answer = child.answer(POLL_S)
+            if finished:
                 break
-            elapsed = time.perf_counter() - start
             if watched is not None:
                 try:
                     rss = watched.memory_info().rss
@@ -239,21 +266,18 @@ def run_isolated(payload: dict, limits: Limits, sys_path: list[str] | None = Non
                     rss = 0
                 if rss > cap:
                     killed_for = OUT_OF_MEMORY
-            if elapsed > limits.timeout_s:
+            if time.perf_counter() - start > limits.timeout_s:
                 killed_for = TIMEOUT
             if killed_for is not None:
-                process.kill()
-                break
-            if not process.is_alive() and not receiver.poll(0):
+                child.kill()
                 break
     finally:
-        if message is None and process.is_alive():
-            process.kill()
-        process.join(timeout=10)
-        receiver.close()
+        if answer is None:
+            child.kill()
+        exit_code = child.close()
     wall = time.perf_counter() - start
     outcome = Outcome(status=CRASHED, wall_time_s=wall, cpu_time_s=polled_cpu, peak_rss_bytes=polled_peak,
-                      exit_code=process.exitcode, started_utc=started, finished_utc=_now())
+                      exit_code=exit_code, started_utc=started, finished_utc=now_utc())
     if killed_for == TIMEOUT:
         outcome.status = TIMEOUT
         outcome.error = f"killed after {wall:.1f} s: the wall-time limit is {limits.timeout_s:g} s (raise it with --timeout)"
@@ -261,28 +285,27 @@ def run_isolated(payload: dict, limits: Limits, sys_path: list[str] | None = Non
         outcome.status = OUT_OF_MEMORY
         outcome.error = (f"killed at {polled_peak / MIB:.0f} MiB resident: the memory cap is {limits.memory_mib:g} MiB"
                          " (raise it with --memory)")
-    elif message is None:
-        code = process.exitcode
-        how = f"killed by {_signal_name(code)}" if code is not None and code < 0 else f"exited with status {code}"
+    elif answer is None:
+        how = f"killed by {_signal_name(exit_code)}" if exit_code is not None and exit_code < 0 else f"exited with status {exit_code}"
         outcome.error = f"the task process {how} without a result"
     else:
-        status, error, result, cpu, peak = message
-        outcome.status, outcome.error, outcome.result = status, error, result
+        status, error, error_type, result, cpu, peak = answer
+        outcome.status, outcome.error, outcome.error_type, outcome.result = status, error, error_type, result
         outcome.cpu_time_s = cpu
         outcome.peak_rss_bytes = max(peak, polled_peak)
     return outcome
 
 
-def payload_for(task) -> dict:
-    """The picklable description of a ``suite.Task`` that a child (or a Dask worker) needs."""
-    return {"backend": task.backend, "problem": task.problem.to_dict(), "params": dict(task.params)}
-
-
 def run_on_worker(payload: dict, limits: Limits, preload: tuple[str, ...] = ()) -> dict:
     """Dask entry point: run the task isolated on this worker and return the outcome as a dict.
 
-    ``preload`` names the backend modules the worker's task server should import once (honoured
-    when the worker runs its first task).
+    A default (daemonic) worker runs it in a fresh interpreter; a non-daemonic one (``--workers N``
+    starts those) through a forkserver whose ``preload`` (backend modules) is honoured at its first task.
     """
-    context(preload)
+    if default_method() == FORKSERVER:
+        context(preload)
     return run_isolated(payload, limits, sys_path=None).to_dict() | {"worker_pid": os.getpid()}
+
+
+if __name__ == "__main__":
+    sys.exit(main())

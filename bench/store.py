@@ -20,27 +20,47 @@ Tables:
   bytes, exit code, the limits it ran under, worker host and times.
 
 Every task result is written in its own transaction (``journal_mode=WAL``), so a sweep killed at
-any moment loses only the tasks in flight. A task already stored is skipped on the next run unless
-it is asked to rerun (``sweep --rerun``), or it timed out / ran out of memory under a smaller limit
-than the one now given, or its backend was missing.
+any moment loses only the tasks in flight. ``Store.why_run`` decides what the next sweep runs: a
+task not stored yet; every task with ``rerun``; a stored result of another backend version; a task
+that failed or crashed (a fault from outside -- a killed process, a lost worker -- is worth another
+try; ``keep_failures`` makes failures final); a task that timed out / ran out of memory under a
+smaller limit than the one now given. Ok and unsupported results are kept.
+
+One sweep writes a store at a time: ``Store.writer_lock`` holds an exclusive ``flock`` on the file
+``<store>.lock`` for the sweep's duration (the operating system releases it when the process dies,
+however it dies), and a second sweep is refused with the first one's host and process id. Runs left
+"running" by a process killed without cleanup are marked ``interrupted`` whenever the store is opened
+while no sweep holds the lock. (``flock`` is reliable on local file systems; on a network file
+system keep one coordinator per store.)
+
+A file that is not a readable store (truncated, garbled, another program's database) is refused
+when it is opened with one line naming it and what to do (``DamagedStore``).
 
 Default path: ``$TRAPBENCH_STORE`` or ``./trapbench-results/results.sqlite``.
 """
 
 from __future__ import annotations
 
+import contextlib
 import datetime as _dt
+import fcntl
 import json
 import os
+import platform
 import sqlite3
 from pathlib import Path
 from typing import Any
 
-from .runner import MISSING_BACKEND, OK, OUT_OF_MEMORY, TIMEOUT, Outcome
+from ..problems.errors import SpecError
+from .executor import CRASHED, FAILED, OK, OUT_OF_MEMORY, TIMEOUT, Outcome
 from .suite import Task
 
 DEFAULT_STORE = Path("trapbench-results") / "results.sqlite"
 SCHEMA_VERSION = 1
+# Statuses retried by the next sweep unless failures are kept final; "missing-backend" is what
+# stores written before suites refused unknown backends at load time hold for those tasks.
+RETRIED_STATUSES = (FAILED, CRASHED, "missing-backend")
+INTERRUPTED = "interrupted"
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
@@ -81,6 +101,22 @@ def _now() -> str:
     return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
 
 
+class DamagedStore(SpecError):
+    """The store file cannot be read as a trapbench results store."""
+
+    def __init__(self, path: Path, detail: str):
+        super().__init__(str(path), f"not a readable trapbench results store ({detail}); restore it from a backup,"
+                                    " delete it to start afresh, or give another --store")
+
+
+class StoreBusy(SpecError):
+    """Another sweep holds the store's writer lock."""
+
+    def __init__(self, path: Path, holder: str):
+        super().__init__(str(path), f"another sweep is writing this store ({holder or 'holder unknown'}); wait for it"
+                                    " to finish, or give another --store")
+
+
 def params_text(params: dict | None) -> str:
     """A short readable form of a parameter set, e.g. ``chi=64, spacing=0.1`` (``defaults`` when empty)."""
     return ", ".join(f"{k}={v}" for k, v in sorted((params or {}).items())) or "defaults"
@@ -96,15 +132,31 @@ class Store:
     # ------------------------------------------------------------------ opening
     @classmethod
     def open(cls, path: str | Path | None = None) -> Store:
+        """Open (or create) the store at ``path``; DamagedStore when the file is not a readable store."""
         path = Path(path) if path is not None else default_store_path()
+        if path.is_dir():
+            raise DamagedStore(path, "it is a folder; give a file name such as results.sqlite")
         path.parent.mkdir(parents=True, exist_ok=True)
-        connection = sqlite3.connect(str(path), timeout=30, isolation_level=None)
-        connection.row_factory = sqlite3.Row
-        connection.execute("PRAGMA journal_mode=WAL")
-        connection.execute("PRAGMA synchronous=NORMAL")
-        connection.executescript(_SCHEMA)
-        connection.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
-        return cls(connection, path)
+        try:
+            connection = sqlite3.connect(str(path), timeout=30, isolation_level=None)
+            connection.row_factory = sqlite3.Row
+            connection.execute("PRAGMA journal_mode=WAL")
+            connection.execute("PRAGMA synchronous=NORMAL")
+            # quick_check reads every page, so truncation or garbage is found here, not halfway through a sweep
+            problems = [row[0] for row in connection.execute("PRAGMA quick_check")]
+            if problems != ["ok"]:
+                raise sqlite3.DatabaseError("integrity check: " + "; ".join(problems[:2]))
+            connection.executescript(_SCHEMA)
+            columns = {row["name"] for row in connection.execute("PRAGMA table_info(tasks)")}
+            if not set(TASK_COLUMNS) <= columns:
+                raise sqlite3.DatabaseError("its 'tasks' table lacks trapbench's columns")
+            connection.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
+        except sqlite3.DatabaseError as exc:
+            raise DamagedStore(path, f"sqlite: {exc}") from None
+        store = cls(connection, path)
+        with contextlib.suppress(StoreBusy), store.writer_lock():
+            pass  # taking the lock marks runs orphaned by a killed sweep as interrupted
+        return store
 
     def close(self) -> None:
         self.connection.close()
@@ -114,6 +166,32 @@ class Store:
 
     def __exit__(self, *exc: Any) -> None:
         self.close()
+
+    # ------------------------------------------------------------------ writer lock
+    @contextlib.contextmanager
+    def writer_lock(self):
+        """Hold the store's exclusive writer lock (StoreBusy when another process has it); see the module docstring."""
+        lock_path = self.path.with_name(self.path.name + ".lock")
+        handle = open(lock_path, "a+", encoding="utf-8")
+        try:
+            try:
+                fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except BlockingIOError:
+                handle.seek(0)
+                raise StoreBusy(self.path, handle.read().strip()) from None
+            handle.seek(0)
+            handle.truncate()
+            handle.write(f"pid {os.getpid()} on {platform.node()} since {_now()}")
+            handle.flush()
+            self._mark_orphaned_runs()
+            yield
+        finally:
+            handle.close()  # closing the descriptor releases the lock
+
+    def _mark_orphaned_runs(self) -> None:
+        """Runs still "running" while nobody holds the lock belong to a process that died: say so."""
+        with self.connection:
+            self.connection.execute("UPDATE runs SET status=? WHERE status='running'", (INTERRUPTED,))
 
     # ------------------------------------------------------------------ runs
     def begin_run(self, suite: str, command: str, tasks_planned: int) -> int:
@@ -149,23 +227,34 @@ class Store:
             "SELECT status, timeout_s, memory_mib, backend_version FROM tasks WHERE task_key=?", (key,)
         ).fetchone()
 
-    def needs_run(self, task: Task, rerun: bool = False, backend_version: str | None = None) -> bool:
-        """True unless ``task`` is already stored with an outcome that more of the same cannot change.
-
-        A stored result of another version of the backend than ``backend_version`` is stale.
-        """
-        if rerun:
-            return True
+    def why_run(self, task: Task, rerun: bool = False, backend_version: str | None = None,
+                keep_failures: bool = False) -> str | None:
+        """Why ``task`` must run now (``"new"``, ``"rerun"``, ``"stale version"``, ``"retry after <status>"``,
+        ``"larger limit after <status>"``), or None when its stored outcome stands; see the module docstring."""
         row = self.stored(task.key)
-        if row is None or row["status"] == MISSING_BACKEND:
-            return True
+        if row is None:
+            return "new"
+        if rerun:
+            return "rerun"
         if backend_version is not None and row["backend_version"] not in (None, backend_version):
-            return True
-        if row["status"] == TIMEOUT:
-            return task.timeout_s > (row["timeout_s"] or 0)
-        if row["status"] == OUT_OF_MEMORY:
-            return task.memory_mib > (row["memory_mib"] or 0)
-        return False
+            return "stale version"
+        status = row["status"]
+        if status in RETRIED_STATUSES and not keep_failures:
+            return f"retry after {status}"
+        if status == TIMEOUT and task.timeout_s > (row["timeout_s"] or 0):
+            return f"larger limit after {status}"
+        if status == OUT_OF_MEMORY and task.memory_mib > (row["memory_mib"] or 0):
+            return f"larger limit after {status}"
+        return None
+
+    def statuses(self, keys: list[str]) -> dict[str, str]:
+        """Stored status of each of ``keys`` that is in the store."""
+        found = {}
+        for start in range(0, len(keys), 500):  # SQLite caps the number of bound parameters
+            chunk = keys[start:start + 500]
+            query = f"SELECT task_key, status FROM tasks WHERE task_key IN ({','.join('?' for _ in chunk)})"
+            found.update({row["task_key"]: row["status"] for row in self.connection.execute(query, chunk)})
+        return found
 
     def record(self, run_id: int, suite: str, task: Task, outcome: Outcome, backend_version: str | None = None) -> None:
         """Store one task's outcome in its own transaction (replacing an earlier one)."""
@@ -240,28 +329,39 @@ class Store:
         return frame.reset_index(drop=True)
 
     def results_frame(self, suite: str | None = None, keys: list[str] | None = None):
-        """Tidy rows: one per task and state, with ``energy``, ``energy_error`` and the task's columns.
+        """Tidy rows: one per task and state, from ``Result.to_rows`` joined with the task's columns.
 
-        Tasks that did not succeed give one row with ``state`` = -1 and no energy, so that failures
-        stay visible in every table built on this frame. Scalars become ``scalar.<name>`` columns
-        (state 0).
+        Each row holds the level's ``energy``, ``energy_error`` and labels (``parity``, ``com``,
+        ``degeneracy``), the solve's ``solve_wall_s``/``solve_cpu_s``, the task process's
+        ``wall_time_s``/``cpu_time_s`` and every other task column, plus ``params_text``. Tasks that
+        did not succeed give one row with ``state`` = -1 and no energy, so that failures stay
+        visible in every table built on this frame. Scalars become ``scalar.<name>`` columns (state 0).
+        Observables stay in the store (``result(task_key)``): the frame is read without them.
         """
         import pandas as pd
 
+        from ..backends.result import Result
+
         tasks = self.tasks_frame(suite, keys)
+        # json_remove drops the observable arrays inside SQLite: the rows need none of them
+        light = dict(self.connection.execute(
+            "SELECT task_key, json_remove(result, '$.observables', '$.diagnostics') FROM tasks WHERE result IS NOT NULL"
+        ).fetchall())
         rows = []
         for record in tasks.to_dict("records"):
-            energies = record.pop("energies") or []
-            errors = record.pop("energy_errors") or []
             scalars = record.pop("scalars") or {}
+            record.pop("energies"), record.pop("energy_errors")
             record["params_text"] = params_text(record["params"])
-            if not energies:
+            stored = light.get(record["task_key"]) if record["status"] == OK else None
+            levels = Result.from_json_dict({**json.loads(stored), "observables": {}}).to_rows() if stored else []
+            if not levels:
                 rows.append({**record, "state": -1, "energy": None, "energy_error": None})
                 continue
-            for state, energy in enumerate(energies):
-                row = {**record, "state": state, "energy": energy,
-                       "energy_error": errors[state] if state < len(errors) else None}
-                if state == 0:
+            for level in levels:
+                # to_rows times the solve alone; the task's own columns keep the task process's times
+                level["solve_wall_s"], level["solve_cpu_s"] = level.pop("wall_time_s"), level.pop("cpu_time_s")
+                row = {**record, **level}
+                if level["state"] == 0:
                     row.update({f"scalar.{k}": v for k, v in scalars.items()})
                 rows.append(row)
         return pd.DataFrame(rows)

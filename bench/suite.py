@@ -30,13 +30,18 @@ A suite is a TOML file (built-in ones live in ``trapbench/problems/suites``)::
     timeout = 60               # optional per-backend limits
     memory = 1024
 
-Every malformed field raises ``SpecError`` naming it (e.g. ``backends[1].ladder[0].spacing``).
-Parameters of installed backends are validated against ``backend.parameters`` when the suite is
-loaded; a backend that is not installed is kept and its tasks are recorded as missing, never fatal.
+Every malformed field raises ``SpecError`` naming it (e.g. ``backends[1].ladder[0].spacing``), when
+the suite is loaded, before anything runs: a backend name that is not installed (with the closest
+installed name), and every parameter set of every rung against the backend's declared
+``parameters`` and against what it accepts for each of its problems. A rung is out of range when
+the backend admits a problem under its default parameters but refuses it under the rung's; a
+problem the backend refuses whatever the parameters stays in the suite and is recorded as
+``unsupported`` when it runs.
 """
 
 from __future__ import annotations
 
+import difflib
 import hashlib
 import itertools
 import json
@@ -285,24 +290,52 @@ def _validate_params(backend: Any, params: dict, where: str) -> None:
         raise SpecError(f"{where}.{name}", exc.reason) from None
 
 
-def _installed_backend(name: str):
+def _admits(backend: Any, problem: Problem, params: dict) -> tuple[bool, str]:
+    """(yes, reason) of ``backend.admits`` (declared capabilities and ``supports`` with parameters)."""
+    try:
+        support = backend.admits(problem, params)
+    except SpecError as exc:
+        return False, str(exc)
+    return bool(support), getattr(support, "reason", "")
+
+
+def _check_rungs(backend: Any, sets: list[tuple[dict, str]], points: list[tuple[str, Problem]]) -> None:
+    """Refuse a parameter set under which the backend declines a problem it admits with its defaults."""
+    if not hasattr(backend, "admits"):
+        return
+    for pname, point in points:
+        if not _admits(backend, point, {})[0]:
+            continue  # refused whatever the parameters: recorded as unsupported when it runs
+        for params, set_where in sets:
+            accepted, reason = _admits(backend, point, params)
+            if not accepted:
+                raise SpecError(set_where, f"outside the range of backend '{backend.name}' for problem '{pname}'"
+                                           f" (g={point.coupling:g}): {reason}")
+
+
+def _installed_backend(name: str, where: str):
+    """The backend called ``name``; SpecError naming the field when it is unknown or cannot be imported."""
     from ..backends import registry
 
     try:
         return registry.get(name)
     except registry.UnknownBackend:
-        return None
-    except ImportError:
-        return None
+        installed = registry.names()
+        close = difflib.get_close_matches(name, installed, n=1, cutoff=0.4)
+        hint = f"did you mean '{close[0]}'?" if close else "installed: " + ", ".join(installed)
+        raise SpecError(where, f"no backend named {show(name)}; {hint} (see `trapbench backends`)") from None
+    except ImportError as exc:
+        raise SpecError(where, f"backend '{name}' cannot be imported here ({exc}); install its dependencies") from None
 
 
-def _backend_plan(data: Any, where: str, problem_names: list[str], defaults: tuple[float, float]) -> BackendPlan:
+def _backend_plan(data: Any, where: str, problems: list[SuiteProblem], defaults: tuple[float, float]) -> BackendPlan:
     if not isinstance(data, Mapping):
         raise SpecError(where, f"got {show(data)}; give a table with at least 'name'")
     reject_unknown_keys(data, BACKEND_KEYS, where)
     name = data.get("name")
     if not isinstance(name, str) or not name.strip():
         raise SpecError(f"{where}.name", f"got {show(name)}; give a backend name (see `trapbench backends`)")
+    problem_names = [p.name for p in problems]
     chosen = data.get("problems", problem_names)
     if not isinstance(chosen, list) or not chosen:
         raise SpecError(f"{where}.problems", f"got {show(chosen)}; give a non-empty list of problem names")
@@ -310,10 +343,11 @@ def _backend_plan(data: Any, where: str, problem_names: list[str], defaults: tup
         if pname not in problem_names:
             raise SpecError(f"{where}.problems[{i}]", f"no problem named {show(pname)} in this suite")
     sets = _param_sets(data, where)
-    backend = _installed_backend(name)
-    if backend is not None:
-        for params, set_where in sets:
-            _validate_params(backend, params, set_where)
+    backend = _installed_backend(name, f"{where}.name")
+    for params, set_where in sets:
+        _validate_params(backend, params, set_where)
+    by_name = {p.name: p.problem for p in problems}
+    _check_rungs(backend, sets, [(pname, point) for pname in chosen for point in by_name[pname].points()])
     unique: dict[str, dict] = {}
     for params, _ in sets:
         unique.setdefault(canonical_params(params), params)
@@ -345,8 +379,7 @@ def suite_from_dict(data: Any, source: str = "<suite>") -> Suite:
     raw_backends = data.get("backends")
     if not isinstance(raw_backends, list) or not raw_backends:
         raise SpecError("backends", "missing or empty; give at least one [[backends]] table")
-    names = [p.name for p in problems]
-    plans = tuple(_backend_plan(b, f"backends[{i}]", names, (timeout, memory)) for i, b in enumerate(raw_backends))
+    plans = tuple(_backend_plan(b, f"backends[{i}]", problems, (timeout, memory)) for i, b in enumerate(raw_backends))
     tolerances = _tolerances(data.get("tolerances", {}), "tolerances")
     return Suite(name, description, tuple(problems), plans, tolerances, source)
 

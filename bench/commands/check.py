@@ -21,6 +21,8 @@ def register(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--no-run", action="store_true",
                         help="compare what the store already holds instead of recomputing the suite")
     parser.add_argument("--all", action="store_true", help="show every compared value, not only the differences")
+    parser.add_argument("--allow-new", action="store_true",
+                        help="tasks of the suite that the baseline does not cover are expected (default: they fail the gate)")
     add_store_argument(parser)
     add_execution_arguments(parser)
 
@@ -41,6 +43,8 @@ def run(args: argparse.Namespace) -> int:
         print(report.summary(), file=sys.stderr)
         if report.interrupted:
             return 130
+        if report.stalled:
+            return 1
         keys = report.task_keys
     with Store.open(args.store) as store:
         tasks = store.tasks_frame(keys=keys)
@@ -48,6 +52,6 @@ def run(args: argparse.Namespace) -> int:
         path = write_baseline(args.baseline, baseline_from_tasks(tasks, suite.name, suite.tolerance_table))
         print(f"baseline written: {path} ({len(tasks)} tasks)")
         return 0
-    result = check_against(tasks, args.baseline, suite)
+    result = check_against(tasks, args.baseline, suite, args.allow_new)
     print(result.report(everything=args.all))
     return 0 if result.passed else 1

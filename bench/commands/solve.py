@@ -7,8 +7,9 @@ import json
 import sys
 
 from ...backends import registry
-from ...backends.base import SolverError, Unsupported
+from ...backends.base import Unsupported, support_of
 from ...problems.errors import SpecError
+from ..executor import UNSUPPORTED, Limits, execute
 from .problem_options import add_problem_options, parse_params, problem_from_args
 
 NAME = "solve"
@@ -28,9 +29,10 @@ def register(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument("--json", action="store_true", help="print the result(s) as JSON instead of a table")
     parser.add_argument("--output", "-o", metavar="FILE", help="also write the results as JSON to FILE")
+    parser.add_argument("--blas-threads", type=int, default=1, metavar="N", help="BLAS/OpenMP threads (default 1)")
 
 
-def _split_params(pairs: list[str] | None, backends: list[str]) -> dict[str, dict[str, str]]:
+def split_backend_params(pairs: list[str] | None, backends: list[str]) -> dict[str, dict[str, str]]:
     per_backend: dict[str, dict[str, str]] = {name: {} for name in backends}
     for pair in pairs or []:
         prefix, sep, rest = pair.partition(":")
@@ -56,19 +58,26 @@ def run(args: argparse.Namespace) -> int:
         names = [n for item in args.backend for n in item.split(",") if n]
         backends = [registry.get(n) for n in names]
     else:
-        backends = [b for b in registry.all_backends() if all(b.supports(p) for p in problem.points())]
+        backends = [b for b in registry.all_backends() if all(support_of(b, p) for p in problem.points())]
         if not backends:
             raise Unsupported("no installed backend supports this problem; see 'trapbench backends' with it")
-    params = _split_params(args.param, [b.name for b in backends])
+    params = split_backend_params(args.param, [b.name for b in backends])
+    if args.blas_threads < 1:
+        raise SpecError("--blas-threads", f"got {args.blas_threads}; give 1 or more")
+    for backend in backends:  # bad parameters are the user's input: refused before anything runs
+        if hasattr(backend, "resolve_params"):
+            backend.resolve_params(params[backend.name])
     results, failures = [], []
+    limits = Limits(blas_threads=args.blas_threads)
     for backend in backends:
         for point in problem.points():
-            try:
-                results.append(backend.solve(point, **params[backend.name]))
-            except (SolverError, Unsupported, ArithmeticError, MemoryError) as exc:
-                if args.backend and isinstance(exc, Unsupported):
-                    raise
-                failures.append((backend.name, point.coupling, f"{exc.__class__.__name__}: {exc}"))
+            outcome = execute(backend, point, params[backend.name], limits=limits)
+            if outcome.ok:
+                results.append(outcome.solved())
+            elif outcome.status == UNSUPPORTED and args.backend:
+                raise Unsupported(outcome.error)
+            else:
+                failures.append((backend.name, point.coupling, outcome.error.splitlines()[0]))
     documents = [r.to_json_dict() for r in results]
     if args.output:
         with open(args.output, "w", encoding="utf-8") as handle:
