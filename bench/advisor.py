@@ -1,24 +1,29 @@
 """Which backend, with which parameters, reaches a given accuracy most cheaply for a given problem?
 
 ``advise(frame, query)`` answers from stored measurements (``Store.results_frame()``); it never
-runs a solver. For every backend it looks for measured ground-state energies whose relative error
-(against a reference when one exists, else the backend's own error bar; see ``tables``) is at most
-the requested accuracy, in this order of evidence:
+runs a solver. For every backend it looks for measured ground-state energies that reached the
+requested relative error by the rule of ``bench.verdicts`` (against a reference at least ten
+times tighter than the accuracy; a result vouched for only by its own error bar is unverified and
+never counts), in this order of evidence:
 
-1. ``measured``: the same problem (particle numbers, masses, g) -> confidence high when the error
-   was checked against a reference, medium when only the backend's own error bar vouches for it;
+1. ``measured``: the same problem (particle numbers, masses, g) -> confidence high;
 2. ``nearby g``: the same particle numbers and masses at the closest measured g -> medium when
    |g - g_measured| <= 0.5 + 0.25 |g|, else low (accuracy at fixed parameters usually degrades as
    |g| grows, so the parameters may not carry over);
-3. ``extrapolated``: other particle numbers -> a cost model fitted to the cheapest qualifying run
-   at each measured N (least squares on log cost: exponential a b^N, and a power law a N^p when at
-   least three N are measured; the one with the smaller residual is used) predicts the cost at the
-   requested N; confidence low, and the parameters are those that sufficed at the largest measured
-   N (a larger N usually needs more).
+3. ``extrapolated``: other particle numbers with the same masses -> a cost model fitted to the
+   cheapest qualifying run at each measured N (least squares on log cost,
+   ``extrapolation.fit_line``: exponential a b^N, and a power law a N^p when at least three N are
+   measured; the one with the smaller residual is used) predicts the cost at the requested N;
+   confidence low, and the parameters are those that sufficed at the largest measured N (a larger
+   N usually needs more). Measurements at other masses are not carried over: a mass imbalance can
+   change what converges (a bound trimer, a heavy pair).
 
-A backend is "reliable" unless some of its results that carry an error bar missed their reference
-by more than that bar; unreliable backends rank after reliable ones whatever their cost. Installed
-backends are asked ``supports(problem)`` first and drop out with their reason.
+A backend is "reliable" unless its error bars are flagged by ``verdicts.error_bar_calibration``
+(|E - ref| within 2 error bars in fewer than 95 % of the reference-checked results, at the
+requested N when it was checked there, else over every N); unreliable backends rank after
+reliable ones whatever their cost. Installed backends are asked ``admits(problem)`` first and
+drop out with their reason. Backends whose results could only be unverified are listed with their
+own error bars among the rejected, so the user sees what a reference would have to confirm.
 """
 
 from __future__ import annotations
@@ -29,7 +34,9 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ..backends.extrapolation import fit_line
 from .tables import attach_references, successful_ground_states
+from .verdicts import COVERAGE_TARGET, REACHED, UNVERIFIED, error_bar_calibration, judge_frame
 
 CONFIDENCE_RANK = {"high": 0, "medium": 1, "low": 2}
 
@@ -108,26 +115,48 @@ class Advice:
 def _fit_cost(ns: np.ndarray, costs: np.ndarray, n: int) -> tuple[float, str]:
     """Predicted cost at n from (ns, costs): exponential always, power law too with >= 3 points."""
     logs = np.log(np.maximum(costs, 1e-9))
-    models = []
-    slope, intercept = np.polyfit(ns, logs, 1)
-    residual = float(np.sum((logs - (intercept + slope * ns)) ** 2))
-    models.append((residual, math.exp(intercept + slope * n), f"exponential fit cost ~ {math.exp(slope):.3g}^N"))
+    exponential = fit_line(ns, logs)
+    models = [(exponential.residual, math.exp(exponential.intercept + exponential.slope * n),
+               f"exponential fit cost ~ {math.exp(exponential.slope):.3g}^N")]
     if len(ns) >= 3:
-        p, c = np.polyfit(np.log(ns), logs, 1)
-        residual_p = float(np.sum((logs - (c + p * np.log(ns))) ** 2))
-        models.append((residual_p, math.exp(c + p * math.log(n)), f"power-law fit cost ~ N^{p:.2f}"))
+        power = fit_line(np.log(ns), logs)
+        models.append((power.residual, math.exp(power.intercept + power.slope * math.log(n)),
+                       f"power-law fit cost ~ N^{power.slope:.2f}"))
     best = min(models, key=lambda m: m[0])
     return best[1], best[2]
 
 
-def _reliability(rows: pd.DataFrame) -> tuple[bool, str]:
-    checked = rows[rows["within_error_bar"].notna()]
-    if checked.empty:
-        return True, "its error bars were never checked against a reference"
-    misses = int((~checked["within_error_bar"].astype(bool)).sum())
-    if misses:
-        return False, f"{misses} of {len(checked)} reference-checked results fell outside the backend's own error bar"
-    return True, f"all {len(checked)} reference-checked results lay within the backend's own error bar"
+def _reliability(calibration: pd.DataFrame, n: int) -> tuple[bool, str]:
+    """Whether a backend's error bars cover the truth, from its rows of ``verdicts.error_bar_calibration``."""
+    table = calibration[calibration["checked"] > 0]
+    if table.empty:
+        return True, "its error bars were never checked against a tight enough reference"
+    here = table[table["N"] == n]
+    scope = f"at N = {n}" if not here.empty else "over N = " + ", ".join(str(v) for v in table["N"])
+    checked = int((here if not here.empty else table)["checked"].sum())
+    within = int((here if not here.empty else table)["within 2 sigma"].sum())
+    if within < COVERAGE_TARGET * checked:
+        return False, (f"{checked - within} of {checked} reference-checked results {scope} lay outside the backend's own"
+                       f" error bar doubled (coverage at 2 sigma {100 * within / checked:.0f} %, below"
+                       f" {100 * COVERAGE_TARGET:.0f} %)")
+    return True, f"{within} of {checked} reference-checked results {scope} lay within 2 of the backend's own error bars"
+
+
+def _why_not(rows: pd.DataFrame, status: pd.Series, good: pd.DataFrame, query: Query) -> str:
+    """Why a backend has no recommendation: unverified results, only other masses, or a best error above the target."""
+    unverified = rows[status == UNVERIFIED]
+    if not good.empty:
+        return (f"reached {query.accuracy:g} only at other masses (m_up/m_down ="
+                f" {', '.join(sorted({f'{u / d:.4g}' for u, d in zip(good['mass_up'], good['mass_down'])}))});"
+                " a mass imbalance can change what converges, so no cost is carried over")
+    if not unverified.empty:
+        own = pd.to_numeric(unverified["own_rel_error"], errors="coerce").min()
+        return (f"unverified: no reference within a tenth of {query.accuracy:g}"
+                + ("" if pd.isna(own) else f"; its own error bar claims down to {own:.2g}")
+                + " -- compare it with a tighter reference before relying on it")
+    best = pd.to_numeric(rows["accuracy"], errors="coerce").min()
+    return ("no stored run was measured against a reference" if pd.isna(best)
+            else f"best stored relative error {best:.2g} misses {query.accuracy:g}")
 
 
 def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
@@ -137,30 +166,31 @@ def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
     if "accuracy" not in frame.columns:
         frame = attach_references(frame, references)
     ok = successful_ground_states(frame)
+    calibration = error_bar_calibration(frame[(frame["status"] == "ok") & (frame["state"] >= 0)])
     problem = query.problem()
     recommendations, rejected = [], {}
     installed = set(registry.names())
     for backend, rows in ok.groupby("backend"):
         if backend in installed:
             try:
-                support = registry.get(backend).supports(problem)
+                support = registry.get(backend).admits(problem)
             except Exception as exc:  # a backend that cannot even say: leave it out, with the reason
-                rejected[backend] = f"supports() failed: {exc}"
+                rejected[backend] = f"admits() failed: {exc}"
                 continue
             if not support:
                 rejected[backend] = f"does not support this problem: {support.reason}"
                 continue
-        reliable, reliability_note = _reliability(rows)
-        good = rows[rows["accuracy"] <= query.accuracy]
-        same_species = good[(good["n_up"] == query.n_up) & (good["n_down"] == query.n_down)
-                            & np.isclose(good["mass_up"], query.mass_up) & np.isclose(good["mass_down"], query.mass_down)]
+        reliable, reliability_note = _reliability(calibration[calibration["backend"] == backend], query.n)
+        status = judge_frame(rows, query.accuracy)
+        good = rows[status == REACHED]
+        same_masses = good[np.isclose(good["mass_up"], query.mass_up) & np.isclose(good["mass_down"], query.mass_down)]
+        same_species = same_masses[(same_masses["n_up"] == query.n_up) & (same_masses["n_down"] == query.n_down)]
         exact = same_species[np.isclose(same_species["g"], query.g, rtol=1e-9, atol=1e-12)]
         reasons = [reliability_note]
         if not exact.empty:
             pick = exact.loc[exact["cost_cpu_s"].idxmin()]
-            confidence = "high" if pick["error_basis"] == "reference" else "medium"
-            reasons.insert(0, f"measured on this very problem: relative error {pick['accuracy']:.2g}"
-                              f" ({pick['error_basis']})")
+            confidence = "high"
+            reasons.insert(0, f"measured on this very problem: relative error {pick['accuracy']:.2g} against a reference")
             evidence, cpu, peak = "measured", pick["cost_cpu_s"], pick["peak_mib"]
         elif not same_species.empty:
             distance = (same_species["g"] - query.g).abs()
@@ -171,9 +201,9 @@ def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
             reasons.insert(0, f"measured at the nearest g = {pick['g']:g} (relative error {pick['accuracy']:.2g});"
                               " accuracy at fixed parameters usually worsens as |g| grows")
             evidence, cpu, peak = "nearby g", pick["cost_cpu_s"], pick["peak_mib"]
-        elif not good.empty:
-            good = good.assign(n=good["n_up"] + good["n_down"])
-            cheapest = good.loc[good.groupby("n")["cost_cpu_s"].idxmin()].sort_values("n")
+        elif not same_masses.empty:
+            same_masses = same_masses.assign(n=same_masses["n_up"] + same_masses["n_down"])
+            cheapest = same_masses.loc[same_masses.groupby("n")["cost_cpu_s"].idxmin()].sort_values("n")
             ns = cheapest["n"].to_numpy(float)
             below = cheapest[cheapest["n"] <= query.n]
             pick = (below if not below.empty else cheapest).iloc[-1]
@@ -188,9 +218,7 @@ def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
                 reasons.insert(0, f"measured only at N = {int(ns[0])}; one point fixes no cost model")
             evidence, confidence = "extrapolated", "low"
         else:
-            best = rows["accuracy"].min()
-            rejected[backend] = ("no stored run reached the accuracy" if pd.isna(best)
-                                 else f"best stored relative error {best:.2g} misses {query.accuracy:g}")
+            rejected[backend] = _why_not(rows, status, good, query)
             continue
         recommendations.append(Recommendation(
             backend=backend, params=pick["params_text"], evidence=evidence, confidence=confidence,

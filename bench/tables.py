@@ -1,21 +1,22 @@
-"""Tables and plots built from the store's tidy results frame (``Store.results_frame()``).
+"""The sweep's tables, built from the store's tidy results frame (``Store.results_frame()``).
 
-Every function takes a pandas DataFrame and returns a DataFrame (or a matplotlib Figure), so that
-reports can compose them::
+Every function takes a pandas DataFrame and returns a DataFrame, so that reports can compose them::
 
     frame = attach_references(store.results_frame(), tolerance=suite.tolerance)
-    agreement_table(frame)          # each result vs its reference: abs/rel error, within tolerance, within own error bar
+    agreement_table(frame)          # each result vs its reference: abs/rel error, verdict vs tolerance, own error bar
     accuracy_vs_cost_table(frame)   # cheapest parameters reaching 1e-2 ... 1e-6 relative error, time and memory
     cost_vs_particle_number_table(frame, accuracy=1e-4)
     failures_table(frame)           # tasks that did not succeed, with their cause
-    to_markdown(table); table.to_csv(...); table.to_html(...)
-    plot_error_vs_cost(frame, "1+1 g=2")   # Figure: error vs CPU time and vs peak memory, per backend
+    error_bar_calibration(frame)    # (from verdicts) per backend and N: coverage of |E - ref| by 2 error bars
+    to_markdown(table)              # a Markdown table; format_value formats one cell
+    write_tables(frame, folder)     # all of them as .md/.csv/.html, and the error-vs-cost figures
 
 References come from ``trapbench.problems.references.references_for(problem)`` (matched on the
-physics of each single-g problem). The relative error of a result is measured against its
-reference when one exists (``error_basis`` = "reference"); otherwise the backend's own error bar
-divided by |E| stands in for it (``error_basis`` = "own estimate"), and tables say so. Cost is the
-CPU time of the solve (``solve_cpu_s``), which background load distorts less than wall time.
+physics of each single-g problem). Whether a result reaches an accuracy is decided by
+``bench.verdicts``: only against a reference at least ten times tighter than the threshold;
+otherwise the result is "unverified" and shown with its own error bar (``error_basis`` says
+which). Cost is the CPU time of the solve (``solve_cpu_s``), which background load distorts less
+than wall time.
 """
 
 from __future__ import annotations
@@ -30,8 +31,10 @@ import numpy as np
 import pandas as pd
 
 from .suite import DEFAULT_TOLERANCES, Tolerance
+from .verdicts import MISSED, REACHED, UNVERIFIED, error_bar_calibration, judge, judge_frame
 
 THRESHOLDS = (1e-2, 1e-3, 1e-4, 1e-6)
+COST_VS_N_ACCURACY = 1e-4
 # Round-off allowed on top of tolerances and error bars when comparing with a reference: a few ulps of
 # |E| (a result exactly on the edge of its bar must not fail by the last bit of a subtraction).
 ROUNDING = 8 * float(np.finfo(float).eps)
@@ -64,22 +67,26 @@ def attach_references(
 ) -> pd.DataFrame:
     """Add reference and error columns to a results frame (one row per task and state).
 
-    Added: ``ref_value``, ``ref_uncertainty``, ``ref_source``, ``ref_kind``, ``abs_error``,
-    ``rel_error`` (vs the reference), ``allowed`` (tolerance abs + rel |ref|), ``within_tolerance``
-    (|E - ref| <= allowed + reference uncertainty), ``within_error_bar`` (|E - ref| <= own error bar
-    + reference uncertainty; None without a bar), both with ``ROUNDING`` |ref| of round-off slack
-    (an exact reference, uncertainty 0, counts as known to ``EXACT_EVALUATION`` |ref|),
-    ``error_bar`` (the backend's energy_error, else error_estimate), ``accuracy`` (relative error
-    used for cost tables: (|E - ref| + reference uncertainty) / |ref|, a bound on the true relative
-    error, else own error bar / |E|) and ``error_basis``.
+    Added: ``ref_value``, ``ref_uncertainty`` (as the reference states it), ``ref_source``,
+    ``ref_kind``, ``ref_effective_uncertainty`` (the stated one, at least ``EXACT_EVALUATION`` |ref|
+    for exact references, plus ``ROUNDING`` |ref| of round-off), ``abs_error`` = |E - ref|,
+    ``rel_error`` = |E - ref| / |ref|, ``ref_rel_uncertainty`` = effective uncertainty / |ref|,
+    ``error_bar`` (the backend's energy_error, else error_estimate), ``own_rel_error`` = error bar /
+    |E|, ``accuracy`` = (|E - ref| + effective uncertainty) / |ref| (a bound on the true relative
+    error; empty without a reference), ``error_basis`` ("reference" or "own estimate"),
+    ``allowed`` (tolerance abs + rel |ref|), ``tolerance_verdict`` (``verdicts.judge`` of
+    |E - ref| against ``allowed``), ``within_tolerance`` (True when reached, False when missed,
+    None when unverified) and ``within_error_bar`` (|E - ref| <= own error bar + effective
+    uncertainty; None without a bar).
     """
     references = references if references is not None else default_references()
     tolerance = tolerance or (lambda quantity, backend: DEFAULT_TOLERANCES["energy"])
     frame = frame.copy()
     cache: dict[str, list] = {}
     added: dict[str, list] = {k: [] for k in (
-        "ref_value", "ref_uncertainty", "ref_source", "ref_kind", "abs_error", "rel_error", "allowed",
-        "within_tolerance", "within_error_bar", "error_bar", "accuracy", "error_basis")}
+        "ref_value", "ref_uncertainty", "ref_source", "ref_kind", "ref_effective_uncertainty", "abs_error",
+        "rel_error", "ref_rel_uncertainty", "error_bar", "own_rel_error", "accuracy", "error_basis", "allowed",
+        "tolerance_verdict", "within_tolerance", "within_error_bar")}
     for row in frame.to_dict("records"):
         energy, state = row.get("energy"), int(row.get("state", -1))
         ref = None
@@ -97,23 +104,23 @@ def attach_references(
         bar = None if _missing(bar) else float(bar)
         values: dict[str, Any] = dict.fromkeys(added)
         values["error_bar"] = bar
+        if bar is not None and energy is not None and not _missing(energy) and energy:
+            values["own_rel_error"] = bar / abs(float(energy))
         if ref is not None:
             diff = abs(float(energy) - ref.value)
+            scale = abs(ref.value) or 1.0
             allowed = tolerance("energy", row.get("backend")).allowed(ref.value)
-            uncertainty = ref.uncertainty if ref.uncertainty > 0 else EXACT_EVALUATION * abs(ref.value)
-            slack = uncertainty + ROUNDING * abs(ref.value)
+            uncertainty = max(ref.uncertainty, EXACT_EVALUATION * abs(ref.value)) + ROUNDING * abs(ref.value)
+            verdict = judge(diff, uncertainty, bar, allowed)
             values.update(
                 ref_value=ref.value, ref_uncertainty=ref.uncertainty, ref_source=ref.source, ref_kind=ref.kind,
-                abs_error=diff, rel_error=diff / abs(ref.value) if ref.value else diff, allowed=allowed,
-                within_tolerance=diff <= allowed + slack,
-                within_error_bar=None if bar is None else diff <= bar + slack,
+                ref_effective_uncertainty=uncertainty, abs_error=diff, rel_error=diff / scale,
+                ref_rel_uncertainty=uncertainty / scale, accuracy=(diff + uncertainty) / scale, error_basis="reference",
+                allowed=allowed, tolerance_verdict=verdict.status,
+                within_tolerance=None if verdict.status == UNVERIFIED else verdict.reached,
+                within_error_bar=None if bar is None else diff <= bar + uncertainty,
             )
-            # the true error is bounded by the distance to the reference plus the reference's own uncertainty
-            bound = diff + uncertainty
-            values["accuracy"] = bound / abs(ref.value) if ref.value else bound
-            values["error_basis"] = "reference"
-        elif bar is not None and energy is not None and not _missing(energy):
-            values["accuracy"] = bar / abs(float(energy)) if energy else bar
+        elif bar is not None:
             values["error_basis"] = "own estimate"
         for k, v in values.items():
             added[k].append(v)
@@ -139,7 +146,9 @@ def successful_ground_states(frame: pd.DataFrame, state: int = 0) -> pd.DataFram
     return ok
 
 
-_ok = successful_ground_states  # the name bench/report.py imports
+def ranking_error(frame: pd.DataFrame) -> pd.Series:
+    """The error to rank runs by (not a verdict): the measured bound where a reference exists, else the own error bar."""
+    return pd.to_numeric(frame["accuracy"], errors="coerce").fillna(pd.to_numeric(frame["own_rel_error"], errors="coerce"))
 
 
 # ----------------------------------------------------------------------------- tables
@@ -149,59 +158,80 @@ def agreement_table(frame: pd.DataFrame) -> pd.DataFrame:
     """Each successful result next to its reference (rows without a reference keep empty cells)."""
     ok = frame[frame["status"] == "ok"]
     columns = ["problem_name", "g", "backend", "params_text", "state", "energy", "error_bar", "ref_value",
-               "ref_uncertainty", "abs_error", "rel_error", "allowed", "within_tolerance", "within_error_bar",
-               "ref_kind", "ref_source"]
+               "ref_uncertainty", "abs_error", "rel_error", "allowed", "tolerance_verdict", "within_tolerance",
+               "within_error_bar", "ref_kind", "ref_source"]
     return ok[columns].rename(columns={"params_text": "params"}).reset_index(drop=True)
 
 
+ACCURACY_VS_COST_COLUMNS = ["problem_name", "g", "backend", "target", "verdict", "params", "accuracy", "own_error",
+                            "ref_rel_uncertainty", "error_basis", "cpu_s", "wall_s", "peak_mib"]
+
+
+def _best_or_none(values: pd.Series):
+    values = pd.to_numeric(values, errors="coerce").dropna()
+    return None if values.empty else float(values.min())
+
+
 def accuracy_vs_cost_table(frame: pd.DataFrame, thresholds: Iterable[float] = THRESHOLDS) -> pd.DataFrame:
-    """For each problem (and g) and backend, the cheapest parameters whose ground-state error is below each threshold."""
+    """For each problem (and g), backend and threshold: the cheapest run that reached it (``verdicts.judge_frame``).
+
+    When none reached it, the row says why: "unverified" (no reference ten times tighter than the
+    threshold; ``own_error`` is the best own error bar), "not reached" (``accuracy`` the best
+    measured bound) or "no error measure".
+    """
     ok = successful_ground_states(frame)
     rows = []
     for (name, g, backend), group in ok.groupby(["problem_name", "g", "backend"], sort=False):
-        measured = group[group["accuracy"].notna()]
         for threshold in thresholds:
-            reached = measured[measured["accuracy"] <= threshold]
-            row = {"problem_name": name, "g": g, "backend": backend, "target": threshold}
-            if measured.empty:
-                row.update(params="no error measure (no reference, no error bar)", accuracy=None, error_basis=None,
-                           cpu_s=None, wall_s=None, peak_mib=None)
-            elif reached.empty:
-                row.update(params="not reached", accuracy=measured["accuracy"].min(), error_basis=None, cpu_s=None,
-                           wall_s=None, peak_mib=None)
-            else:
+            status = judge_frame(group, threshold)
+            row = {"problem_name": name, "g": g, "backend": backend, "target": threshold,
+                   "accuracy": _best_or_none(group["accuracy"]), "own_error": _best_or_none(group["own_rel_error"]),
+                   "ref_rel_uncertainty": _best_or_none(group["ref_rel_uncertainty"])}
+            if (status == REACHED).any():
+                reached = group[status == REACHED]
                 pick = reached.loc[reached["cost_cpu_s"].idxmin()]
-                row.update(params=pick["params_text"], accuracy=pick["accuracy"], error_basis=pick["error_basis"],
-                           cpu_s=pick["cost_cpu_s"], wall_s=pick["solve_wall_s"], peak_mib=pick["peak_mib"])
+                row.update(verdict=REACHED, params=pick["params_text"], accuracy=pick["accuracy"],
+                           own_error=pick["own_rel_error"], error_basis=pick["error_basis"], cpu_s=pick["cost_cpu_s"],
+                           wall_s=pick["solve_wall_s"], peak_mib=pick["peak_mib"])
+            elif (status == UNVERIFIED).any():
+                row.update(verdict=UNVERIFIED, params="unverified: no reference within a tenth of the target")
+            elif (status == MISSED).any():
+                row.update(verdict=MISSED, params="not reached")
+            else:
+                row.update(verdict="no measure", params="no error measure (no reference, no error bar)")
             rows.append(row)
-    return pd.DataFrame(rows, columns=["problem_name", "g", "backend", "target", "params", "accuracy",
-                                       "error_basis", "cpu_s", "wall_s", "peak_mib"])
+    return pd.DataFrame(rows, columns=ACCURACY_VS_COST_COLUMNS)
 
 
-def cost_vs_particle_number_table(frame: pd.DataFrame, accuracy: float = 1e-4) -> pd.DataFrame:
+def cost_vs_particle_number_table(frame: pd.DataFrame, accuracy: float = COST_VS_N_ACCURACY) -> pd.DataFrame:
     """Per backend and particle number N: the cheapest cost reaching ``accuracy``, over the problems with that N.
 
-    ``cpu_s`` is the largest over problems of each problem's cheapest qualifying run (the cost to
-    expect for any of them), ``peak_mib`` likewise; ``problems_reached`` counts how many of the
-    measured problems with that N reached the accuracy at all.
+    ``cpu_s`` is the largest over problems of each problem's cheapest run that reached the accuracy
+    (``verdicts``; the cost to expect for any of them), ``peak_mib`` likewise; ``problems_reached``
+    counts how many of the measured problems with that N reached it, ``problems_unverified`` how
+    many could not be judged (no reference ten times tighter than ``accuracy``).
     """
     ok = successful_ground_states(frame)
     ok["n"] = ok["n_up"] + ok["n_down"]
+    ok["verdict"] = judge_frame(ok, accuracy)
     rows = []
     for (backend, n), group in ok.groupby(["backend", "n"]):
-        costs, peaks, reached, total = [], [], 0, 0
-        for _, problem_rows in group.groupby(["problem_key"]):
+        costs, peaks, reached, unverified, total = [], [], 0, 0, 0
+        for _, problem_rows in group.groupby("problem_key"):
             total += 1
-            good = problem_rows[problem_rows["accuracy"] <= accuracy]
+            good = problem_rows[problem_rows["verdict"] == REACHED]
             if good.empty:
+                unverified += int((problem_rows["verdict"] == UNVERIFIED).any())
                 continue
             reached += 1
             pick = good.loc[good["cost_cpu_s"].idxmin()]
             costs.append(pick["cost_cpu_s"])
             peaks.append(pick["peak_mib"])
         rows.append({"backend": backend, "n": int(n), "accuracy": accuracy, "problems_reached": f"{reached}/{total}",
+                     "problems_unverified": f"{unverified}/{total}",
                      "cpu_s": max(costs) if costs else None, "peak_mib": max(peaks) if peaks else None})
-    return pd.DataFrame(rows, columns=["backend", "n", "accuracy", "problems_reached", "cpu_s", "peak_mib"])
+    return pd.DataFrame(rows, columns=["backend", "n", "accuracy", "problems_reached", "problems_unverified", "cpu_s",
+                                       "peak_mib"])
 
 
 def failures_table(frame: pd.DataFrame) -> pd.DataFrame:
@@ -251,6 +281,7 @@ def suite_tables(frame: pd.DataFrame, suite=None, references: Callable | None = 
         "agreement": agreement_table(frame),
         "accuracy_vs_cost": accuracy_vs_cost_table(frame),
         "cost_vs_n": cost_vs_particle_number_table(frame),
+        "calibration": error_bar_calibration(frame[frame["status"] == "ok"]),
         "failures": failures_table(frame),
     }
 
@@ -258,7 +289,8 @@ def suite_tables(frame: pd.DataFrame, suite=None, references: Callable | None = 
 TITLES = {
     "agreement": "Agreement with reference values",
     "accuracy_vs_cost": "Accuracy against cost (cheapest parameters reaching each relative error)",
-    "cost_vs_n": "Cost against particle number (relative error 1e-4)",
+    "cost_vs_n": f"Cost against particle number (relative error {COST_VS_N_ACCURACY:g})",
+    "calibration": "Error-bar calibration (share of |E - ref| within 2 error bars)",
     "failures": "Tasks that did not succeed",
 }
 
@@ -266,7 +298,8 @@ TITLES = {
 def accuracy_vs_cost_summary(table: pd.DataFrame) -> pd.DataFrame:
     """The accuracy-vs-cost table folded to one row per problem and backend, one column per target.
 
-    Each cell reads ``params; CPU s; MiB`` for the cheapest run reaching that relative error.
+    Each cell reads ``params; CPU s; MiB`` for the cheapest run reaching that relative error, else
+    why none did ("unverified (own error bar x)", "not reached (best x)").
     """
     if table.empty:
         return pd.DataFrame(columns=["problem_name", "g", "backend"])
@@ -274,11 +307,15 @@ def accuracy_vs_cost_summary(table: pd.DataFrame) -> pd.DataFrame:
     for (name, g, backend), group in table.groupby(["problem_name", "g", "backend"], sort=False):
         row = {"problem_name": name, "g": g, "backend": backend}
         for record in group.to_dict("records"):
-            if record["cpu_s"] is None or pd.isna(record["cpu_s"]):
-                cell = record["params"] if record["accuracy"] is None or pd.isna(record["accuracy"]) else (
-                    f"{record['params']} (best {record['accuracy']:.2g})")
-            else:
+            if record["verdict"] == REACHED:
                 cell = f"{record['params']}; {record['cpu_s']:.3g} s; {record['peak_mib']:.0f} MiB"
+            elif record["verdict"] == UNVERIFIED:
+                own = record["own_error"]
+                cell = "unverified" + ("" if own is None or pd.isna(own) else f" (own error bar {own:.2g})")
+            elif record["verdict"] == MISSED:
+                cell = f"not reached (best {record['accuracy']:.2g})"
+            else:
+                cell = record["params"]
             row[f"{record['target']:g}"] = cell
         rows.append(row)
     return pd.DataFrame(rows)
@@ -289,10 +326,11 @@ def agreement_with_footnotes(table: pd.DataFrame, ground_state_only: bool = True
     shown = table[table["ref_value"].notna()]
     if ground_state_only:
         shown = shown[shown["state"] == 0]
-    shown = shown.drop(columns=["state", "allowed", "ref_kind"]).copy()
+    shown = shown.drop(columns=["state", "allowed", "ref_kind", "within_tolerance"]).copy()
     sources = list(dict.fromkeys(shown["ref_source"]))
     shown["ref_source"] = [f"[{sources.index(s) + 1}]" for s in shown["ref_source"]]
-    return shown.rename(columns={"ref_source": "source", "ref_uncertainty": "ref_unc"}), sources
+    return shown.rename(columns={"ref_source": "source", "ref_uncertainty": "ref_unc",
+                                 "tolerance_verdict": "vs tolerance"}), sources
 
 
 def suite_tables_markdown(frame: pd.DataFrame, suite=None, references: Callable | None = None) -> str:
@@ -310,6 +348,7 @@ def suite_tables_markdown(frame: pd.DataFrame, suite=None, references: Callable 
         parts[-1] += "\n\n" + "\n".join(f"[{i + 1}] {s}" for i, s in enumerate(sources))
     parts.append(f"## {TITLES['accuracy_vs_cost']}\n\n{to_markdown(accuracy_vs_cost_summary(tables['accuracy_vs_cost']))}")
     parts.append(f"## {TITLES['cost_vs_n']}\n\n{to_markdown(tables['cost_vs_n'])}")
+    parts.append(f"## {TITLES['calibration']}\n\n{to_markdown(tables['calibration'])}")
     if not tables["failures"].empty:
         parts.append(f"## {TITLES['failures']}\n\n{to_markdown(tables['failures'])}")
     return "\n\n".join(parts) + "\n"
@@ -317,63 +356,38 @@ def suite_tables_markdown(frame: pd.DataFrame, suite=None, references: Callable 
 
 def write_tables(frame: pd.DataFrame, folder: str | Path, suite=None, references: Callable | None = None,
                  formats: Iterable[str] = ("md", "csv", "html"), plots: bool = True) -> list[Path]:
-    """Write every table in each format, and one PNG of error vs cost per problem; returns the paths."""
+    """Write every table in each format, and one PNG of error against CPU time per problem; returns the paths.
+
+    Markdown and HTML come from the report's document renderers (``report.document``), the figures
+    from ``report.figures.error_vs_cost``.
+    """
+    from .report.document import Document, Table, render_html, render_markdown
+
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     written = []
     for name, table in suite_tables(frame, suite, references).items():
+        document = Document(TITLES[name], [Table(table)])
         for fmt in formats:
             path = folder / f"{name}.{fmt}"
             if fmt == "md":
-                path.write_text(f"# {TITLES[name]}\n\n{to_markdown(table)}\n", encoding="utf-8")
+                path.write_text(render_markdown(document), encoding="utf-8")
             elif fmt == "csv":
                 table.to_csv(path, index=False)
             elif fmt == "html":
-                table.to_html(path, index=False, na_rep="")
+                path.write_text(render_html(document, folder), encoding="utf-8")
+            else:
+                from ..problems.errors import SpecError
+
+                raise SpecError("formats", f"got '{fmt}'; choose among md, csv and html")
             written.append(path)
     if plots:
+        from .report.figures import error_vs_cost, file_stem
+
         with_refs = attach_references(frame, references, suite.tolerance if suite is not None else None)
         for name in sorted(set(with_refs.loc[with_refs["status"] == "ok", "problem_name"])):
-            figure = plot_error_vs_cost(with_refs, name)
-            path = folder / f"error_vs_cost_{_slug(name)}.png"
-            figure.savefig(path, dpi=110)
+            figure = error_vs_cost.draw(error_vs_cost.select(with_refs, problem_name=name), name)
+            path = folder / f"error_vs_cost_{file_stem(name)}.png"
+            figure.savefig(path, dpi=error_vs_cost.DPI)
             written.append(path)
     return written
-
-
-def _slug(text: str) -> str:
-    return "".join(c if c.isalnum() or c in "-_" else "_" for c in text).strip("_") or "problem"
-
-
-# ----------------------------------------------------------------------------- plots
-
-
-def plot_error_vs_cost(frame: pd.DataFrame, problem_name: str):
-    """Figure: ground-state relative error against CPU time (left) and peak memory (right), per backend and g.
-
-    Errors against exact references bottom out at ``EXACT_EVALUATION`` (1e-12), their stated accuracy.
-    """
-    from matplotlib.figure import Figure
-
-    ok = successful_ground_states(frame)
-    ok = ok[(ok["problem_name"] == problem_name) & ok["accuracy"].notna()]
-    figure = Figure(figsize=(10, 4.2), layout="constrained")
-    left, right = figure.subplots(1, 2, sharey=True)
-    for (backend, g), group in ok.groupby(["backend", "g"]):
-        group = group.sort_values("cost_cpu_s")
-        accuracy = np.maximum(group["accuracy"].to_numpy(float), 1e-16)
-        label = f"{backend} (g={g:g})"
-        left.loglog(group["cost_cpu_s"].clip(lower=1e-6), accuracy, "o-", label=label)
-        right.semilogy(group["peak_mib"], accuracy, "o-", label=label)
-    from matplotlib.ticker import NullFormatter
-
-    left.xaxis.set_minor_formatter(NullFormatter())  # minor labels of a short log axis overlap
-    left.set_xlabel("CPU time of the solve [s]")
-    right.set_xlabel("peak resident memory [MiB]")
-    left.set_ylabel("relative error of the ground-state energy")
-    for axes in (left, right):
-        axes.grid(True, which="both", alpha=0.3)
-    if not ok.empty:
-        left.legend(fontsize="small")
-    figure.suptitle(f"{problem_name}: error against cost")
-    return figure

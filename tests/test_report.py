@@ -22,7 +22,8 @@ import pytest
 
 matplotlib.use("Agg")
 
-from trapbench.bench import report, report_figures  # noqa: E402
+from trapbench.bench import report  # noqa: E402
+from trapbench.bench.report.figures import noise  # noqa: E402
 from trapbench.bench.cli import main  # noqa: E402
 from trapbench.bench.store import Store  # noqa: E402
 from trapbench.bench.suite import load_suite  # noqa: E402
@@ -183,6 +184,23 @@ def test_method_map_names_the_exact_two_body_solution_for_n2(built):
     assert row["CPU s at 1e-05"] == pytest.approx(per_problem.max(), rel=1e-9)
 
 
+def test_calibration_and_verdicts_are_reported(built):
+    output, frame = built["output"], built["frame"]
+    calibration = pd.read_csv(output / "tables" / "calibration.csv").set_index("backend")
+    two_body = calibration.loc["two-body"]
+    stored = frame[(frame["backend"] == "two-body") & (frame["state"] >= 0)]
+    assert two_body["with error bar"] == len(stored)
+    # two-body's bars (~1e-14) are far below what an exact closed form evaluated to 1e-12 can check: nothing checked
+    assert stored["energy_error"].max() < 1e-13
+    assert two_body["checked"] == 0 and two_body["too loose a reference"] == len(stored)
+    assert "## Error-bar calibration" in (output / "report.md").read_text()
+    # first order at g = -0.1 misses the exact two-body energy by O(g^2): a measured miss, not unverified
+    busch = pd.concat(pd.read_csv(p) for p in (output / "tables").glob("agreement_*.csv"))
+    first_order = busch[(busch["backend"] == "perturbative") & (busch["g"] == -0.1)]
+    assert list(first_order["verdict"]) == ["missed"]
+    assert "error bars below 95 % at 2 sigma" in pd.read_csv(output / "tables" / "method_map.csv").columns
+
+
 def test_odd_even_staggering_matches_first_order_closed_form(built):
     table = pd.read_csv(built["output"] / "tables" / "odd_even.csv")
     by = {(int(r.N), float(r.g)): r.Delta for r in table.itertuples()}
@@ -221,11 +239,11 @@ def test_spectra_and_density_tables_are_the_stored_numbers(built):
 def test_noise_slope_recovers_a_known_quadratic():
     g = np.array([-0.5, -0.25, 0.0, 0.25, 0.5, 1.0])
     integral = 0.09 * g**2 + 0.02 * g**3  # s = 0.3 exactly
-    s, error, used = report_figures.noise_slope(g, integral)
+    s, error, used = noise.slope_at_zero(g, integral)
     assert s == pytest.approx(0.3, rel=1e-12)
     assert used == 4  # 0 < |g| <= 0.5
     assert error == pytest.approx(0.0, abs=1e-10)
-    assert report_figures.noise_slope(np.array([0.0, 1.0]), np.array([0.0, 1.0])) is None
+    assert noise.slope_at_zero(np.array([0.0, 1.0]), np.array([0.0, 1.0])) is None
 
 
 def test_command_reads_the_store_and_empty_store_says_what_to_run(built, tmp_path, capsys):
@@ -264,7 +282,7 @@ class SyntheticNoise:
 
     @classmethod
     def backend(cls):
-        from trapbench.backends.base import Backend, Support
+        from trapbench.backends.base import Backend, Capabilities, Support
         from trapbench.backends.result import Observable, Solution
 
         class Synthetic(Backend):
@@ -272,8 +290,9 @@ class SyntheticNoise:
             version = "1"
             summary = "closed-form noise data for the report tests"
             parameters = ()
+            capabilities = Capabilities(observables=("noise",))
 
-            def supports(self, problem):
+            def supports(self, problem, params):
                 return Support.yes()
 
             def compute(self, problem, params):
@@ -289,7 +308,7 @@ class SyntheticNoise:
 
 
 def test_noise_figures_read_maps_and_integrals_from_the_store(tmp_path):
-    from trapbench.bench.runner import OK, Outcome
+    from trapbench.bench.executor import OK, Outcome
     from trapbench.bench.suite import Task
     from trapbench.bench.tables import attach_references
     from trapbench.problems.spec import Problem
@@ -307,8 +326,8 @@ def test_noise_figures_read_maps_and_integrals_from_the_store(tmp_path):
             store.record(run_id, "synthetic", Task("noise", problem, backend.name, {}, 60.0, 512.0),
                          Outcome(status=OK, result=result, wall_time_s=0.1, cpu_time_s=0.1, peak_rss_bytes=1 << 20))
         frame = attach_references(store.results_frame())
-        maps = report_figures.noise_maps_figure(frame, store)
-        integral = report_figures.noise_integral_figure(frame)
+        maps = noise.build_maps(frame, store)
+        integral = noise.build_integral(frame)
     assert maps.missing is None and integral.missing is None
     # max of -g A p1 p2 exp(-(p1^2 + p2^2)/2) at g = -2 is 2 A / e, at p1 = p2 = +-1 (on the 0.25-spaced grid)
     assert np.allclose(maps.table["max C"], 2 * SyntheticNoise.A / math.e, rtol=1e-12)
