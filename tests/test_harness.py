@@ -505,9 +505,9 @@ def free_references(problem):
 
 
 def test_agreement_and_accuracy_vs_cost_tables(toy_path, tmp_path):
+    from trapbench.bench.report.figures import error_vs_cost
     from trapbench.bench.tables import (accuracy_vs_cost_table, agreement_table, attach_references,
-                                        cost_vs_particle_number_table, plot_error_vs_cost, suite_tables_markdown,
-                                        write_tables)
+                                        cost_vs_particle_number_table, suite_tables_markdown, write_tables)
 
     suite = parse_suite(suite_text(FREE_PROBLEMS + """
         [tolerances]
@@ -552,7 +552,7 @@ def test_agreement_and_accuracy_vs_cost_tables(toy_path, tmp_path):
 
     text = suite_tables_markdown(frame, suite, free_references)
     assert "| problem_name |" in text and "SIGABRT" in text
-    figure = plot_error_vs_cost(frame, "1+1 free")
+    figure = error_vs_cost.draw(error_vs_cost.select(frame, problem_name="1+1 free"), "1+1 free")
     assert len(figure.axes) == 2 and len(figure.axes[0].lines) == 1
     written = write_tables(frame, tmp_path / "tables", suite, free_references)
     names = {p.name for p in written}
@@ -566,7 +566,10 @@ def synthetic_row(backend, n_up, n_down, g, params, accuracy, cpu, peak_mib, wit
     return {"backend": backend, "n_up": n_up, "n_down": n_down, "mass_up": 1.0, "mass_down": 1.0, "g": g,
             "params_text": params, "status": "ok", "state": 0, "solve_cpu_s": cpu, "cpu_time_s": cpu,
             "solve_wall_s": cpu, "peak_rss_bytes": peak_mib * runner.MIB, "accuracy": accuracy,
-            "error_basis": basis, "within_error_bar": within, "problem_name": f"{n_up}+{n_down}"}
+            "error_basis": basis, "within_error_bar": within, "problem_name": f"{n_up}+{n_down}",
+            # the verdict and calibration columns of attach_references: an exact reference; bars 10x too narrow if not within
+            "rel_error": accuracy, "ref_rel_uncertainty": 0.0 if basis == "reference" else None, "own_rel_error": accuracy,
+            "abs_error": accuracy, "ref_effective_uncertainty": 0.0, "error_bar": accuracy if within else accuracy / 10}
 
 
 def test_advisor_prefers_measured_cheap_reliable_and_extrapolates_cost():
