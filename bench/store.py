@@ -146,10 +146,10 @@ class Store:
             problems = [row[0] for row in connection.execute("PRAGMA quick_check")]
             if problems != ["ok"]:
                 raise sqlite3.DatabaseError("integrity check: " + "; ".join(problems[:2]))
-            connection.executescript(_SCHEMA)
             columns = {row["name"] for row in connection.execute("PRAGMA table_info(tasks)")}
-            if not set(TASK_COLUMNS) <= columns:
+            if columns and not set(TASK_COLUMNS) <= columns:  # checked before writing into another program's file
                 raise sqlite3.DatabaseError("its 'tasks' table lacks trapbench's columns")
+            connection.executescript(_SCHEMA)
             connection.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
         except sqlite3.DatabaseError as exc:
             raise DamagedStore(path, f"sqlite: {exc}") from None

@@ -1,8 +1,9 @@
 """Odd-even analysis: energies across backends and the three-point pairing gap.
 
-Outside sources: the non-interacting energies (N_up^2 + N_down^2)/2 and the first-order coefficients
-c1 * sqrt(2 pi) = 1, 3/2, 11/4, 57/16, 321/64 (1+1, 2+1, 2+2, 3+2, 3+3) of
-/work/shared/physics-anchors.md Sec. 3.2, from which the first-order gaps follow by hand:
+Outside sources: the non-interacting energies (N_up^2 + N_down^2)/2 (textbook oscillator towers) and the
+first-order coefficients c1 * sqrt(2 pi) = 1, 3/2, 11/4, 57/16, 321/64 (1+1, 2+1, 2+2, 3+2, 3+3) of
+first-order perturbation theory (Gaussian integrals of Hermite functions worked out by hand, no published
+source; re-derived by quadrature in tests/test_references.py), from which the first-order gaps follow by hand:
 Delta(3) = g [3/2 - (1 + 11/4)/2] / sqrt(2 pi) = -3 g / (8 sqrt(2 pi)),
 Delta(5) = g [57/16 - (11/4 + 321/64)/2] / sqrt(2 pi) = -41 g / (128 sqrt(2 pi)).
 """
@@ -12,7 +13,9 @@ import math
 import pytest
 
 from trapbench.backends.registry import get
-from trapbench.bench.pairing import balanced_counts, ground_energies, main, odd_even_analysis, pairing_gaps
+from trapbench.bench.cli import main
+from trapbench.bench.executor import Limits
+from trapbench.bench.pairing import balanced_counts, ground_energies, odd_even_analysis, pairing_gaps
 
 ROOT_2PI = math.sqrt(2 * math.pi)
 
@@ -84,7 +87,16 @@ def test_a_size_the_parameters_cannot_handle_is_a_row_not_a_crash():
     assert "max_dimension" in energies.loc[2, "reason"]
 
 
-def test_script_prints_both_tables(capsys):
-    assert main(["-b", "perturbative", "--g", "-0.5", "--max-particles", "5"]) == 0
+def test_odd_even_command_prints_both_tables(capsys):
+    assert main(["odd-even", "-b", "perturbative", "--g", "-0.5", "--max-particles", "5"]) == 0
     out = capsys.readouterr().out
     assert "pairing gap" in out and "Delta(N+1)" in out
+    assert main(["odd-even", "-b", "perturbative", "--g", "-0.5", "--max-particles", "1"]) == 2
+
+
+def test_isolated_sizes_give_the_in_process_numbers():
+    g = -0.3
+    here = ground_energies(get("perturbative"), g, range(2, 5))
+    isolated = ground_energies(get("perturbative"), g, range(2, 5), isolated=True, limits=Limits(timeout_s=60))
+    assert list(isolated["status"]) == ["ok"] * 3
+    assert list(isolated["energy"]) == list(here["energy"])  # bit for bit
