@@ -5,14 +5,18 @@ lengths are in l = sqrt(hbar / (m0 omega_ref)), energies in hbar omega_ref and t
 g in hbar omega_ref l = sqrt(hbar^3 omega_ref / m0).
 
 The effective 1D coupling of two atoms (reduced mass mu) in a transverse harmonic guide of angular
-frequency omega_perp with 3D s-wave scattering length a is Olshanii's result
-(M. Olshanii, Phys. Rev. Lett. 81, 938 (1998), in its relative-coordinate form):
+frequency omega_perp with 3D s-wave scattering length a is Olshanii's result (M. Olshanii, Phys. Rev.
+Lett. 81, 938 (1998); the formula is recalled from memory, not re-read from the paper), written here in
+relative coordinates:
 
     g_1D = (2 hbar^2 a / (mu a_perp^2)) / (1 - C a / a_perp),   a_perp = sqrt(hbar / (mu omega_perp)),
     C = |zeta(1/2)| = 1.4603545088...
 
-For equal masses this is the familiar g_1D = 2 hbar omega_perp a / (1 - C a / a_perp).
-g_1D diverges at the confinement-induced resonance a = a_perp / C.
+For equal masses (mu = m/2) this is the familiar g_1D = 2 hbar omega_perp a / (1 - C' a / a_perp'),
+a_perp' = sqrt(hbar / (m omega_perp)), C' = C / sqrt(2). The unequal-mass form was derived by analogy
+(the relative-coordinate problem of two particles in one transverse guide, valid when both species feel
+the same omega_perp) and has not been checked against a paper. g_1D diverges at the
+confinement-induced resonance a = a_perp / C. Physical constants: scipy.constants (CODATA).
 """
 
 from __future__ import annotations
@@ -20,12 +24,14 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
-# CODATA 2018 exact / recommended values (SI).
-HBAR = 1.054571817e-34  # J s
-ATOMIC_MASS_UNIT = 1.66053906660e-27  # kg
-BOHR_RADIUS = 5.29177210903e-11  # m
-# |zeta(1/2)|, evaluated with mpmath.zeta(0.5) (common practice; see tests for the check).
-ZETA_HALF = 1.4603545088095868
+import mpmath
+from scipy import constants
+
+# CODATA values as shipped with scipy.constants (SI).
+HBAR = constants.hbar  # J s
+ATOMIC_MASS_UNIT = constants.physical_constants["atomic mass constant"][0]  # kg
+BOHR_RADIUS = constants.physical_constants["Bohr radius"][0]  # m
+ZETA_HALF = -float(mpmath.zeta(0.5))  # |zeta(1/2)|
 # |1 - C a / a_perp| below this counts as "near the confinement-induced resonance".
 RESONANCE_WARNING_MARGIN = 0.2
 # omega_perp / omega_axial below this makes the quasi-1D description questionable.

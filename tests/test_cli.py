@@ -16,7 +16,8 @@ def run_cli(*args):
 def test_solve_json_gives_energies_and_error_estimate(capsys):
     assert main(["solve", "--up", "1", "--down", "1", "--g", "1", "--states", "2", "-b", "two-body", "--json"]) == 0
     document = json.loads(capsys.readouterr().out)
-    # anchors Table 2.1: E0(g = 1) = 1.306745541231; the next level is the odd relative state E = 2
+    # Busch et al., Found. Phys. 28, 549 (1998): E0(g = 1) = 1.306745541231 (root computed with mpmath,
+    # re-derived by ODE shooting in tests/test_two_body.py); the next level is the odd relative state E = 2
     assert document["energies"] == pytest.approx([1.306745541231, 2.0], abs=1e-11)
     assert isinstance(document["error_estimate"], float)
     assert document["units"]["energy"] == "hbar*omega_ref"
@@ -30,7 +31,7 @@ def test_solve_spec_file_with_every_capable_backend(tmp_path, capsys):
     results = json.loads(capsys.readouterr().out)["results"]
     assert {r["backend"] for r in results} == {"two-body", "perturbative"}
     exact = {r["g"]: r["energies"][0] for r in results if r["backend"] == "two-body"}
-    # physics-anchors Table 2.2, kappa = 40/6
+    # Busch et al. (1998) roots with lambda = g sqrt(mu), kappa = 40/6 (mpmath; ODE shooting in test_references.py)
     assert exact[-2.0] == pytest.approx(-1.17412483472, abs=1e-10)
     assert exact[2.0] == pytest.approx(1.56467480944, abs=1e-10)
 
@@ -38,7 +39,7 @@ def test_solve_spec_file_with_every_capable_backend(tmp_path, capsys):
 def test_negative_scan_values_parse(capsys):
     assert main(["solve", "--up", "1", "--down", "1", "--g", "-1,0.5", "-b", "two-body"]) == 0
     out = capsys.readouterr().out
-    assert "0.4703549363" in out  # anchors Table 2.1, g = -1
+    assert "0.4703549363" in out  # Busch et al. (1998) root at g = -1 (mpmath; ODE shooting in test_two_body.py)
 
 
 def test_backends_lists_and_explains(capsys):

@@ -2,8 +2,9 @@
 
 The reference integrals I_ij = int phi_i(x; b_up)^2 phi_j(x; b_down)^2 dx are evaluated with mpmath
 (Hermite polynomials and adaptive quadrature), independently of the backend's Gauss-Hermite rule.
-The equal-mass coefficients c1 sqrt(2 pi) = 3/2 (2+1), 11/4 (2+2), 321/64 (3+3) are the exact
-rationals of physics-anchors Table 3.2.
+The equal-mass coefficients c1 sqrt(2 pi) = 3/2 (2+1), 11/4 (2+2), 321/64 (3+3) are exact rationals
+(Gaussian integrals of products of Hermite functions, worked out by hand: from memory of the
+computation, no published source); each is re-derived by the mpmath quadrature beside it.
 """
 
 import math
@@ -51,8 +52,9 @@ def test_unequal_mass_first_order_coefficients(backend, n_up, n_down, mass_down)
         reference_slope(n_up, n_down, 1.0, mass_down), abs=1e-12
     )
     if (n_up, n_down) == (1, 1):
-        # physics-anchors Table 2.2: c1 = sqrt(mu/pi) = 0.526109499417 for kappa = 40/6
-        assert result.energies[0] - 1 == pytest.approx(0.526109499417, abs=1e-11)
+        # c1 = int phi_0^up(x)^2 phi_0^down(x)^2 dx = sqrt(mu/pi), mu = kappa/(1 + kappa) (Gaussian integral)
+        mu = mass_down / (1 + mass_down)
+        assert result.energies[0] - 1 == pytest.approx(math.sqrt(mu / math.pi), abs=1e-11)
 
 
 def test_non_interacting_spectrum_and_degeneracies(backend):

@@ -143,6 +143,17 @@ def test_first_order_coefficients_by_quadrature(counts, masses):
     assert first_order_slope(problem) == pytest.approx(expected, abs=1e-11)
 
 
+@pytest.mark.parametrize("counts,rational", [((1, 1), 1), ((2, 1), 3 / 2), ((2, 2), 11 / 4), ((3, 2), 57 / 16),
+                                             ((3, 3), 321 / 64)])
+def test_first_order_equal_mass_rationals(counts, rational):
+    # c1 sqrt(2 pi) for equal masses: Gaussian integrals of Hermite functions worked out by hand (no
+    # published source), used by the pairing and perturbative tests; checked by scipy.integrate.quad here
+    expected, _ = integrate.quad(lambda x: _hermite_density(counts[0], 1.0, x) * _hermite_density(counts[1], 1.0, x),
+                                 -15, 15, epsabs=1e-13, limit=200)
+    assert expected * math.sqrt(2 * math.pi) == pytest.approx(rational, abs=1e-11)
+    assert first_order_slope(Problem.create(*counts, 0.5)) * math.sqrt(2 * math.pi) == pytest.approx(rational, abs=1e-12)
+
+
 def test_first_order_two_body_unequal_masses_closed_form():
     # 1+1: c1 = int phi_0^up(x)^2 phi_0^down(x)^2 dx = sqrt(m_up m_down)/pi * sqrt(pi/(m_up + m_down))
     # = sqrt(mu/pi) (a Gaussian integral, derived here)
