@@ -21,10 +21,7 @@ from ..verdicts import COVERAGE_TARGET, REFERENCE_MARGIN
 from . import analysis
 from .analysis import MAP_TARGETS, SCALING_ACCURACY, SCALING_MAX_STATES, target_label
 from .document import Document, Heading, Paragraph, Table, render_html, render_markdown
-from .figures import densities, error_vs_cost, file_stem, noise, odd_even, spectra
-from .figures.cost_scaling import caption as scaling_caption
-from .figures.cost_scaling import draw as draw_scaling
-from .figures.cost_scaling import select as select_scaling
+from .figures import cost_scaling, densities, error_vs_cost, file_stem, noise, odd_even, spectra
 
 MAX_COST_FIGURES = 24
 FIGURE_DPI = 100
@@ -127,13 +124,13 @@ def scaling_section(document: Document, frame: pd.DataFrame, folder: Path) -> No
                        f" counts problems without a reference within 1/{REFERENCE_MARGIN:g} of it. Only problems asking"
                        f" for at most {SCALING_MAX_STATES} levels and no observables count (the figures' problems ask"
                        " for more, which costs more at any N).", "cost_vs_n"))
-    reached = select_scaling(scaling)
+    reached = cost_scaling.select(scaling)
     if reached.empty:
         document.add(Paragraph(f"*No backend reached {target_label(SCALING_ACCURACY)} on any stored problem: nothing"
                                " to draw.*"))
         return
-    path = _save(draw_scaling(reached, SCALING_ACCURACY), folder, "cost_vs_particle_number")
-    document.add(document.picture(path, scaling_caption(SCALING_ACCURACY)))
+    path = _save(cost_scaling.draw(reached, SCALING_ACCURACY), folder, "cost_vs_particle_number")
+    document.add(document.picture(path, cost_scaling.caption(SCALING_ACCURACY)))
 
 
 def physics_section(document: Document, frame: pd.DataFrame, store, folder: Path) -> None:
