@@ -7,8 +7,11 @@ Python API (every piece also has a command: ``trapbench sweep | check | export |
   in an isolated child process (``runner``), serially or on Dask (``distributed``);
 - ``store.Store.open(path)``: the SQLite results store; ``tasks_frame()``, ``results_frame()``,
   ``result(task_key)``, ``export(path)``;
-- ``tables``: agreement, accuracy-vs-cost and cost-vs-N tables from a results frame, Markdown /
-  CSV / HTML output, matplotlib figures of error against time and memory;
+- ``tables``: agreement, accuracy-vs-cost, cost-vs-N and calibration tables from a results frame,
+  Markdown / CSV / HTML output with figures of error against CPU time and memory;
+- ``verdicts``: when a result counts as reaching an accuracy (``judge``, ``judge_frame``) and how
+  well error bars cover the truth (``error_bar_calibration``);
+- ``report.write_report(store, folder)``: the Markdown/HTML report (``trapbench report``);
 - ``gate``: compare with a baseline (``pytest_plugin`` offers the ``trapbench_gate`` fixture);
 - ``advisor.advise(frame, Query(...))``: the cheapest reliable backend for a problem and accuracy.
 """
