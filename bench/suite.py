@@ -127,10 +127,6 @@ class Task:
     def params_json(self) -> str:
         return canonical_params(self.params)
 
-    def describe(self) -> str:
-        params = ", ".join(f"{k}={v}" for k, v in sorted(self.params.items())) or "defaults"
-        return f"{self.backend} on {self.problem_name} (g={self.problem.coupling:g}; {params})"
-
 
 def canonical_params(params: Mapping) -> str:
     return json.dumps(params, sort_keys=True, separators=(",", ":"), default=str)

@@ -13,7 +13,8 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 
-from trapbench.bench.runner import OK, Limits, Outcome, run_isolated
+from trapbench.bench.executor import OK, Limits, Outcome
+from trapbench.bench.runner import run_isolated
 from trapbench.bench.store import Store
 from trapbench.bench.suite import Task
 from trapbench.bench.tables import accuracy_vs_cost_table, attach_references
