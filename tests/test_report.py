@@ -3,15 +3,17 @@
 A tiny store is built with the real ``two-body`` (exact, Busch et al.) and ``perturbative``
 (first order in g) backends through the sweep harness. The checks compare the report's tables with
 the numbers in the store, and the report's own arithmetic (odd-even staggering, noise slope) with
-closed forms: the first-order coefficients c1 = sum_ij int phi_i^2 phi_j^2 dx of 1+1, 2+1 and 2+2
-(1, 3/2 and 11/4 in units of 1/sqrt(2 pi); oscillator-orbital integrals, first-order perturbation
-theory, a textbook result) and a synthetic quadratic.
+independent evaluations: the first-order coefficients c1 = sum_ij int phi_i^2 phi_j^2 dx
+(first-order perturbation theory, a textbook result) by scipy quadrature over scipy's Hermite
+polynomials, the two-body energy by ODE shooting (tests/relative_shooting.py), and a synthetic
+quadratic.
 """
 
 from __future__ import annotations
 
 import math
 import re
+import sys
 import textwrap
 from pathlib import Path
 
@@ -28,6 +30,9 @@ from trapbench.bench.cli import main  # noqa: E402
 from trapbench.bench.store import Store  # noqa: E402
 from trapbench.bench.suite import load_suite  # noqa: E402
 from trapbench.bench.sweep import SweepOptions, run_sweep  # noqa: E402
+
+sys.path.insert(0, str(Path(__file__).parent))
+from relative_shooting import ground_energy  # noqa: E402
 
 SUITE = """
 name = "report-test"
@@ -163,10 +168,12 @@ def test_agreement_tables_hold_the_stored_energies_and_busch_reference(built):
                        & (stored["state"] == row.state) & (stored["backend"] == row.backend)]
         assert not match.empty
         assert np.any(match["energy"].to_numpy() == row.energy)  # the exact stored float
-    # the exact two-body ground state at g = 1 (physics anchors table 2.1: 1.306745541231, Busch's equation)
+    # the exact two-body ground state at g = 1 (Busch et al. 1998), re-derived by ODE shooting of the relative
+    # problem, which shares nothing with the Gamma-function form the reference and the backend use
+    exact = ground_energy(1.0)
     busch = agreement[(agreement["problem"] == "1+1 scan") & (agreement["g"] == 1.0) & (agreement["state"] == 0)]
-    assert busch["reference"].iloc[0] == pytest.approx(1.306745541231, abs=1e-11)
-    assert busch["energy"].iloc[0] == pytest.approx(1.306745541231, abs=1e-10)
+    assert busch["reference"].iloc[0] == pytest.approx(exact, abs=1e-11)
+    assert busch["energy"].iloc[0] == pytest.approx(exact, abs=1e-10)
 
 
 def test_method_map_names_the_exact_two_body_solution_for_n2(built):
@@ -201,16 +208,31 @@ def test_calibration_and_verdicts_are_reported(built):
     assert "error bars below 95 % at 2 sigma" in pd.read_csv(output / "tables" / "method_map.csv").columns
 
 
+def first_order_coefficient(n_up: int, n_down: int) -> float:
+    """c1 = sum_{i < n_up, j < n_down} int phi_i(x)^2 phi_j(x)^2 dx over oscillator orbitals (m = omega = 1), by quadrature.
+
+    phi_n(x)^2 = H_n(x)^2 exp(-x^2) / (2^n n! sqrt(pi)) with the physicists' Hermite polynomials of scipy.special.
+    """
+    from scipy import integrate, special
+
+    def density(n, x):
+        return special.eval_hermite(n, x) ** 2 * math.exp(-x * x) / (2**n * math.factorial(n) * math.sqrt(math.pi))
+
+    return sum(integrate.quad(lambda x: density(i, x) * density(j, x), -np.inf, np.inf, epsabs=1e-14)[0]
+               for i in range(n_up) for j in range(n_down))
+
+
 def test_odd_even_staggering_matches_first_order_closed_form(built):
     table = pd.read_csv(built["output"] / "tables" / "odd_even.csv")
     by = {(int(r.N), float(r.g)): r.Delta for r in table.itertuples()}
     # g = 0: E(a, b) = (a^2 + b^2)/2, so Delta = 0 for every odd N
     assert by[(1, 0.0)] == pytest.approx(0.0, abs=1e-12)
     assert by[(3, 0.0)] == pytest.approx(0.0, abs=1e-12)
-    # first order: E(a, b) = E0 + c1(a, b) g with c1 sqrt(2 pi) = 1 (1+1), 3/2 (2+1), 11/4 (2+2), 0 (1+0)
-    g, unit = -0.1, 1 / math.sqrt(2 * math.pi)
-    assert by[(1, g)] == pytest.approx(-0.5 * 1.0 * unit * g, abs=1e-12)
-    assert by[(3, g)] == pytest.approx((1.5 - (1.0 + 2.75) / 2) * unit * g, abs=1e-12)
+    # first order: E(a, b) = E0 + c1(a, b) g, and c1(1, 0) = 0
+    g = -0.1
+    assert by[(1, g)] == pytest.approx(-0.5 * first_order_coefficient(1, 1) * g, abs=1e-12)
+    expected = first_order_coefficient(2, 1) - (first_order_coefficient(1, 1) + first_order_coefficient(2, 2)) / 2
+    assert by[(3, g)] == pytest.approx(expected * g, abs=1e-12)
 
 
 def test_spectra_and_density_tables_are_the_stored_numbers(built):
