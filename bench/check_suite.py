@@ -329,9 +329,36 @@ def validate(
     tier: str = "quick",
     progress: bool = False,
 ) -> list[Verdict]:
-    """The verdicts of ``backend_checks`` (what ``trapbench validate`` prints)."""
+    """The verdicts of ``backend_checks`` (what ``trapbench validate`` prints), then one "calibration" verdict
+    per particle number whose error bars met decisive references (``calibration_verdicts``)."""
     suite = backend_checks(backend, params, tier, tolerance, problems, checks, catalogue_max_particles)
-    return run_checks(suite, progress)
+    verdicts = run_checks(suite, progress)
+    return verdicts + calibration_verdicts(verdicts)
+
+
+def calibration_verdicts(verdicts: Sequence[Verdict]) -> list[Verdict]:
+    """Error-bar calibration over the level comparisons of the "references" verdicts (``bench.verdicts``):
+    per particle number, the share of levels with |E - ref| <= 2 error bars (fail below 95 %) and the
+    median error bar / |E - ref|."""
+    import pandas as pd
+
+    from .verdicts import error_bar_calibration
+
+    rows = [row for v in verdicts for row in v.levels]
+    if not rows:
+        return []
+    table = error_bar_calibration(pd.DataFrame(rows))
+    found = []
+    for row in table.to_dict("records"):
+        if not row["checked"]:
+            continue
+        status = "fail" if row["flag"] else "pass"
+        found.append(Verdict(
+            "calibration", f"{row['backend']}, N = {row['N']}", status,
+            f"{row['within 2 sigma']}/{row['checked']} levels within 2 error bars"
+            f" ({100 * row['coverage at 2 sigma']:.0f} %, target >= 95 %); median bar/|E - ref| ="
+            f" {row['median bar/abs(E - ref)']:.3g}"))
+    return found
 
 
 # ----------------------------------------------------------------------------- pytest helper

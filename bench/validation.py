@@ -11,7 +11,8 @@ Checks (the property, and where it holds):
 - ``non-interacting``: at g = 0 the levels are the oscillator towers sum_s omega_s sum_i (n_i + 1/2),
   with their parities (harmonic trap).
 - ``references``: energies against ``problems.references.references_for`` (exact two-body roots,
-  towers, strong-coupling asymptotes with their stated uncertainty).
+  towers, the reference dataset's values from methods independent of the backend); a pass that rests on a
+  reference looser than a tenth of the tolerance is "unverified" (the rule of ``bench.verdicts``).
 - ``weak-coupling-slope``: dE0/dg at g = 0 by central differences (Richardson-extrapolated, steps h
   and h/2) against first-order perturbation theory c1 = sum_ij int phi_i^2 phi_j^2.
 - ``hellmann-feynman``: the reported <sum delta> ("delta") equals dE0/dg by central differences.
@@ -54,6 +55,7 @@ from ..backends.base import Unsupported, support_of
 from ..backends.result import Result
 from ..problems.references import noninteracting_levels, references_for
 from ..problems.spec import Problem
+from .verdicts import reference_decides
 
 MAX_ANTISYMMETRIC_STATES = 40
 MIN_TOWER_STATES = 6
@@ -82,6 +84,7 @@ class Verdict:
     reason: str
     deviation: float | None = None
     allowed: float | None = None
+    levels: tuple = ()  # per-level comparison rows of the "references" check (error-bar calibration)
 
     @property
     def failed(self) -> bool:
@@ -200,8 +203,17 @@ def _parity_groups_mismatch(energies, labels, exact, tolerance: Tolerance) -> st
 
 
 def check_references(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+    """Energies against the references that may grade this backend (never values it produced itself).
+
+    The verdict rule of ``bench.verdicts``: a reference counts only where its uncertainty is at most a
+    tenth of the tolerance it decides; a pass resting on looser references is "unverified".
+    """
     name = "references"
-    refs = sorted((r for r in references_for(problem) if r.quantity == "energy"), key=lambda r: r.state)
+    known = references_for(problem, for_backend=runner.backend.name)
+    refs = sorted((r for r in known if r.quantity == "energy"), key=lambda r: r.state)
+    coefficients = sorted((r for r in known if r.quantity == "K"), key=lambda r: r.state)
+    if not refs and coefficients:
+        return _check_strong_coupling_coefficients(runner, problem, tolerance, coefficients)
     if not refs:
         raise Skip("no reference energies are known for this problem")
     result = runner.solve(problem)
@@ -209,7 +221,31 @@ def check_references(runner: Runner, problem: Problem, tolerance: Tolerance) -> 
     deviation, allowed, index = _compare_levels(
         result, [r.value for r in refs[:count]], tolerance, [r.uncertainty for r in refs[:count]]
     )
-    return _verdict(name, problem, deviation, allowed, f"{count} levels vs {refs[0].kind} references (worst: level {index})")
+    levels = tuple(
+        {"backend": result.backend, "n_up": problem.up.count, "n_down": problem.down.count,
+         "error_bar": level_error(result, i) if result.energy_errors or result.error_estimate is not None else None,
+         "abs_error": abs(result.energies[i] - r.value), "ref_effective_uncertainty": r.uncertainty}
+        for i, r in enumerate(refs[:count])
+    )
+    verdict = replace(_verdict(name, problem, deviation, allowed,
+                               f"{count} levels vs {refs[0].kind} references (worst: level {index})"), levels=levels)
+    loose = [i for i, r in enumerate(refs[:count]) if not reference_decides(r.uncertainty, tolerance.allowed(r.value))]
+    if loose and verdict.status == "pass":
+        return replace(verdict, status="unverified",
+                       reason=f"levels {loose}: the reference uncertainty exceeds a tenth of the tolerance; " + verdict.reason)
+    return verdict
+
+
+def _check_strong_coupling_coefficients(runner: Runner, problem: Problem, tolerance: Tolerance, refs) -> Verdict:
+    """The states' "K" labels (E = E_inf - K/g) against the reference coefficients, for a backend that reports them."""
+    result = runner.solve(problem)
+    labels = [s.get("K") if isinstance(s, dict) else None for s in result.states]
+    count = min(len(refs), len(labels))
+    if not count or any(label is None for label in labels[:count]):
+        raise Skip("no reference energies at this g, and the states carry no strong-coupling coefficient 'K'")
+    worst = max(((abs(labels[i] - r.value), tolerance.allowed(r.value, r.uncertainty)) for i, r in enumerate(refs[:count])),
+                key=lambda d: d[0] / d[1])
+    return _verdict("references", problem, *worst, f"{count} strong-coupling coefficients K vs {refs[0].kind} references")
 
 
 def check_weak_coupling_slope(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
@@ -475,6 +511,7 @@ def verdict_table(verdicts: Sequence[Verdict]) -> str:
     lines = [f"{'check':22s} {'problem':{width}s} {'verdict':7s} reason", "-" * (40 + width)]
     for v in verdicts:
         lines.append(f"{v.check:22s} {v.problem:{width}s} {v.status.upper():7s} {v.reason}")
-    counts = {status: sum(1 for v in verdicts if v.status == status) for status in ("pass", "fail", "error", "skip")}
+    counts = {status: sum(1 for v in verdicts if v.status == status)
+              for status in ("pass", "fail", "error", "unverified", "skip")}
     lines.append(", ".join(f"{count} {status}" for status, count in counts.items()))
     return "\n".join(lines)

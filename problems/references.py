@@ -29,9 +29,13 @@ coefficient known for 1+1 only ((1 - ln 2) K^2 from Busch's equation); for N > 2
 such a value cannot grade a method to any threshold. The exact coefficients ("K", "energy_g_inf",
 "slope_g0") are given instead.
 
+- ``energy`` from the reference dataset (``problems.dataset``, kind "computed") for 3 to 12 particles at finite g:
+  values of trapbench's own independent methods admitted by the dataset's agreement rule; a backend that
+  produced a value is graded only against the other methods' values (``references_for(..., for_backend=)``).
+
 Kinds: "exact" (closed form or exact root evaluated to ~1e-12), "derived" (a published method
 evaluated here, uncertainty from its own convergence check), "published" (read from a cited table),
-"recalled" (from memory; flagged as such). No published table has been copied into trapbench, so no
+"recalled" (from memory; flagged as such), "computed" (the reference dataset). No published table has been copied into trapbench, so no
 "published" values are given yet.
 Units: hbar = omega_ref = 1, masses in m0; energies in hbar omega_ref, g in sqrt(hbar^3 omega_ref/m0).
 """
@@ -41,6 +45,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from . import dataset
 from .exact import busch, first_order, strong_coupling_direct, towers, wedges
 from .spec import Problem
 
@@ -75,8 +80,9 @@ class Reference:
     value: float
     uncertainty: float  # absolute; 0 for exact closed forms evaluated to ~1e-12
     source: str
-    kind: str  # "exact" | "published" | "derived" | "recalled"
+    kind: str  # "exact" | "published" | "derived" | "recalled" | "computed"
     note: str = ""
+    methods: tuple[str, ...] = ()  # backends whose results make up a "computed" value (none for closed forms)
 
 
 def _parity(problem: Problem) -> int | None:
@@ -174,13 +180,20 @@ def _infinite_coupling_references(problem: Problem) -> list[Reference]:
     return [Reference("energy_g_inf", i, float(v), 0.0, source, kind, note) for i, v in enumerate(values)]
 
 
-def references_for(problem: Problem) -> list[Reference]:
-    """Every reference value trapbench knows for this single-g problem (empty if none)."""
+def references_for(problem: Problem, for_backend: str | None = None) -> list[Reference]:
+    """Every reference value trapbench knows for this single-g problem (empty if none).
+
+    ``for_backend`` names the backend to be graded: a "computed" value of the reference dataset is then the
+    value of the methods independent of it (``dataset.DatasetLevel.reference_for``), or left out.
+    """
     g = problem.coupling
     if not problem.trap.is_harmonic:
         return []
     up, down = problem.species
     refs: list[Reference] = []
+    exact_energies = g == 0.0 or up.count == 0 or down.count == 0 or (up.count == 1 and down.count == 1)
+    if not exact_energies:
+        refs += dataset_references(problem, for_backend)
     if g == 0.0 or up.count == 0 or down.count == 0:
         refs += [
             Reference("energy", i, e, 0.0, TOWER_SOURCE, "exact", "g = 0 or one species empty: no interaction acts")
@@ -204,4 +217,26 @@ def references_for(problem: Problem) -> list[Reference]:
     if not problem.equal_masses and _is_two_plus_one(problem) and problem.targets.parity == "any":
         refs += _wedge_k_references(problem)
     refs += _infinite_coupling_references(problem)
+    return refs
+
+
+def dataset_references(problem: Problem, for_backend: str | None = None) -> list[Reference]:
+    """Energies of the shipped reference dataset (``problems.dataset``) for this problem, parity "any" only."""
+    if problem.targets.parity != "any":
+        return []
+    data = dataset.load()
+    entry = data.lookup(problem)
+    if entry is None:
+        return []
+    refs = []
+    for level in entry.levels:
+        if level.state >= problem.targets.states:
+            continue
+        graded = level.reference_for(for_backend)
+        if graded is None:
+            continue
+        value, uncertainty, methods = graded
+        refs.append(Reference(
+            "energy", level.state, value, uncertainty, f"{dataset.SOURCE} v{data.version} ({', '.join(methods)})",
+            "computed", f"{level.status}: {level.note}", methods))
     return refs

@@ -128,7 +128,8 @@ def test_exact_two_body_backend_passes_every_check():
     assert ran == {"non-interacting", "references", "weak-coupling-slope", "hellmann-feynman", "virial",
                    "com-tower", "parity-labels", "antisymmetric-state", "monotonic-bounds", "species-swap",
                    "normalization", "contact-convention",
-                   "declaration", "refusal", "state-count", "parity-sector", "observables", "error-bars"}
+                   "declaration", "refusal", "state-count", "parity-sector", "observables", "error-bars",
+                   "calibration"}
 
 
 def test_plug_in_without_base_class_is_checked_alike():
@@ -178,7 +179,9 @@ def test_strong_coupling_backend_passes_where_it_applies():
     problems = [Problem.create(2, 1, 30.0, states=3), Problem.create(1, 2, 40.0, states=3)]
     verdicts = validate(get("strong-coupling"), problems)
     assert not failed_checks(verdicts)
+    # the strong-coupling coefficients K against the independent quadrature route of the references
     assert statuses(verdicts, "references") == {"pass"}
+    assert all("K" in v.reason for v in verdicts if v.check == "references")
     assert statuses(verdicts, "hellmann-feynman") == {"pass"}
     assert statuses(verdicts, "parity-labels") == {"pass"}
     # it reports no <V_trap> and cannot reach g = 0: skipped, with the reason
@@ -210,4 +213,8 @@ def test_command_line_verdict_table_and_exit_code(capsys):
     assert main(["validate", "-b", "two-body", "--up", "1", "--down", "1", "--g", "0.7,-3", "--catalogue", "0",
                  "--check", "references"]) == 0
     out = capsys.readouterr().out
-    assert "g = 0.7" in out and "g = -3" in out and out.count("PASS") == 2
+    rows = [line for line in out.splitlines() if line.startswith("references")]
+    assert len(rows) == 2 and all("PASS" in row for row in rows)
+    assert "g = 0.7" in out and "g = -3" in out
+    # the level comparisons also give the error-bar calibration of the backend (exact roots: 100 % covered)
+    assert any(line.startswith("calibration") and "PASS" in line for line in out.splitlines())
