@@ -68,7 +68,7 @@ CASES_1P1 = [(1.0, -2.0), (1.0, 2.0), (40 / 6, -2.0), (40 / 6, 2.0)]
 @pytest.mark.parametrize("mass_down, g", CASES_1P1)
 def test_continuum_limit_of_1p1_matches_busch_within_the_error_bar(mass_down, g):
     # Reference: the two-body backend, the exact root of Busch et al., Found. Phys. 28, 549 (1998);
-    # the anchors file (tables 2.1, 2.2) lists the same values, e.g. 1.56467480944 for m = 40/6, g = 2.
+    # those roots are re-derived by ODE shooting of the relative problem in test_references.py.
     problem = Problem.create(1, 1, g, mass_down=mass_down, states=3)
     exact = get("two-body").solve(problem)
     scale = lattice.length_scale(problem)
@@ -78,8 +78,8 @@ def test_continuum_limit_of_1p1_matches_busch_within_the_error_bar(mass_down, g)
         assert abs(result.energies[k] - exact.energies[k]) <= 1e-4 * abs(exact.energies[k])
         assert result.states[k]["parity"] == exact.states[k]["parity"]
     if (mass_down, g) == (1.0, 2.0):
-        # anchors 3.4: <delta> = dE/dg = 0.1397611296 at g = 2 (Hellmann-Feynman on the exact root)
-        assert result.scalars["delta"] == pytest.approx(0.1397611296, rel=1e-4)
+        # <delta> = dE/dg (Hellmann-Feynman) of the exact state, from the two-body backend's wave function
+        assert result.scalars["delta"] == pytest.approx(exact.scalars["delta"], rel=1e-4)
 
 
 def test_non_harmonic_trap_free_spectrum_matches_a_spectral_one_body_solution():
@@ -162,7 +162,7 @@ def test_few_body_energies_agree_with_oscillator_ed_within_combined_error_bars(n
 
 
 def test_mass_ratio_40_over_6_runs_at_g_0_to_the_closed_form_and_large_systems_are_refused():
-    # g = 0 with the same omega: E = (N_up^2 + N_down^2) / 2 for any masses (anchors section 1, derived).
+    # g = 0 with the same omega: E = (N_up^2 + N_down^2) / 2 for any masses (textbook oscillator towers).
     result = BACKEND.solve(Problem.create(2, 1, 0.0, mass_down=40 / 6), spacings=(0.3, 0.25, 0.2), x_max=5.5)
     assert abs(result.energies[0] - 2.5) <= result.error_estimate
     assert result.states[0]["parity"] == -1  # two up fermions in orbitals 0 and 1
