@@ -19,6 +19,7 @@ longer, since its worker kills it at its limit). Everything finished before is i
 
 from __future__ import annotations
 
+import contextlib
 import time
 from collections.abc import Callable
 
@@ -104,7 +105,8 @@ def run_on_dask(
                 raise SweepStalled(f"no task finished for {stall_s:g} s ({len(pending)} task(s) not run); check the"
                                    " workers, or raise the wait with --stall-timeout")
     except (KeyboardInterrupt, SweepStalled):
-        client.cancel(list(pending), force=True)
+        with contextlib.suppress(Exception):  # a vanished scheduler must not hide why the sweep stopped
+            client.cancel(list(pending), force=True)
         raise
     finally:
         client.close(timeout=10)

@@ -154,8 +154,8 @@ class Store:
         except sqlite3.DatabaseError as exc:
             raise DamagedStore(path, f"sqlite: {exc}") from None
         store = cls(connection, path)
-        with contextlib.suppress(StoreBusy), store.writer_lock():
-            pass  # taking the lock marks runs orphaned by a killed sweep as interrupted
+        with contextlib.suppress(StoreBusy, OSError), store.writer_lock():
+            pass  # taking the lock marks runs orphaned by a killed sweep as interrupted (readers may lack write access)
         return store
 
     def close(self) -> None:
