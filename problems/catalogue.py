@@ -8,7 +8,10 @@ omega = 1 for both species. Units: hbar = omega = m0 = 1, g in sqrt(hbar^3 omega
 
 Entry names read "<N_up>+<N_down>/<masses>/<regime>", e.g. "2+1/equal/intermediate" or
 "1+1/40:6/strong-attractive". References come from ``references.references_for`` and are computed
-on first use.
+on first use; each carries its value, uncertainty, kind and source (the paper or library behind it,
+evaluated by ``trapbench.problems.exact``), which ``trapbench catalogue NAME`` prints. Finite-g
+energies are given only where exact (g = 0, and 1+1 at any g); elsewhere an entry lists the exact
+coefficients K, dE/dg at g = 0 and the g = +inf levels.
 """
 
 from __future__ import annotations
