@@ -9,7 +9,9 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import pkgutil
+import signal
 import sys
 
 from ..backends.base import SolverError, Unsupported
@@ -79,6 +81,9 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"trapbench {args.command}: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # the reader of our output (e.g. `| head`) closed early: not a fault to report
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())  # no second error at interpreter exit
+        return 128 + signal.SIGPIPE
 
 
 if __name__ == "__main__":

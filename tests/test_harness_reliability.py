@@ -449,7 +449,7 @@ def test_a_fresh_interpreter_gives_the_forkserver_guarantees(toy_path):
         assert dead.status == "crashed" and "SIGABRT" in dead.error, (method, dead)
 
 
-def test_blas_thread_limit_reaches_the_backend_and_the_ed_engine(toy_path, monkeypatch):
+def test_blas_thread_limit_reaches_the_backend_and_the_ed_engine(toy_path, tmp_path, monkeypatch):
     import numpy as np
     from threadpoolctl import threadpool_info, threadpool_limits
 
@@ -462,6 +462,12 @@ def test_blas_thread_limit_reaches_the_backend_and_the_ed_engine(toy_path, monke
         for isolated in (False, True):
             outcome = execute("toy-threads", problem, {}, isolated=isolated, limits=Limits(blas_threads=threads))
             assert outcome.solved().diagnostics["blas_threads"] == threads, (threads, isolated)
+
+    suite = parse_suite(suite_text(FREE_PROBLEMS + '[[backends]]\nname = "toy-threads"\nproblems = ["1+1 free"]\n'))
+    store_path = tmp_path / "threads.sqlite"
+    report = run_sweep(suite, SweepOptions(store_path=store_path, progress=False, blas_threads=2))
+    with Store.open(store_path) as store:
+        assert store.result(report.task_keys[0]).diagnostics["blas_threads"] == 2  # --blas-threads of a sweep
 
     seen = []
     real_eigh = np.linalg.eigh

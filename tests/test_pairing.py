@@ -91,6 +91,8 @@ def test_odd_even_command_prints_both_tables(capsys):
     assert main(["odd-even", "-b", "perturbative", "--g", "-0.5", "--max-particles", "5"]) == 0
     out = capsys.readouterr().out
     assert "pairing gap" in out and "Delta(N+1)" in out
+    assert main(["odd-even", "-b", "perturbative", "--g", "-0.5", "--max-particles", "5", "--timeout", "60"]) == 0
+    assert capsys.readouterr().out == out  # each size in its own process: the same tables
     assert main(["odd-even", "-b", "perturbative", "--g", "-0.5", "--max-particles", "1"]) == 2
 
 
