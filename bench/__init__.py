@@ -3,8 +3,10 @@
 Python API (every piece also has a command: ``trapbench sweep | check | export | advise``):
 
 - ``suite.load_suite(name_or_path) -> Suite``: problems x backends x parameter ladders, tolerances;
-- ``sweep.run_sweep(suite, SweepOptions(...)) -> SweepReport``: runs the tasks not yet stored, each
-  in an isolated child process (``runner``), serially or on Dask (``distributed``);
+- ``executor.execute(backend, problem, params, isolated=False, limits=None) -> Outcome``: one backend
+  on one problem, in this process or in an isolated child (``runner``), with one error handling;
+- ``sweep.run_sweep(suite, SweepOptions(...)) -> SweepReport``: runs the tasks whose stored outcome
+  does not stand, each through the executor, isolated, serially or on Dask (``distributed``);
 - ``store.Store.open(path)``: the SQLite results store; ``tasks_frame()``, ``results_frame()``,
   ``result(task_key)``, ``export(path)``;
 - ``tables``: agreement, accuracy-vs-cost, cost-vs-N and calibration tables from a results frame,
