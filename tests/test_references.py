@@ -315,6 +315,23 @@ def test_wedge_slopes_reduce_to_the_spin_chain_diagonal_for_equal_masses():
     assert all(math.isnan(level.k) for level in wedge_spectrum(Problem.create(2, 1, 5.0, states=3)))
 
 
+@pytest.mark.parametrize("pair_mass,odd_mass", [(40 / 6, 1.0), (0.15, 1.0)])
+def test_wedge_wall_integrals_by_mpmath(pair_mass, odd_mass):
+    # the Laguerre moments behind K of the wedge levels, by mpmath.quad (the module uses scipy.integrate.quad)
+    import mpmath
+
+    from trapbench.problems.exact.wedges import wedge_angles, wedge_wall_integral
+
+    theta_outside, theta_inside = wedge_angles(pair_mass, odd_mass)
+    for theta, nu, radial in ((2 * theta_outside, math.pi / theta_outside, 0), (theta_inside, math.pi / theta_inside, 1)):
+        def moment(power):
+            integrand = lambda t: t**power * mpmath.laguerre(radial, nu, t) ** 2 * mpmath.exp(-t)  # noqa: E731
+            return mpmath.quad(integrand, [0, 1, 10, mpmath.inf]) / 2
+
+        expected = float(nu * nu * moment(nu - 1.5) / (theta / 2 * moment(nu)))
+        assert wedge_wall_integral(theta, nu, radial) == pytest.approx(expected, abs=1e-12)
+
+
 def test_unequal_mass_wedge_slopes_are_references():
     refs = references_for(Problem.create(1, 2, 30.0, mass_down=40 / 6, states=2))
     k = [r.value for r in refs if r.quantity == "K"]

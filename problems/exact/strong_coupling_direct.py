@@ -110,7 +110,8 @@ def direct_exchange_coefficients(n_particles: int) -> DirectExchange:
 def strong_coupling_k_values(n_up: int, n_down: int, parity: int | None = None) -> tuple[list[float], float]:
     """(K values in descending order in the spatial parity sector ``parity`` (+1, -1, None = both), uncertainty).
 
-    The uncertainty bounds the K error by the J_k error times sum over k of ||1 - P_{k,k+1}|| = 2.
+    Uncertainty: by Weyl's inequality |dK| <= ||dH_spin|| <= sum_k |dJ_k| ||1 - P_{k,k+1}|| = 2 sum_k |dJ_k|,
+    plus a rounding allowance of 1e-12 times the shift c.
     """
     n = n_up + n_down
     exchange = direct_exchange_coefficients(n)
