@@ -167,8 +167,8 @@ ACCURACY_VS_COST_COLUMNS = ["problem_name", "g", "backend", "target", "verdict",
                             "ref_rel_uncertainty", "error_basis", "cpu_s", "wall_s", "peak_mib"]
 
 
-def _best_or_none(values: pd.Series):
-    values = pd.to_numeric(values, errors="coerce").dropna()
+def _smallest(values: pd.Series):
+    values = values.dropna()
     return None if values.empty else float(values.min())
 
 
@@ -180,13 +180,18 @@ def accuracy_vs_cost_table(frame: pd.DataFrame, thresholds: Iterable[float] = TH
     measured bound) or "no error measure".
     """
     ok = successful_ground_states(frame)
+    for column in ("accuracy", "own_rel_error", "ref_rel_uncertainty"):
+        ok[column] = pd.to_numeric(ok[column], errors="coerce")
+    thresholds = tuple(thresholds)
+    for i, threshold in enumerate(thresholds):
+        ok[f"_verdict{i}"] = judge_frame(ok, threshold)
     rows = []
     for (name, g, backend), group in ok.groupby(["problem_name", "g", "backend"], sort=False):
-        for threshold in thresholds:
-            status = judge_frame(group, threshold)
-            row = {"problem_name": name, "g": g, "backend": backend, "target": threshold,
-                   "accuracy": _best_or_none(group["accuracy"]), "own_error": _best_or_none(group["own_rel_error"]),
-                   "ref_rel_uncertainty": _best_or_none(group["ref_rel_uncertainty"])}
+        best = {"accuracy": _smallest(group["accuracy"]), "own_error": _smallest(group["own_rel_error"]),
+                "ref_rel_uncertainty": _smallest(group["ref_rel_uncertainty"])}
+        for i, threshold in enumerate(thresholds):
+            status = group[f"_verdict{i}"]
+            row = {"problem_name": name, "g": g, "backend": backend, "target": threshold, **best}
             if (status == REACHED).any():
                 reached = group[status == REACHED]
                 pick = reached.loc[reached["cost_cpu_s"].idxmin()]

@@ -110,17 +110,20 @@ def judge_frame(frame: pd.DataFrame, threshold: float, deviation: str = "rel_err
     """
     if not threshold > 0:
         raise ValueError(f"threshold: got {threshold!r}; give a positive error to judge against")
-    dev = pd.to_numeric(frame[deviation], errors="coerce").abs()
-    unc = pd.to_numeric(frame[reference_uncertainty], errors="coerce")
-    own = pd.to_numeric(frame[own_error], errors="coerce")
-    has_reference = dev.notna() & unc.notna()
-    decides = has_reference & (unc * REFERENCE_MARGIN <= threshold)
-    status = np.where(own.notna(), UNVERIFIED, NO_MEASURE).astype(object)
-    status[has_reference.to_numpy()] = UNVERIFIED
-    provably_missed = has_reference & (dev - unc > threshold)
-    status[provably_missed.to_numpy()] = MISSED
-    status[(decides & (dev + unc <= threshold)).to_numpy()] = REACHED
-    status[(decides & (dev + unc > threshold)).to_numpy()] = MISSED
+
+    def numbers(column: str) -> np.ndarray:
+        return pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
+
+    dev, unc, own = np.abs(numbers(deviation)), numbers(reference_uncertainty), numbers(own_error)
+    has_reference = ~np.isnan(dev) & ~np.isnan(unc)
+    with np.errstate(invalid="ignore"):  # NaN rows compare False, which is what they mean
+        decides = has_reference & (unc * REFERENCE_MARGIN <= threshold)
+        within = dev + unc <= threshold
+        provably_missed = has_reference & (dev - unc > threshold)
+    status = np.where(~np.isnan(own) | has_reference, UNVERIFIED, NO_MEASURE).astype(object)
+    status[provably_missed] = MISSED
+    status[decides & within] = REACHED
+    status[decides & ~within] = MISSED
     return pd.Series(status, index=frame.index, dtype=object)
 
 
