@@ -19,6 +19,8 @@ Either way the parent watches the child every ``POLL_S`` seconds:
   processes the task itself starts are not counted;
 - the child dies without answering (segfault, ``os.abort``, ``sys.exit``) -> status ``crashed``
   with the signal or exit code;
+- the watcher itself dies (a ``subprocess`` child's watcher, e.g. a killed Dask worker) -> the
+  kernel kills the child too (Linux ``PR_SET_PDEATHSIG``), so no task outlives its limits unwatched;
 - otherwise the child's own answer, classified by ``executor.solve_payload``.
 
 Measured for every task: wall time (parent clock, child start to end; with ``subprocess`` it
@@ -96,11 +98,29 @@ def _forked_main(conn, payload: dict, sys_path: list[str] | None) -> None:
     conn.close()
 
 
+def _die_with(parent_pid: int) -> None:
+    """Linux: have the kernel SIGKILL this process when its watcher dies (``PR_SET_PDEATHSIG``).
+
+    A watcher killed from outside (a Dask worker under ``kill -9``) would otherwise leave its task
+    running unwatched, past every limit. The parent may already be gone when this runs: then exit.
+    """
+    import ctypes
+
+    try:
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(1, signal.SIGKILL)  # 1 = PR_SET_PDEATHSIG
+    except (OSError, AttributeError):  # not Linux: the task still ends at its own end
+        return
+    if os.getppid() != parent_pid:
+        os._exit(1)
+
+
 def main(argv: list[str] | None = None) -> int:
     """Entry point of a ``subprocess`` child: ``python -m trapbench.bench.runner PAYLOAD.json ANSWER.json``."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     payload_path, answer_path = argv if argv is not None else sys.argv[1:3]
     payload = json.loads(Path(payload_path).read_text(encoding="utf-8"))
+    _die_with(payload["watcher_pid"])
     with contextlib.suppress(Exception):  # import the backend before measuring, as the forkserver does
         from ..backends import registry
 
@@ -203,7 +223,7 @@ class _SubprocessChild:
     def __init__(self, payload: dict, sys_path: list[str]):
         self._folder = tempfile.TemporaryDirectory(prefix="trapbench-task-")
         payload_path = Path(self._folder.name) / "payload.json"
-        payload_path.write_text(json.dumps(payload), encoding="utf-8")
+        payload_path.write_text(json.dumps({**payload, "watcher_pid": os.getpid()}), encoding="utf-8")
         self._answer_path = Path(self._folder.name) / "answer.json"
         env = {**os.environ, "PYTHONPATH": os.pathsep.join(p for p in sys_path if p)}
         self._process = subprocess.Popen([sys.executable, "-m", "trapbench.bench.runner", str(payload_path),

@@ -491,3 +491,31 @@ def test_solve_and_odd_even_use_the_executor_and_keep_input_errors_one_line(caps
     assert "did you mean 'perturbative'" in one_line_error(capsys)
     assert main(["odd-even", "-b", "perturbative", "--g", "-1", "-p", "order=9"]) == 2
     assert "param.order" in one_line_error(capsys)
+
+
+def test_a_fresh_interpreter_task_dies_with_its_watcher(toy_path, tmp_path):
+    """kill -9 of the process watching a task (as of a Dask worker) must not leave the task running unwatched."""
+    import psutil
+
+    watcher_script = tmp_path / "watcher.py"
+    watcher_script.write_text(
+        "from trapbench.bench.executor import Limits\n"
+        "from trapbench.bench.runner import SUBPROCESS, run_isolated\n"
+        "from trapbench.problems.spec import Problem\n"
+        "run_isolated({'backend': 'toy-sleep', 'problem': Problem.create(1, 1, 0.0).to_dict(),\n"
+        "              'params': {'seconds': 120.0}}, Limits(timeout_s=300), method=SUBPROCESS)\n")
+    watcher = subprocess.Popen([sys.executable, str(watcher_script)], env=toy_env(toy_path))
+    try:
+        deadline = time.monotonic() + 60
+        tasks: list = []
+        while time.monotonic() < deadline and not tasks:
+            time.sleep(0.2)
+            tasks = psutil.Process(watcher.pid).children()
+        (task,) = tasks
+        time.sleep(2.0)  # let the child reach its own setup (the death signal is armed at its start)
+        watcher.send_signal(signal.SIGKILL)
+        watcher.wait()
+        gone, alive = psutil.wait_procs([task], timeout=10)
+        assert task in gone and not alive  # 120 s before it would have ended by itself
+    finally:
+        kill_tree(watcher)
