@@ -2,16 +2,18 @@
 
 Configurations 1+1, 2+1, 1+2, 3+1, 2+2, 3+2, 3+3, 4+4, 6+6 with equal masses in four regimes of g
 (strongly attractive, weak, intermediate, strongly repulsive); the configurations with N <= 4 also
-with the mass ratios m_up/m_down = 40/6 and 6/40 (as for a 40K-6Li mixture). The reference mass m0
-is the lighter species, so the heavy species has mass 40/6 and the light one 1. Harmonic trap,
+with the mass ratios m_up/m_down = 40/6 and 6/40 (= 20/3 and 3/20, a heavy-light check value). The reference
+mass m0 is the lighter species, so the heavy species has mass 40/6 and the light one 1. Harmonic trap,
 omega = 1 for both species. Units: hbar = omega = m0 = 1, g in sqrt(hbar^3 omega / m0).
 
 Entry names read "<N_up>+<N_down>/<masses>/<regime>", e.g. "2+1/equal/intermediate" or
 "1+1/40:6/strong-attractive". References come from ``references.references_for`` and are computed
 on first use; each carries its value, uncertainty, kind and source (the paper or library behind it,
 evaluated by ``trapbench.problems.exact``), which ``trapbench catalogue NAME`` prints. Finite-g
-energies are given only where exact (g = 0, and 1+1 at any g); elsewhere an entry lists the exact
-coefficients K, dE/dg at g = 0 and the g = +inf levels.
+energies are exact at g = 0 and for 1+1 at any g; elsewhere they come from the reference dataset
+(``problems.dataset``) where it has the point, beside the exact coefficients K, dE/dg at g = 0 and the
+g = +inf levels. Every point of the shipped dataset is also an entry of its own,
+"dataset/<N_up>+<N_down>/m=<m_up/m_down>/g=<g>".
 """
 
 from __future__ import annotations
@@ -20,6 +22,7 @@ import difflib
 from dataclasses import dataclass
 from functools import lru_cache
 
+from . import dataset
 from .errors import SpecError
 from .references import Reference, references_for
 from .spec import Problem
@@ -66,7 +69,20 @@ def _entries() -> tuple[CatalogueEntry, ...]:
                     n_up, n_down, g, mass_up=mass_up, mass_down=mass_down, states=_states(n_up + n_down), label=name
                 )
                 result.append(CatalogueEntry(name, problem, regime))
-    return tuple(result)
+    return tuple(result + _dataset_entries())
+
+
+def _dataset_entries() -> list[CatalogueEntry]:
+    """One entry per point of the shipped reference dataset, named "dataset/<N_up>+<N_down>/m=<ratio>/g=<g>"."""
+    found = []
+    for point in dataset.load().entries:
+        states = len(point.levels) or 1
+        ratio = f"{point.mass_up / point.mass_down:.6g}"
+        name = f"dataset/{point.n_up}+{point.n_down}/m={ratio}/g={point.g:g}"
+        problem = Problem.create(point.n_up, point.n_down, point.g, mass_up=point.mass_up, mass_down=point.mass_down,
+                                 states=states, label=name)
+        found.append(CatalogueEntry(name, problem, "dataset"))
+    return found
 
 
 @lru_cache(maxsize=None)

@@ -134,14 +134,17 @@ class DatasetLevel:
         return self.status in ("agreed", "precision")
 
     def reference_for(self, backend: str | None) -> tuple[float, float, tuple[str, ...]] | None:
-        """(value, uncertainty, contributing methods) that may grade ``backend`` (None: no independent value)."""
+        """(value, uncertainty, contributing methods) that may grade ``backend`` (None: no independent value).
+
+        A backend whose method family (``METHOD_FAMILIES``) contributed is graded by the other families'
+        best value alone, with that method's own error bar as the uncertainty."""
         if not self.published:
             return None
         names = tuple(m.backend for m in self.methods)
-        if backend is None or backend not in names:
-            return self.value, self.uncertainty, names
         family = METHOD_FAMILIES.get(backend, backend)
         others = [m for m in self.methods if METHOD_FAMILIES.get(m.backend, m.backend) != family]
+        if backend is None or len(others) == len(self.methods):  # no method of the backend's family contributed
+            return self.value, self.uncertainty, names
         if not others:
             return None
         best = min(others, key=lambda m: m.error)

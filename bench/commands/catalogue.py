@@ -6,6 +6,7 @@ import argparse
 import json
 from dataclasses import asdict
 
+from ...problems.errors import SpecError
 from ...problems.toml_io import format_problem
 
 NAME = "catalogue"
@@ -15,7 +16,8 @@ ORDER = 45
 
 def register(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("name", nargs="?", help="an entry name, e.g. 2+1/equal/strong-repulsive")
-    parser.add_argument("--json", action="store_true", help="print the entry (problem and references) as JSON")
+    parser.add_argument("--json", action="store_true",
+                        help="print the entry (problem and references) as JSON; without a name, every entry as one array")
     parser.add_argument("--toml", action="store_true", help="print the entry's problem as a TOML spec file")
 
 
@@ -23,6 +25,11 @@ def run(args: argparse.Namespace) -> int:
     from ...problems.catalogue import entries, get
 
     if args.name is None:
+        if args.toml:
+            raise SpecError("--toml", "prints one entry's problem; name the entry (see 'trapbench catalogue')")
+        if args.json:
+            print(json.dumps([_entry_json(entry) for entry in entries()], indent=1))
+            return 0
         for entry in entries():
             print(f"{entry.name:32s} {entry.problem.describe()}, {entry.problem.targets.states} state(s)")
         return 0
@@ -31,8 +38,7 @@ def run(args: argparse.Namespace) -> int:
         print(format_problem(entry.problem), end="")
         return 0
     if args.json:
-        print(json.dumps({"name": entry.name, "problem": entry.problem.to_dict(),
-                          "references": [asdict(r) for r in entry.references]}, indent=1))
+        print(json.dumps(_entry_json(entry), indent=1))
         return 0
     print(f"{entry.name}: {entry.problem.describe()} (energies in hbar*omega, g in sqrt(hbar^3 omega/m0))")
     sources = []
@@ -44,3 +50,8 @@ def run(args: argparse.Namespace) -> int:
     for i, source in enumerate(sources, 1):
         print(f"  [{i}] {source}")
     return 0
+
+
+def _entry_json(entry) -> dict:
+    return {"name": entry.name, "regime": entry.regime, "problem": entry.problem.to_dict(),
+            "references": [asdict(r) for r in entry.references]}

@@ -1,0 +1,125 @@
+"""The reference dataset: its grid, the agreement rule, leave-one-out grading, and what the package ships.
+
+The rule itself is the project's (stated in trapbench/problems/dataset.py); the checks here are of its
+logic on rows made up for the test, and of the shipped file against exact facts that hold for any
+correct value: the g = 0 towers bound every level from below for g > 0 and from above for g < 0, and the
+g = +inf fermionized energy N^2/2 bounds equal-mass levels from above (sum delta is a positive operator;
+min-max principle, common practice).
+"""
+
+import json
+
+import pytest
+
+from trapbench.bench.cli import main
+from trapbench.bench.suite import load_suite
+from trapbench.problems import dataset
+from trapbench.problems.references import references_for
+from trapbench.problems.spec import Problem
+
+
+def row(backend, value, error, n=(2, 2), masses=(1.0, 1.0), g=2.0, state=0):
+    return {"backend": backend, "backend_version": "1", "params": {}, "n_up": n[0], "n_down": n[1],
+            "mass_up": masses[0], "mass_down": masses[1], "g": g, "state": state, "energy": value,
+            "energy_error": error, "status": "ok", "cpu_time_s": 1.0}
+
+
+def test_suite_matches_the_grid():
+    suite = load_suite("dataset")
+    grid = {p.label: p for p in dataset.dataset_problems()}
+    assert {p.name for p in suite.problems} == set(grid)
+    for problem in suite.problems:
+        assert problem.problem.physics_dict() == grid[problem.name].physics_dict()
+    # masses: ratios 1, 2, 20/3 and, for N_up != N_down, their inverses; the lighter species has mass 1
+    ratios = {round(p.up.mass / p.down.mass, 9) for p in grid.values() if (p.up.count, p.down.count) == (2, 1)}
+    assert ratios == {1.0, 2.0, round(20 / 3, 9), 0.5, round(3 / 20, 9)}
+    assert all(min(p.up.mass, p.down.mass) == 1.0 for p in grid.values())
+
+
+def test_two_independent_families_that_agree_are_published():
+    built = dataset.build([row("oscillator-ed", 10.0001, 2e-4), row("lattice-dmrg", 10.0, 1e-4)])
+    (entry,) = built.entries
+    (level,) = entry.levels
+    assert level.status == "agreed" and level.value == 10.0 and level.uncertainty == 2e-4
+
+
+def test_disagreement_or_one_family_stays_open():
+    apart = dataset.build([row("oscillator-ed", 10.01, 1e-3), row("lattice-dmrg", 10.0, 1e-3)])
+    assert apart.entries[0].levels[0].status == "open" and apart.entries[0].levels[0].value is None
+    # lattice-ed and lattice-dmrg share the lattice discretization: one family
+    lattice = dataset.build([row("lattice-ed", 10.0, 1e-3), row("lattice-dmrg", 10.0, 1e-3)])
+    assert lattice.entries[0].levels[0].status == "open"
+
+
+def test_three_particles_come_from_the_precision_method():
+    built = dataset.build([row("three-body", 4.1, 1e-10, n=(2, 1)), row("oscillator-ed", 4.2, 1e-3, n=(2, 1))])
+    level = built.entries[0].levels[0]
+    assert level.status == "precision" and level.value == 4.1 and [m.backend for m in level.methods] == ["three-body"]
+
+
+def test_each_method_keeps_its_most_precise_result():
+    built = dataset.build([row("oscillator-ed", 10.3, 1e-1), row("oscillator-ed", 10.0002, 3e-4),
+                           row("lattice-dmrg", 10.0, 1e-4)])
+    level = built.entries[0].levels[0]
+    assert level.status == "agreed" and {m.value for m in level.methods} == {10.0002, 10.0}
+
+
+def test_a_reference_never_grades_the_method_that_produced_it(monkeypatch):
+    built = dataset.build([row("oscillator-ed", 10.0002, 3e-4), row("lattice-dmrg", 10.0, 1e-4)])
+    monkeypatch.setattr(dataset, "load", lambda: built)
+    problem = Problem.create(2, 2, 2.0, states=1)
+    energy = lambda backend: [r for r in references_for(problem, for_backend=backend) if r.quantity == "energy"]
+    (for_oscillator,) = energy("oscillator-ed")
+    assert (for_oscillator.value, for_oscillator.uncertainty, for_oscillator.methods) == (10.0, 1e-4, ("lattice-dmrg",))
+    (for_lattice_ed,) = energy("lattice-ed")  # same family as lattice-dmrg: graded by the oscillator basis only
+    assert for_lattice_ed.value == 10.0002 and for_lattice_ed.methods == ("oscillator-ed",)
+    (for_others,) = energy("my-solver")
+    assert for_others.value == 10.0 and for_others.uncertainty == 3e-4 and for_others.kind == "computed"
+
+
+def test_the_build_command_writes_a_versioned_file(tmp_path):
+    from trapbench.bench.store import Store
+
+    store = tmp_path / "empty.sqlite"
+    Store.open(store).close()
+    assert main(["dataset", "--store", str(store)]) == 2  # no results of the suite: an input error
+    assert main(["dataset", "--store", str(tmp_path / "missing.sqlite")]) == 2
+
+
+def _shipped():
+    loaded = dataset.load()
+    if not loaded.entries:
+        pytest.skip("no dataset file is shipped in this installation")
+    return loaded
+
+
+def test_shipped_levels_respect_the_exact_bounds():
+    from trapbench.problems.exact import towers
+
+    for entry in _shipped().entries:
+        problem = Problem.create(entry.n_up, entry.n_down, entry.g, mass_up=entry.mass_up, mass_down=entry.mass_down,
+                                 states=len(entry.levels))
+        free = [e for e, _ in towers.noninteracting_levels(problem, len(entry.levels))]
+        for level in entry.levels:
+            if not level.published:
+                continue
+            slack = 2 * level.uncertainty + 1e-12
+            if entry.g > 0:
+                assert level.value >= free[level.state] - slack, (entry, level)
+                if entry.mass_up == entry.mass_down:
+                    assert level.value <= (entry.n_up + entry.n_down) ** 2 / 2 + slack or level.state > 0
+            else:
+                assert level.value <= free[level.state] + slack, (entry, level)
+
+
+def test_catalogue_json_prints_every_entry_with_dataset_references(capsys):
+    assert main(["catalogue", "--json"]) == 0
+    entries = json.loads(capsys.readouterr().out)
+    assert isinstance(entries, list) and len(entries) >= 76
+    assert all({"name", "problem", "references"} <= set(e) for e in entries)
+    loaded = dataset.load()
+    published = sum(1 for e in loaded.entries if any(level.published for level in e.levels))
+    served = [e for e in entries if e["name"].startswith("dataset/")]
+    assert len(served) == len(loaded.entries)
+    with_energy = [e for e in served if any(r["quantity"] == "energy" and r["kind"] == "computed" for r in e["references"])]
+    assert len(with_energy) == published
