@@ -19,8 +19,8 @@ Either way the parent watches the child every ``POLL_S`` seconds:
   processes the task itself starts are not counted;
 - the child dies without answering (segfault, ``os.abort``, ``sys.exit``) -> status ``crashed``
   with the signal or exit code;
-- the watcher itself dies (a ``subprocess`` child's watcher, e.g. a killed Dask worker) -> the
-  kernel kills the child too (Linux ``PR_SET_PDEATHSIG``), so no task outlives its limits unwatched;
+- the watcher itself dies (a coordinator or Dask worker under ``kill -9``) -> the child ends too
+  (``_end_with``), so no task outlives its limits unwatched;
 - otherwise the child's own answer, classified by ``executor.solve_payload``.
 
 Measured for every task: wall time (parent clock, child start to end; with ``subprocess`` it
@@ -42,12 +42,14 @@ import signal
 import subprocess
 import sys
 import tempfile
+import threading
 import time
 from pathlib import Path
 
 from .executor import CRASHED, OUT_OF_MEMORY, TIMEOUT, Limits, Outcome, now_utc, solve_payload
 
 POLL_S = 0.02
+WATCHDOG_S = 1.0
 MIB = 1024 * 1024
 FORKSERVER = "forkserver"
 SUBPROCESS = "subprocess"
@@ -88,9 +90,46 @@ def _measured_solve(payload: dict) -> tuple:
     return status, error, error_type, result, cpu, _status_kib("VmHWM") * 1024
 
 
+def _end_with(watcher_pid: int) -> None:
+    """End this task when the process watching it dies (a coordinator or Dask worker under ``kill -9``).
+
+    Unwatched, a task would run on past every limit. A direct child of its watcher (``subprocess``)
+    asks the kernel to SIGKILL it then (Linux ``PR_SET_PDEATHSIG``); a forkserver child, whose parent
+    is the server, checks every ``WATCHDOG_S`` seconds from a daemon thread.
+    """
+    if os.getppid() == watcher_pid and _killed_by_kernel_with_parent():
+        if os.getppid() != watcher_pid:  # the watcher died before the request took effect
+            os._exit(1)
+        return
+    threading.Thread(target=_watchdog, args=(watcher_pid,), daemon=True, name="trapbench-watchdog").start()
+
+
+def _killed_by_kernel_with_parent() -> bool:
+    import ctypes
+
+    try:
+        return ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL) == 0  # 1 = PR_SET_PDEATHSIG
+    except (OSError, AttributeError):  # not Linux
+        return False
+
+
+def _watchdog(watcher_pid: int) -> None:
+    import psutil
+
+    while True:
+        time.sleep(WATCHDOG_S)
+        try:
+            alive = psutil.Process(watcher_pid).status() != psutil.STATUS_ZOMBIE
+        except psutil.NoSuchProcess:
+            alive = False
+        if not alive:
+            os._exit(1)
+
+
 def _forked_main(conn, payload: dict, sys_path: list[str] | None) -> None:
     """Entry point of a forkserver child: solve one task and send the measured answer."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the coordinator decides what Ctrl-C stops
+    _end_with(payload["watcher_pid"])
     if sys_path is not None:
         sys.path[:] = sys_path
     answer = _measured_solve(payload)  # a task that exits or dies here closes the pipe unanswered: "crashed"
@@ -98,29 +137,12 @@ def _forked_main(conn, payload: dict, sys_path: list[str] | None) -> None:
     conn.close()
 
 
-def _die_with(parent_pid: int) -> None:
-    """Linux: have the kernel SIGKILL this process when its watcher dies (``PR_SET_PDEATHSIG``).
-
-    A watcher killed from outside (a Dask worker under ``kill -9``) would otherwise leave its task
-    running unwatched, past every limit. The parent may already be gone when this runs: then exit.
-    """
-    import ctypes
-
-    try:
-        libc = ctypes.CDLL(None, use_errno=True)
-        libc.prctl(1, signal.SIGKILL)  # 1 = PR_SET_PDEATHSIG
-    except (OSError, AttributeError):  # not Linux: the task still ends at its own end
-        return
-    if os.getppid() != parent_pid:
-        os._exit(1)
-
-
 def main(argv: list[str] | None = None) -> int:
     """Entry point of a ``subprocess`` child: ``python -m trapbench.bench.runner PAYLOAD.json ANSWER.json``."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     payload_path, answer_path = argv if argv is not None else sys.argv[1:3]
     payload = json.loads(Path(payload_path).read_text(encoding="utf-8"))
-    _die_with(payload["watcher_pid"])
+    _end_with(payload["watcher_pid"])
     with contextlib.suppress(Exception):  # import the backend before measuring, as the forkserver does
         from ..backends import registry
 
@@ -223,7 +245,7 @@ class _SubprocessChild:
     def __init__(self, payload: dict, sys_path: list[str]):
         self._folder = tempfile.TemporaryDirectory(prefix="trapbench-task-")
         payload_path = Path(self._folder.name) / "payload.json"
-        payload_path.write_text(json.dumps({**payload, "watcher_pid": os.getpid()}), encoding="utf-8")
+        payload_path.write_text(json.dumps(payload), encoding="utf-8")
         self._answer_path = Path(self._folder.name) / "answer.json"
         env = {**os.environ, "PYTHONPATH": os.pathsep.join(p for p in sys_path if p)}
         self._process = subprocess.Popen([sys.executable, "-m", "trapbench.bench.runner", str(payload_path),
@@ -258,7 +280,7 @@ def run_isolated(payload: dict, limits: Limits, sys_path: list[str] | None = Non
     """
     import psutil
 
-    payload = {**payload, "blas_threads": limits.blas_threads}
+    payload = {**payload, "blas_threads": limits.blas_threads, "watcher_pid": os.getpid()}
     sys_path = list(sys.path) if sys_path is None else sys_path
     method = method or default_method()
     started = now_utc()

@@ -493,29 +493,37 @@ def test_solve_and_odd_even_use_the_executor_and_keep_input_errors_one_line(caps
     assert "param.order" in one_line_error(capsys)
 
 
-def test_a_fresh_interpreter_task_dies_with_its_watcher(toy_path, tmp_path):
-    """kill -9 of the process watching a task (as of a Dask worker) must not leave the task running unwatched."""
+@pytest.mark.parametrize("method", [FORKSERVER, SUBPROCESS])
+def test_an_isolated_task_dies_with_its_watcher(toy_path, tmp_path, method):
+    """kill -9 of the process watching a task (a coordinator, a Dask worker) must not leave the task running unwatched."""
     import psutil
 
     watcher_script = tmp_path / "watcher.py"
     watcher_script.write_text(
         "from trapbench.bench.executor import Limits\n"
-        "from trapbench.bench.runner import SUBPROCESS, run_isolated\n"
+        "from trapbench.bench.runner import run_isolated\n"
         "from trapbench.problems.spec import Problem\n"
-        "run_isolated({'backend': 'toy-sleep', 'problem': Problem.create(1, 1, 0.0).to_dict(),\n"
-        "              'params': {'seconds': 120.0}}, Limits(timeout_s=300), method=SUBPROCESS)\n")
+        "if __name__ == '__main__':\n"
+        "    run_isolated({'backend': 'toy-sleep', 'problem': Problem.create(1, 1, 0.0).to_dict(),\n"
+        f"                  'params': {{'seconds': 120.0}}}}, Limits(timeout_s=300), method={method!r})\n")
     watcher = subprocess.Popen([sys.executable, str(watcher_script)], env=toy_env(toy_path))
     try:
         deadline = time.monotonic() + 60
-        tasks: list = []
-        while time.monotonic() < deadline and not tasks:
+        def is_task(process) -> bool:  # a fresh interpreter running the runner, or a forkserver's child
+            if method == SUBPROCESS:
+                return process.cmdline()[1:3] == ["-m", "trapbench.bench.runner"]
+            return process.ppid() != watcher.pid
+
+        family: list = []
+        while time.monotonic() < deadline and not any(is_task(p) for p in family):
             time.sleep(0.2)
-            tasks = psutil.Process(watcher.pid).children()
-        (task,) = tasks
-        time.sleep(2.0)  # let the child reach its own setup (the death signal is armed at its start)
+            family = psutil.Process(watcher.pid).children(recursive=True)
+        assert any(is_task(p) for p in family), "the task never started"
+        time.sleep(2.0)  # let the task reach its own setup (the death signal is armed at its start)
+        family = psutil.Process(watcher.pid).children(recursive=True)
         watcher.send_signal(signal.SIGKILL)
         watcher.wait()
-        gone, alive = psutil.wait_procs([task], timeout=10)
-        assert task in gone and not alive  # 120 s before it would have ended by itself
+        gone, alive = psutil.wait_procs(family, timeout=10)
+        assert not alive, alive  # the task would have slept 120 s
     finally:
         kill_tree(watcher)
