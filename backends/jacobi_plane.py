@@ -143,7 +143,7 @@ class ElementSpace:
         return result
 
 
-def radial_nodes(outer_radius: float, core: float, grading: float = 0.2, layers: int = 8, width: float = 1.0) -> np.ndarray:
+def radial_nodes(outer_radius: float, core: float, grading: float = 0.2, layers: int = 4, width: float = 2.0) -> np.ndarray:
     """Mesh on [0, R]: geometric layers core * grading^k toward 0, then elements of at most ``width``.
 
     ``core`` is the length below which the ray term changes the angular shape (about 1/|lambda|),
@@ -233,12 +233,12 @@ class QuarterPlane:
         n = self.dimension
 
         def solve(b: np.ndarray) -> np.ndarray:
-            y = np.einsum("mij,mj->mi", inverses, self._shape(np.asarray(b, dtype=float).ravel()))
+            y = np.matmul(inverses, self._shape(np.asarray(b, dtype=float).ravel())[:, :, None])[:, :, 0]
             if self.coupling == 0.0:
                 return y.ravel()
             on_ray = self.ray_values @ y
             correction = coupling_matrix @ linalg.lu_solve(capacitance_lu, on_ray)
-            y -= np.einsum("mij,j->mi", inverses, correction) * self.ray_values[:, None]
+            y -= (inverses @ correction) * self.ray_values[:, None]
             return y.ravel()
 
         return sparse_linalg.LinearOperator((n, n), matvec=solve, dtype=float)

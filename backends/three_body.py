@@ -152,9 +152,14 @@ class ThreeBodyBackend(Backend):
         dimensions = []
         for parity in RELATIVE_PARITIES:
             runs = []
+            shift = sigma
             for order in orders:
                 plane = QuarterPlane(alpha, lam, parity, order, radial, angular)
-                runs.append(plane.lowest(count, sigma))
+                runs.append(plane.lowest(count, shift))
+                # the next rung's levels lie below this one's (nested spaces) by far less than this margin;
+                # a shift close below them makes shift-invert converge in few iterations
+                lowest = runs[-1].energies[0]
+                shift = max(sigma, lowest - 0.25 * max(1.0, abs(lowest)))
             dimensions.append(runs[-1].dimension)
             energies = np.array([run.energies for run in runs])
             if np.any(np.diff(energies, axis=0) > 1e-9 * np.maximum(1.0, np.abs(energies[1:]))):
