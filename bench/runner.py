@@ -53,7 +53,7 @@ WATCHDOG_S = 1.0
 MIB = 1024 * 1024
 FORKSERVER = "forkserver"
 SUBPROCESS = "subprocess"
-BASE_PRELOAD = ("numpy", "scipy", "scipy.sparse", "scipy.sparse.linalg", "threadpoolctl", "trapbench.backends",
+BASE_PRELOAD = ("numpy", "scipy", "scipy.sparse", "scipy.sparse.linalg", "threadpoolctl", "psutil", "trapbench.backends",
                 "trapbench.bench.executor", "trapbench.bench.runner", "trapbench.bench.warm")
 
 
