@@ -17,7 +17,15 @@ Measured discretization error (1+1, x_max = 6, spacings 0.05-0.2, masses (1, 1) 
 g = +-2, against the exact two-body roots): E(a) - E = c_2 a^2 + c_4 a^4 + ... to high accuracy; the
 local order is 2.0, the error is negative for g > 0 and positive for g < 0, and a fit with powers
 (2, 4) over a = 0.2 ... 0.075 leaves relative errors of 1e-8 to 1e-5. The continuum limit is
-therefore taken with ``extrapolate_polynomial(powers=(2, 4))`` over a ladder of spacings.
+therefore ``CONTINUUM_MODEL`` (a polynomial in a with powers (2, 4)) over a ladder of spacings, run
+through the shared convergence ladder (``solve_continuum_ladder``, ``backends/ladder.py``).
+
+Every lattice backend builds its operator from ``terms(problem, grid)`` (``LatticeTerms``), the one
+description of the lattice Hamiltonian. Default ladders are fractions of the problem's shortest
+length (``length_scale``: oscillator lengths, box wavelength, two-body bound-state size); when the
+finest of them exceeds a backend's size budget (``Budget``), the same ladder shape is scaled to the
+finest spacing that fits, the result says so with the error bar that ladder gave, and the problem is
+refused only when no useful ladder fits (``fit_to_budget``).
 
 Box: a hard-wall trap keeps its walls (Dirichlet sites strictly inside); any other trap gets the
 half width X from the widest occupied one-body orbital plus a margin, validated by the weight of
@@ -27,8 +35,9 @@ that orbital at the edge sites (grown until it is below ``edge_tolerance``).
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
-from dataclasses import dataclass
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 import scipy.linalg
@@ -36,7 +45,10 @@ import scipy.sparse as sp
 
 from ..problems.errors import SpecError
 from ..problems.spec import Problem, Species
-from .extrapolation import Extrapolation, extrapolate_polynomial
+from .base import Parameter
+from .extrapolation import PolynomialModel
+from .ladder import Rung, RungLevel, rank_keys, run_ladder
+from .result import Observable, Solution
 
 # Powers of the spacing in the continuum extrapolation (see the module docstring for the measurement).
 CONTINUUM_POWERS = (2.0, 4.0)
@@ -119,12 +131,36 @@ def make_grid(problem: Problem, spacing: float, half_width: float) -> Grid:
     return Grid(x=x, spacing=a)
 
 
+@dataclass(frozen=True)
+class LatticeTerms:
+    """The lattice Hamiltonian of the module docstring on one grid: the single description every
+    lattice backend builds its operator from.
+
+    ``hopping[s]`` = t_s, ``onsite[s]`` = 2 t_s + V_s(x_j) (finite on every site), ``interaction`` =
+    U = g / a, for s = 0 (up), 1 (down).
+    """
+
+    grid: Grid
+    hopping: tuple[float, float]
+    onsite: tuple[np.ndarray, np.ndarray]
+    interaction: float
+
+    def one_body_matrix(self, species: int) -> sp.csr_matrix:
+        """The tridiagonal h_s, a sparse L x L matrix."""
+        off = np.full(self.grid.sites - 1, -self.hopping[species])
+        return sp.diags([off, self.onsite[species], off], [-1, 0, 1], format="csr")
+
+
+def terms(problem: Problem, grid: Grid) -> LatticeTerms:
+    """The lattice Hamiltonian of ``problem`` on ``grid``; refuses a potential infinite on a site."""
+    hoppings = tuple(hopping(s, grid.spacing) for s in problem.species)
+    onsite = tuple(2 * t + _site_potential(problem, s, grid) for t, s in zip(hoppings, problem.species))
+    return LatticeTerms(grid, hoppings, onsite, onsite_coupling(problem.coupling, grid.spacing))
+
+
 def one_body_matrix(problem: Problem, species: Species, grid: Grid) -> sp.csr_matrix:
     """The tridiagonal h_s of the module docstring, a sparse L x L matrix."""
-    t = hopping(species, grid.spacing)
-    potential = _site_potential(problem, species, grid)
-    off = np.full(grid.sites - 1, -t)
-    return sp.diags([off, 2 * t + potential, off], [-1, 0, 1], format="csr")
+    return terms(problem, grid).one_body_matrix(problem.species.index(species))
 
 
 def one_body_spectrum(problem: Problem, species: Species, grid: Grid, count: int | None = None):
@@ -202,16 +238,215 @@ def density_edge_warning(density: np.ndarray, grid: Grid, label: str, tolerance:
     return None
 
 
-def continuum_limit(spacings: Sequence[float], values: Sequence[float]) -> Extrapolation:
-    """E(a -> 0) from a ladder of spacings with the model E(a) = E0 + c2 a^2 + c4 a^4.
+# ----------------------------------------------------------------------------- continuum ladder
 
-    With two spacings only the a^2 term is kept (Richardson extrapolation); one spacing gives no
-    limit (error None is not allowed, so the caller must refuse a ladder shorter than two).
+# The continuum limit: E(a) = E0 + c2 a^2 + c4 a^4 (two spacings: the a^2 term only).
+CONTINUUM_MODEL = PolynomialModel(powers=CONTINUUM_POWERS)
+# A budget-fitted default ladder is useful while its finest spacing is at most this fraction of
+# ``length_scale`` (its coarsest, 2.5 times wider, then still puts a site per shortest length).
+# Measured: 2+1, masses 0.15/1, g = 5 over a = 0.70 ... 0.36 (of a length 1) extrapolates to within
+# 2e-5 relative of oscillator-ed (bench_lattice_results.md).
+USEFUL_FINEST_FRACTION = 0.4
+
+# The discretization parameters every lattice backend takes.
+LADDER_PARAMETERS = (
+    Parameter("spacings", tuple, None, "lattice spacings (>= 2; default: fractions of the shortest length, coarsened to fit the budget)"),
+    Parameter("x_max", float, None, "lattice half width (default: widest occupied orbital plus a margin)"),
+)
+
+
+@dataclass(frozen=True)
+class Budget:
+    """A backend's size limit on one lattice: ``measure(sites) <= limit`` (e.g. the basis dimension)."""
+
+    parameter: str  # the backend parameter that sets ``limit``, e.g. "max_dimension"
+    limit: float
+    measure: Callable[[int], float]
+    quantity: str  # what ``measure`` counts, e.g. "basis states"
+
+    def fits(self, grid: Grid) -> bool:
+        return self.measure(grid.sites) <= self.limit
+
+    def excess(self, grid: Grid) -> str:
+        return f"{grid.sites} sites give {self.measure(grid.sites):.3g} {self.quantity} (> {self.parameter} = {self.limit:.3g})"
+
+
+@dataclass(frozen=True)
+class SpacingLadder:
+    """The spacings (coarsest first), the half width, and why the default ladder was coarsened (or None)."""
+
+    spacings: tuple[float, ...]
+    half_width: float
+    fitted: str | None = None
+
+
+def resolve_ladder(
+    problem: Problem,
+    spacings: Sequence[float] | None,
+    x_max: float | None,
+    fractions: Sequence[float] = DEFAULT_SPACING_FRACTIONS,
+    budget: Budget | None = None,
+) -> SpacingLadder:
+    """The spacing ladder from the parameters or the problem, within ``budget``.
+
+    Without ``spacings`` the ladder is ``fractions`` of ``length_scale(problem)``. When its finest
+    lattice exceeds the budget, the same ladder shape is scaled up to the finest spacing that fits
+    (``fit_to_budget``). Given spacings whose finest lattice exceeds the budget are refused.
     """
+    half = half_width(problem) if x_max is None else float(x_max)
+    if problem.trap.shape == "box" and x_max is not None and x_max != problem.trap.half_width:
+        raise SpecError("param.x_max", "the box trap fixes the lattice to its walls; leave x_max unset")
+    fitted = None
+    if spacings is None:
+        spacings = default_spacings(problem, fractions)
+        if budget is not None and not budget.fits(make_grid(problem, min(spacings), half)):
+            spacings, fitted = fit_to_budget(problem, half, fractions, budget)
+    spacings = tuple(float(a) for a in spacings)
     if len(spacings) < 2:
-        raise ValueError("a continuum limit needs at least two spacings")
-    powers = CONTINUUM_POWERS if len(spacings) >= 1 + len(CONTINUUM_POWERS) else CONTINUUM_POWERS[:1]
-    return extrapolate_polynomial(spacings, values, powers=powers)
+        raise SpecError("param.spacings", f"got {list(spacings)}; give at least two spacings for the continuum limit")
+    if any(not np.isfinite(a) or a <= 0 for a in spacings):
+        raise SpecError("param.spacings", f"got {list(spacings)}; every spacing must be a positive number")
+    if len(set(spacings)) != len(spacings):
+        raise SpecError("param.spacings", f"got {list(spacings)}; the spacings must differ from each other")
+    if max(spacings) > half / 4:
+        raise SpecError("param.spacings", f"spacing {max(spacings):g} is too coarse for half width {half:.4g}")
+    finest = make_grid(problem, min(spacings), half)
+    if budget is not None and not budget.fits(finest):
+        raise SpecError(
+            f"param.{budget.parameter}",
+            f"the finest lattice (a = {finest.spacing:.4g}): {budget.excess(finest)}; give coarser spacings or raise {budget.parameter}",
+        )
+    return SpacingLadder(tuple(sorted(spacings, reverse=True)), half, fitted)
+
+
+def fit_to_budget(problem: Problem, half: float, fractions: Sequence[float], budget: Budget) -> tuple[tuple[float, ...], str]:
+    """The default ladder's shape scaled to the finest spacing within ``budget``, and a note saying so.
+
+    The number of sites falls as the spacing grows, so the finest spacing that fits is found by
+    bisection. Refused (SpecError on the budget parameter) when even ``USEFUL_FINEST_FRACTION`` of
+    the shortest length does not fit: no ladder that fits resolves the problem.
+    """
+    scale = length_scale(problem)
+    wanted = min(fractions) * scale
+    coarse = USEFUL_FINEST_FRACTION * scale
+    if not budget.fits(make_grid(problem, coarse, half)):
+        grid = make_grid(problem, coarse, half)
+        raise SpecError(
+            f"param.{budget.parameter}",
+            f"no useful lattice ladder fits: even a finest spacing of {coarse:.3g} ({USEFUL_FINEST_FRACTION} of the"
+            f" shortest length {scale:.3g}) over |x| <= {half:.3g}: {budget.excess(grid)}; raise {budget.parameter}",
+        )
+    fine = wanted
+    for _ in range(60):  # bisection on the spacing down to a relative width of ~1e-12
+        middle = 0.5 * (fine + coarse)
+        if budget.fits(make_grid(problem, middle, half)):
+            coarse = middle
+        else:
+            fine = middle
+    finest = make_grid(problem, coarse, half).spacing
+    spacings = tuple(sorted((finest * f / min(fractions) for f in fractions), reverse=True))
+    note = (
+        f"the default spacings (finest a = {wanted:.3g}) exceed the budget ({budget.excess(make_grid(problem, wanted, half))});"
+        f" solved on the finest ladder that fits, a = {spacings[-1]:.3g} ... {spacings[0]:.3g}"
+        f" ({spacings[-1] / scale:.2f} ... {spacings[0] / scale:.2f} of the shortest length {scale:.3g})"
+    )
+    return spacings, note
+
+
+@dataclass
+class LatticeLevels:
+    """What a lattice solver found on one grid, one entry per level, ascending within each sector.
+
+    ``states`` holds each level's labels (a "parity" label is its reflection sector).
+    ``observe(level, rank)`` (finest grid only) returns the observables of ``level`` named for its
+    final position ``rank`` (suffix "@rank"), and notes.
+    """
+
+    energies: list[float]
+    solver_errors: list[float]
+    states: list[dict[str, Any]]
+    scalars: list[dict[str, float]] = field(default_factory=list)
+    site_densities: tuple[np.ndarray, np.ndarray] | None = None  # <n_{s,j}> of the lowest level
+    observe: Callable[[int, int], tuple[dict[str, Observable], list[str]]] | None = None
+    diagnostics: dict[str, Any] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+
+
+def solve_continuum_ladder(
+    problem: Problem,
+    ladder: SpacingLadder,
+    solve_on_grid: Callable[[Grid, bool], LatticeLevels],
+    keep: int,
+    edge_tolerance: float = 1e-8,
+) -> Solution:
+    """Solve on every spacing (coarsest first, observables on the finest) through the shared
+    convergence ladder (``backends/ladder.py``: how error bars are formed), energies and scalars
+    extrapolated with ``CONTINUUM_MODEL``; report the ``keep`` lowest levels.
+
+    Levels are followed by (reflection sector, rank in the sector). The solver error of a level is
+    what ``solve_on_grid`` reports (residual norm, DMRG truncation). Observables are those of the
+    finest lattice, on its sites, and say so.
+    """
+    grids, finest_levels = [], []
+
+    def solve_rung(spacing: float, final: bool) -> Rung:
+        grid = make_grid(problem, spacing, ladder.half_width)
+        levels = solve_on_grid(grid, final)
+        grids.append(grid)
+        if final:
+            finest_levels.append(levels)
+        keys = rank_keys([state.get("parity") for state in levels.states])
+        found = {
+            key: RungLevel(
+                energy=levels.energies[i],
+                labels=levels.states[i],
+                solver_error=levels.solver_errors[i],
+                scalars=levels.scalars[i] if i < len(levels.scalars) else {},
+                payload=i,
+            )
+            for i, key in enumerate(keys)
+        }
+        return Rung(grid.spacing, found, levels.diagnostics, levels.warnings)
+
+    outcome = run_ladder(ladder.spacings, solve_rung, CONTINUUM_MODEL, keep)
+    finest, grid = finest_levels[0], grids[-1]
+    warnings = list(outcome.warnings)
+    if ladder.fitted and outcome.error_estimate is not None:
+        lowest = abs(outcome.energies[0]) if outcome.energies else 1.0
+        warnings.append(
+            f"{ladder.fitted}: the error bar it gives here is {outcome.error_estimate:.2g}"
+            f" ({outcome.error_estimate / max(lowest, 1e-300):.1g} relative)"
+        )
+    if finest.site_densities is not None:
+        for species, density in zip(problem.species, finest.site_densities):
+            if species.count:
+                text = density_edge_warning(density, grid, f"density of {species.name}", edge_tolerance)
+                if text:
+                    warnings.append(text)
+    observables = {}
+    if finest.observe is not None:
+        for rank, key in enumerate(outcome.keys):
+            found, notes = finest.observe(outcome.final.levels[key].payload, rank)
+            observables.update(found)
+            warnings.extend(n for n in notes if n not in warnings)
+    return Solution(
+        energies=outcome.energies,
+        states=outcome.states,
+        observables=observables,
+        scalars=outcome.scalars,
+        scalar_errors=outcome.scalar_errors,
+        error_estimate=outcome.error_estimate,
+        energy_errors=outcome.energy_errors,
+        diagnostics={
+            "half_width": ladder.half_width,
+            "spacings": [g.spacing for g in grids],
+            "sites": [g.sites for g in grids],
+            **outcome.diagnostics(),
+            "observables_on": f"sites of the finest lattice (a = {grid.spacing:.6g}), not extrapolated",
+            **({"fitted_to_budget": ladder.fitted} if ladder.fitted else {}),
+        },
+        warnings=warnings,
+    )
 
 
 # ----------------------------------------------------------------------------- momentum space

@@ -1,13 +1,15 @@
 """``lattice-dmrg``: two-site DMRG (tenpy) on the lattice discretization, extrapolated to the continuum.
 
-Method: the lattice Hamiltonian of ``backends/lattice.py`` (species-dependent hopping
-t_s = 1/(2 m_s a^2), on-site 2 t_s + V_s(x_j), U = g/a on n_up n_down, open chain) as a matrix-product
-operator on tenpy's ``SpinHalfFermionSite`` with N_up and N_down conserved separately; the ground
+Method: the lattice Hamiltonian of ``backends/lattice.py`` (``lattice.terms``, the description
+lattice-ed uses too: species-dependent hopping t_s = 1/(2 m_s a^2), on-site 2 t_s + V_s(x_j), U = g/a
+on n_up n_down, open chain) as a matrix-product operator on tenpy's ``SpinHalfFermionSite`` with N_up and N_down conserved separately; the ground
 state by two-site DMRG (S. R. White, Phys. Rev. Lett. 69, 2863 (1992)) and excited states by DMRG
 orthogonal to the lower ones. Each state is converged at every bond dimension of a ladder
 chi_1 < chi_2 < ..., restarting from the previous MPS; the energy is extrapolated linearly in the
-discarded weight of the last sweep (common practice) with an error bar. The continuum limit over the
-spacing ladder follows (``lattice_ladder``). Energies in hbar omega_ref.
+discarded weight of the last sweep (``extrapolation.DiscardedWeightLinear``, common practice) with an
+error bar, which is the lattice energy's solver error in the continuum limit over the spacing ladder
+(``lattice.solve_continuum_ladder``, the shared convergence ladder). The default spacing ladder is
+fitted to ``max_sites`` as ``lattice.fit_to_budget`` describes. Energies in hbar omega_ref.
 
 Not computed (refused by ``supports``): momentum-pair correlations and noise maps (they need
 four-point functions at all site quadruples), and parity sectors (the MPS carries no reflection
@@ -26,9 +28,9 @@ from threadpoolctl import threadpool_limits
 from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import lattice, lattice_observables
-from .base import Backend, Capabilities, Parameter
-from .extrapolation import extrapolate_polynomial
-from .lattice_ladder import LADDER_PARAMETERS, LatticeLevels, resolve_ladder, solve_ladder
+from .base import Backend, Capabilities, Parameter, Support
+from .extrapolation import DiscardedWeightLinear
+from .lattice import LADDER_PARAMETERS, Budget, LatticeLevels
 from .result import Solution
 
 # Default ladder of spacings (fractions of lattice.length_scale): coarser than lattice-ed's, because
@@ -38,6 +40,11 @@ from .result import Solution
 SPACING_FRACTIONS = (0.4, 0.32, 0.25, 0.2, 0.16)
 # Discarded weights below this count as no truncation at all.
 NO_TRUNCATION = 1e-14
+TRUNCATION_MODEL = DiscardedWeightLinear(no_truncation=NO_TRUNCATION)
+# Sites of the finest lattice; the default ladder is fitted within it. The largest lattices measured
+# (bench_lattice_results.md) have 95 sites (6+6, 5 CPU minutes for the ladder); a sweep's cost grows
+# linearly with the sites, so 300 keeps a default ladder within tens of CPU minutes.
+DEFAULT_MAX_SITES = 300
 
 
 def _tenpy():
@@ -67,14 +74,11 @@ def lattice_model(problem: Problem, grid: lattice.Grid, constant: float = 0.0):
             return SpinHalfFermionSite(cons_N="N", cons_Sz="Sz")
 
         def init_terms(self, model_params):
-            for species, number, create, annihilate in (
-                (problem.up, "Nu", "Cdu", "Cu"),
-                (problem.down, "Nd", "Cdd", "Cd"),
-            ):
-                t = lattice.hopping(species, grid.spacing)
-                self.add_onsite(2 * t + problem.trap.potential(grid.x, species), 0, number)
-                self.add_coupling(-t, 0, create, 0, annihilate, 1, plus_hc=True)
-            self.add_onsite(lattice.onsite_coupling(problem.coupling, grid.spacing), 0, "NuNd")
+            terms = lattice.terms(problem, grid)
+            for species, number, create, annihilate in ((0, "Nu", "Cdu", "Cu"), (1, "Nd", "Cdd", "Cd")):
+                self.add_onsite(terms.onsite[species], 0, number)
+                self.add_coupling(-terms.hopping[species], 0, create, 0, annihilate, 1, plus_hc=True)
+            self.add_onsite(terms.interaction, 0, "NuNd")
             if constant:
                 self.add_onsite(constant / grid.sites, 0, "Id")
 
@@ -104,25 +108,16 @@ def initial_occupations(problem: Problem, grid: lattice.Grid) -> list[str]:
 
 
 def extrapolate_truncation(stages: list[dict]) -> tuple[float, float]:
-    """(E, error) at zero discarded weight from the chi ladder of one state.
-
-    Linear in the discarded weight eps (E = E0 + c eps, common practice) when the two largest chi
-    still truncate; otherwise the largest-chi energy with the change from the previous chi as error.
-    """
-    energies = [s["energy"] for s in stages]
+    """(E, error) at zero discarded weight from the chi ladder of one state (``TRUNCATION_MODEL``)."""
     weights = [s["truncation_error"] for s in stages]
-    if len(stages) == 1:
-        if weights[0] > NO_TRUNCATION:
-            raise SpecError(
-                "param.chi",
-                f"a single bond dimension {stages[0]['chi']} truncates (discarded weight {weights[0]:.2e});"
-                " give a ladder of at least two so that the truncation error can be estimated",
-            )
-        return energies[0], 0.0
-    if min(weights[-2:]) > NO_TRUNCATION and len(set(weights)) == len(weights):
-        fit = extrapolate_polynomial(weights, energies, powers=(1.0,))
-        return fit.value, max(fit.error, abs(energies[-1] - fit.value) * 0.5)
-    return energies[-1], abs(energies[-1] - energies[-2])
+    if len(stages) == 1 and weights[0] > NO_TRUNCATION:
+        raise SpecError(
+            "param.chi",
+            f"a single bond dimension {stages[0]['chi']} truncates (discarded weight {weights[0]:.2e});"
+            " give a ladder of at least two so that the truncation error can be estimated",
+        )
+    fit = TRUNCATION_MODEL(weights, [s["energy"] for s in stages])
+    return fit.value, fit.error
 
 
 class LatticeDMRGBackend(Backend):
@@ -137,6 +132,13 @@ class LatticeDMRGBackend(Backend):
         Parameter("tolerance", float, 1e-10, "stop sweeping when |dE| / max(|E|, 1) falls below this", minimum=0.0),
         Parameter("mixer", bool, False, "subspace expansion (slows convergence on fine grids)"),
         Parameter("threads", int, 1, "BLAS threads", minimum=1),
+        Parameter(
+            "max_sites",
+            int,
+            DEFAULT_MAX_SITES,
+            "most sites of the finest lattice: the default ladder is fitted within it; given spacings beyond it are refused",
+            minimum=4,
+        ),
     )
 
     # momentum pair maps and noise need four-point functions over all site quadruples, and the MPS does
@@ -147,17 +149,31 @@ class LatticeDMRGBackend(Backend):
         observables=("density", "momentum", "obdm", "pair_position", "contact", "trap_energy"),
         error_bars=True,
     )
+    check_params = {"spacings": (0.6, 0.45, 0.3), "chi": (16, 32), "max_sweeps": 6}
+
+    def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:
+        """Yes when a useful spacing ladder fits ``max_sites`` (the default ladder is coarsened to fit)."""
+        params = self.resolve_params(params or {})
+        try:
+            self.ladder(problem, params)
+        except SpecError as error:
+            if error.field != "param.max_sites":
+                raise
+            return Support.no(error.reason)
+        return Support.yes()
+
+    def ladder(self, problem: Problem, params: dict[str, Any]) -> lattice.SpacingLadder:
+        budget = Budget("max_sites", params["max_sites"], float, "sites")
+        return lattice.resolve_ladder(problem, params["spacings"], params["x_max"], SPACING_FRACTIONS, budget)
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         chis = tuple(int(c) for c in params["chi"])
         if not chis or any(c < 1 for c in chis) or list(chis) != sorted(set(chis)):
             raise SpecError("param.chi", f"got {list(params['chi'])}; give distinct positive bond dimensions, ascending")
-        spacings, half_width = resolve_ladder(problem, params["spacings"], params["x_max"], SPACING_FRACTIONS)
         with threadpool_limits(params["threads"]):
-            return solve_ladder(
+            return lattice.solve_continuum_ladder(
                 problem,
-                spacings,
-                half_width,
+                self.ladder(problem, params),
                 lambda grid, final: solve_on_grid(problem, grid, final, chis, params),
                 keep=problem.targets.states,
             )

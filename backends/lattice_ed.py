@@ -1,11 +1,13 @@
 """``lattice-ed``: exact diagonalization on the lattice discretization, extrapolated to the continuum.
 
-Method: the lattice Hamiltonian of ``backends/lattice.py`` (t_s = 1/(2 m_s a^2), on-site
-2 t_s + V_s(x_j), U = g/a on n_up n_down, open chain) in the product basis of fixed N_up and N_down
-(lattice orbitals = sites, contact points = sites with weight a and phi_a(x_q) = delta_aq/sqrt(a),
-the diagonal fast path of the shared engine ``backends/fock_ed.py``), Lanczos (ARPACK) for the k
+Method: the lattice Hamiltonian of ``backends/lattice.py`` (``lattice.terms``: t_s = 1/(2 m_s a^2),
+on-site 2 t_s + V_s(x_j), U = g/a on n_up n_down, open chain) in the product basis of fixed N_up and
+N_down (lattice orbitals = sites, one contact point per site, the diagonal fast path of the shared
+engine ``backends/fock_ed.py``), Lanczos (ARPACK) for the k
 lowest levels, in the two reflection sectors x -> -x when the trap is symmetric (parity labels).
-The continuum limit over the spacing ladder follows (``lattice_ladder``). The same Hamiltonian
+The continuum limit over the spacing ladder follows (``lattice.solve_continuum_ladder``, the shared
+convergence ladder). The default ladder is fitted to ``max_dimension`` (the finest lattice's basis;
+measured cost in bench_lattice_results.md) as ``lattice.fit_to_budget`` describes. The same Hamiltonian
 built term by term with quspin's ``spinful_fermion_basis_1d`` is the independent cross-check in
 the tests; the product-basis build is used because it is 10-350x faster (engineering notes).
 
@@ -25,10 +27,13 @@ from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import fock_ed, lattice, lattice_observables
 from .base import Backend, Capabilities, Parameter, Support
-from .lattice_ladder import LADDER_PARAMETERS, LatticeLevels, resolve_ladder, solve_ladder
+from .lattice import LADDER_PARAMETERS, Budget, LatticeLevels
 from .result import Observable, Solution
 
-DEFAULT_MAX_DIMENSION = 4_000_000
+# Basis size of the finest lattice; the default ladder is fitted within it. Measured (one core,
+# bench_lattice_results.md): a ladder whose finest basis has 1e6 states takes about 3 CPU minutes for
+# 2+1 (both parity sectors), with ARPACK's ~24 Lanczos vectors at ~200 MB.
+DEFAULT_MAX_DIMENSION = 1_000_000
 # bound on the dense scratch of the momentum pair correlation, in complex numbers
 PAIR_SCRATCH = 1.5e7
 
@@ -38,19 +43,26 @@ def dimension(problem: Problem, sites: int) -> int:
     return math.comb(sites, problem.up.count) * math.comb(sites, problem.down.count)
 
 
+def dimension_budget(problem: Problem, max_dimension: float) -> Budget:
+    return Budget("max_dimension", max_dimension, lambda sites: dimension(problem, sites), "basis states")
+
+
 def lattice_hamiltonian(problem: Problem, grid: lattice.Grid) -> fock_ed.ProductHamiltonian:
-    """The lattice Hamiltonian as the engine's matrix-free product-basis operator."""
+    """The lattice Hamiltonian (``lattice.terms``) as the engine's matrix-free product-basis operator.
+
+    The engine's contact term g sum_q w_q rho_up(x_q) rho_down(x_q) becomes U sum_j n_up,j n_down,j
+    with one point per site, unit weight and site orbitals phi_j(x_q) = delta_jq (diagonal fast path).
+    """
+    terms = lattice.terms(problem, grid)
     up = fock_ed.FockSpace(grid.sites, problem.up.count)
     down = fock_ed.FockSpace(grid.sites, problem.down.count)
-    values = np.eye(grid.sites) / math.sqrt(grid.spacing)
-    contact = fock_ed.ContactFactorization(
-        points=grid.x, weights=np.full(grid.sites, grid.spacing), values_up=values, values_down=values
-    )
+    sites = np.eye(grid.sites)
+    contact = fock_ed.ContactFactorization(points=grid.x, weights=np.ones(grid.sites), values_up=sites, values_down=sites)
     return fock_ed.ProductHamiltonian(
         fock_ed.ProductBasis.full(up, down),
-        lattice.one_body_matrix(problem, problem.up, grid).toarray(),
-        lattice.one_body_matrix(problem, problem.down, grid).toarray(),
-        problem.coupling,
+        terms.one_body_matrix(0).toarray(),
+        terms.one_body_matrix(1).toarray(),
+        terms.interaction,
         contact,
     )
 
@@ -161,38 +173,41 @@ class LatticeEDBackend(Backend):
     parameters = (
         *LADDER_PARAMETERS,
         Parameter("tolerance", float, 1e-12, "Lanczos (ARPACK) relative tolerance", minimum=0.0),
-        Parameter("max_dimension", int, DEFAULT_MAX_DIMENSION, "refuse product bases larger than this", minimum=1),
+        Parameter(
+            "max_dimension",
+            int,
+            DEFAULT_MAX_DIMENSION,
+            "largest product basis of the finest lattice: the default ladder is fitted within it; given spacings beyond it are refused",
+            minimum=1,
+        ),
     )
 
     capabilities = Capabilities(
-        trap_shapes=("harmonic", "harmonic+gaussian", "box"), observables=("density", "momentum", "obdm", "pair_position", "pair_momentum", "noise", "contact", "trap_energy"), error_bars=True
+        trap_shapes=("harmonic", "harmonic+gaussian", "box"),
+        observables=("density", "momentum", "obdm", "pair_position", "pair_momentum", "noise", "contact", "trap_energy"),
+        error_bars=True,
     )
+    check_params = {"spacings": (0.5, 0.35, 0.25)}
 
     def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:
-        coarsest = lattice.make_grid(problem, max(lattice.default_spacings(problem)), lattice.half_width(problem))
-        dim = dimension(problem, coarsest.sites)
-        limit = (params or {}).get("max_dimension", DEFAULT_MAX_DIMENSION)
-        if dim > limit:
-            return Support.no(
-                f"even the coarsest default lattice ({coarsest.sites} sites) has a basis of {dim:.3g} states"
-                f" (> max_dimension = {limit:.3g}); raise max_dimension, or use lattice-dmrg or oscillator-ed"
-            )
+        """Yes when a useful spacing ladder fits ``max_dimension`` (the default ladder is coarsened to fit)."""
+        params = self.resolve_params(params or {})
+        try:
+            self.ladder(problem, params)
+        except SpecError as error:
+            if error.field != "param.max_dimension":
+                raise
+            return Support.no(f"{error.reason}; lattice-dmrg or oscillator-ed scale better with the particle number")
         return Support.yes()
 
+    def ladder(self, problem: Problem, params: dict[str, Any]) -> lattice.SpacingLadder:
+        budget = dimension_budget(problem, params["max_dimension"])
+        return lattice.resolve_ladder(problem, params["spacings"], params["x_max"], budget=budget)
+
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
-        spacings, half_width = resolve_ladder(problem, params["spacings"], params["x_max"])
-        finest = lattice.make_grid(problem, min(spacings), half_width)
-        dim = dimension(problem, finest.sites)
-        if dim > params["max_dimension"]:
-            raise SpecError(
-                "param.spacings",
-                f"the finest lattice ({finest.sites} sites) gives a basis of {dim:.3g} states, more than"
-                f" max_dimension = {params['max_dimension']:.3g}; give coarser spacings or raise max_dimension",
-            )
-        return solve_ladder(
+        return lattice.solve_continuum_ladder(
             problem,
-            spacings,
-            half_width,
+            self.ladder(problem, params),
             lambda grid, final: solve_on_grid(problem, grid, final, params["tolerance"]),
             keep=problem.targets.states,
         )

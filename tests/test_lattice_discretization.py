@@ -52,7 +52,7 @@ def test_harmonic_lattice_levels_extrapolate_to_oscillator_levels():
         values, _ = lattice.one_body_spectrum(problem, problem.down, grid, count=4)
         levels.append((grid.spacing, values))
     for n in range(4):
-        fit = lattice.continuum_limit([s for s, _ in levels], [v[n] for _, v in levels])
+        fit = lattice.CONTINUUM_MODEL([s for s, _ in levels], [v[n] for _, v in levels])
         assert abs(fit.value - (n + 0.5)) < fit.error
         assert abs(fit.value - (n + 0.5)) < 1e-5 * (n + 0.5)  # the issue asks 1e-4 relative of energies
     # the error is O(a^2): halving ratios of successive errors follow (a1/a2)^2 within 5 %

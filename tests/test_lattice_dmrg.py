@@ -97,15 +97,15 @@ def test_dmrg_density_matches_quspin_ground_state():
 
 @pytest.mark.slow
 def test_dmrg_continuum_limit_matches_busch_within_its_error_bar():
-    # Busch et al., Found. Phys. 28, 549 (1998): E(1+1, g = 2) = 1.487402354161 (anchors table 2.1,
-    # an exact root; the two-body backend solves the same equation).
+    # Busch et al., Found. Phys. 28, 549 (1998): E(1+1, g = 2) = 1.487402354161 (root computed with mpmath;
+    # re-derived by ODE shooting in test_oscillator_ed.py, like dE/dg = 0.1397611296 below).
     # chi = 32 does not truncate 1+1 here (largest bond 26), so the chi error is zero, not guessed
     result = BACKEND.solve(Problem.create(1, 1, 2.0), spacings=(0.4, 0.32, 0.25), x_max=5.0, chi=(32,))
-    assert all(s[-1]["truncation_error"] < 1e-14 for run in result.diagnostics["per_spacing"] for s in run["chi_ladder"])
+    assert all(s[-1]["truncation_error"] < 1e-14 for run in result.diagnostics["per_rung"] for s in run["chi_ladder"])
     exact = 1.487402354161
     assert abs(result.energies[0] - exact) <= result.error_estimate
     assert abs(result.energies[0] - exact) <= 1e-4 * exact
-    assert result.scalars["delta"] == pytest.approx(0.1397611296, rel=1e-3)  # anchors 3.4: dE/dg at g = 2
+    assert result.scalars["delta"] == pytest.approx(0.1397611296, rel=1e-3)  # Hellmann-Feynman dE/dg at g = 2
 
 
 def test_dmrg_refuses_what_it_does_not_compute():
@@ -127,3 +127,28 @@ def test_dmrg_reports_when_it_did_not_converge():
     assert any("did not converge" in w for w in levels.warnings)
     last = levels.diagnostics["chi_ladder"][0][-1]
     assert not last["converged"] and levels.solver_errors[0] >= last["last_change"]
+
+
+def test_dmrg_builds_the_shared_lattice_hamiltonian_and_its_site_check():
+    # The box potential is infinite on its walls: a grid with sites on the walls must be refused, by
+    # the same check lattice-ed meets (lattice.terms), not silently given infinite on-site terms.
+    from trapbench.backends.lattice_dmrg import lattice_model
+    from trapbench.problems.errors import SpecError
+
+    box = Problem.from_dict(
+        {"up": {"count": 1}, "down": {"count": 1}, "trap": {"shape": "box", "half_width": 2.0}, "interaction": {"g": 1.0}}
+    )
+    on_walls = lattice.Grid(x=np.linspace(-2.0, 2.0, 11), spacing=0.4)
+    with pytest.raises(SpecError, match="trap"):
+        lattice_model(box, on_walls)
+
+
+def test_dmrg_fits_its_default_ladder_to_max_sites_and_refuses_only_without_a_useful_one():
+    problem = Problem.create(2, 1, 5.0, mass_up=0.15)
+    params = BACKEND.resolve_params({"max_sites": 150})
+    ladder = BACKEND.ladder(problem, params)
+    assert ladder.fitted and "max_sites" in ladder.fitted
+    assert lattice.make_grid(problem, ladder.spacings[-1], ladder.half_width).sites <= 150
+    assert BACKEND.supports(problem, BACKEND.resolve_params({}))
+    refusal = BACKEND.supports(problem, BACKEND.resolve_params({"max_sites": 20}))
+    assert not refusal and "max_sites" in refusal.reason

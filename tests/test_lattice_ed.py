@@ -16,8 +16,9 @@ sys.path.insert(0, str(Path(__file__).parent))
 from lattice_reference import quspin_levels  # noqa: E402
 
 from trapbench.backends import fock_ed, lattice  # noqa: E402
-from trapbench.backends.lattice_ed import LatticeEDBackend, lattice_hamiltonian, pair_correlation, solve_on_grid  # noqa: E402
+from trapbench.backends.lattice_ed import LatticeEDBackend, dimension, lattice_hamiltonian, pair_correlation, solve_on_grid  # noqa: E402
 from trapbench.backends.registry import get  # noqa: E402
+from trapbench.problems.errors import SpecError  # noqa: E402
 from trapbench.problems.spec import Problem  # noqa: E402
 
 BACKEND = LatticeEDBackend()
@@ -203,3 +204,54 @@ def test_species_without_particles_gives_the_free_fermion_levels():
     for energy, exact in zip(result.energies, (2.0, 3.0)):
         assert abs(energy - exact) <= result.error_estimate
         assert abs(energy - exact) < 1e-4 * exact
+
+
+def test_default_ladder_is_fitted_to_the_dimension_budget_and_a_larger_budget_is_honoured():
+    # 2+1 with masses 0.15 / 1: the light species spreads over |x| ~ 17 while the heavy one needs
+    # a ~ 0.12, a basis of 1.2e7 states; the default ladder is scaled to the finest that fits.
+    problem = Problem.create(2, 1, 5.0, mass_up=0.15)
+    params = BACKEND.resolve_params({})
+    ladder = BACKEND.ladder(problem, params)
+    assert ladder.fitted and "max_dimension" in ladder.fitted
+    finest = lattice.make_grid(problem, ladder.spacings[-1], ladder.half_width)
+    assert dimension(problem, finest.sites) <= params["max_dimension"] < dimension(problem, finest.sites + 1)
+    shape = np.array(lattice.DEFAULT_SPACING_FRACTIONS) / min(lattice.DEFAULT_SPACING_FRACTIONS)
+    np.testing.assert_allclose(np.array(ladder.spacings) / ladder.spacings[-1], shape, rtol=1e-12)
+    assert BACKEND.supports(problem)
+    # no useful ladder of 3+3 fits the default budget; a user's larger max_dimension is honoured
+    large = Problem.create(3, 3, 2.0)
+    refusal = BACKEND.supports(large)
+    assert not refusal and "max_dimension" in refusal.reason
+    assert BACKEND.supports(large, BACKEND.resolve_params({"max_dimension": "2e9"}))
+    assert BACKEND.admits(large, {"max_dimension": 2_000_000_000})
+    # given spacings beyond the budget are refused, naming the parameter to raise
+    with pytest.raises(SpecError, match="param.max_dimension"):
+        BACKEND.ladder(problem, BACKEND.resolve_params({"spacings": (0.3, 0.2)}))
+
+
+def test_a_ladder_fitted_to_a_small_budget_still_covers_busch_and_says_so():
+    # Reference: the two-body backend (Busch et al., Found. Phys. 28, 549 (1998), exact root).
+    problem = Problem.create(1, 1, 2.0)
+    exact = get("two-body").solve(problem).energies[0]
+    result = BACKEND.solve(problem, max_dimension=3000)
+    assert max(dimension(problem, sites) for sites in result.diagnostics["sites"]) <= 3000
+    assert abs(result.energies[0] - exact) <= result.energy_errors[0]
+    assert abs(result.energies[0] - exact) <= 1e-3 * exact
+    assert any("finest ladder that fits" in w and "error bar it gives" in w for w in result.warnings)
+
+
+@pytest.mark.parametrize("mass_down, g", CASES_1P1)
+def test_lattice_scalars_carry_error_bars_that_cover_hellmann_feynman(mass_down, g):
+    # <sum delta> = dE/dg (Hellmann-Feynman) of the exact two-body root (Busch et al.), differentiated
+    # here by a central difference; <V_trap> = (E - (g/2) dE/dg) / 2 by the virial theorem
+    # E = 2 <V_trap> + (g/2) <sum delta> (common practice for contact interactions in a harmonic trap).
+    step = 1e-4
+    energy = lambda coupling: get("two-body").solve(Problem.create(1, 1, coupling, mass_down=mass_down)).energies[0]  # noqa: E731
+    delta = (energy(g + step) - energy(g - step)) / (2 * step)
+    trap = (energy(g) - 0.5 * g * delta) / 2
+    problem = Problem.create(1, 1, g, mass_down=mass_down)
+    scale = lattice.length_scale(problem)
+    result = BACKEND.solve(problem, spacings=[f * scale for f in (0.4, 0.3, 0.22, 0.16)], x_max=5.0)
+    for name, exact in (("delta", delta), ("trap_energy", trap)):
+        assert abs(result.scalars[name] - exact) <= result.scalar_errors[name]
+        assert result.scalar_errors[name] < 1e-2 * abs(exact)

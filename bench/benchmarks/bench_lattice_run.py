@@ -41,6 +41,7 @@ def main() -> None:
     parser.add_argument("--up", type=int, required=True)
     parser.add_argument("--down", type=int, required=True)
     parser.add_argument("--g", type=float, required=True)
+    parser.add_argument("--mass-up", type=float, default=1.0)
     parser.add_argument("--mass-down", type=float, default=1.0)
     parser.add_argument("--states", type=int, default=1)
     parser.add_argument("--spacings", help="comma-separated ladder (default: the backend's)")
@@ -59,7 +60,7 @@ def main() -> None:
     from trapbench.problems.spec import Problem
 
     warnings.simplefilter("ignore")
-    problem = Problem.create(args.up, args.down, args.g, mass_down=args.mass_down, states=args.states)
+    problem = Problem.create(args.up, args.down, args.g, mass_up=args.mass_up, mass_down=args.mass_down, states=args.states)
     backend = get(args.backend)
     params = {}
     if args.spacings:
@@ -72,7 +73,9 @@ def main() -> None:
         params["max_sweeps"] = args.max_sweeps
     if args.tolerance is not None:
         params["tolerance"] = args.tolerance
-    record = {"backend": args.backend, "config": f"{args.up}+{args.down}", "g": args.g, "mass_down": args.mass_down}
+    record = {
+        "backend": args.backend, "config": f"{args.up}+{args.down}", "g": args.g, "mass_up": args.mass_up, "mass_down": args.mass_down,
+    }
     wall, cpu = time.perf_counter(), time.process_time()
     with threadpool_limits(limits=1):
         if args.grid_only:
@@ -98,9 +101,9 @@ def main() -> None:
                 error_estimate=result.error_estimate,
                 sites=result.diagnostics["sites"],
                 spacings=result.diagnostics["spacings"],
-                lattice_energies=result.diagnostics["lattice_energies"],
+                lattice_energies=result.diagnostics["raw_energies"],
                 warnings=result.warnings,
-                chi_ladders=[d.get("chi_ladder") for d in result.diagnostics["per_spacing"]],
+                chi_ladders=[d.get("chi_ladder") for d in result.diagnostics["per_rung"]],
             )
     record.update(
         params={k: list(v) if isinstance(v, tuple) else v for k, v in params.items()},
