@@ -11,7 +11,7 @@ error bar, which is the lattice energy's solver error in the continuum limit ove
 (``lattice.solve_continuum_ladder``, the shared convergence ladder). The default spacing ladder is
 fitted to ``max_sites`` as ``lattice.fit_to_budget`` describes. Energies in hbar omega_ref.
 
-Not computed (refused by ``supports``): momentum-pair correlations and noise maps (they need
+Not computed (not in its declared capabilities, so refused before computing): momentum-pair correlations and noise maps (they need
 four-point functions at all site quadruples), and parity sectors (the MPS carries no reflection
 quantum number).
 """

@@ -328,6 +328,6 @@ def test_trap_energy_and_contact_are_converged_along_the_ladder():
     assert abs(result.scalars["delta"] - exact.scalars["delta"]) < 1e-7
     assert abs(result.scalars["trap_energy"] - exact.scalars["trap_energy"]) < 2e-5
     assert abs(result.diagnostics["virial_residual"]) < 5e-5
-    # and their reported error bars cover the exact values
-    for name in ("delta", "trap_energy"):
+    # and their reported error bars cover the exact values, also those propagated to the derived scalars
+    for name in ("delta", "trap_energy", "kinetic_energy", "contact"):
         assert abs(result.scalars[name] - exact.scalars[name]) <= result.scalar_errors[name]
