@@ -25,6 +25,7 @@ They share the equation only; tests check both against an ODE-shooting solution 
 from __future__ import annotations
 
 import math
+import sys
 from functools import lru_cache
 
 import mpmath
@@ -34,7 +35,7 @@ BUSCH_DIGITS = 30
 BISECTION_STEPS = 110  # brackets are < 2^10 wide; 2^-100 leaves ~1e-27
 # Brent tolerances: |e - e_exact| <= XTOL + RTOL |e| (scipy.optimize.brentq's guarantee).
 XTOL = 1e-14
-RTOL = 4 * 2.220446049250313e-16
+RTOL = 4 * sys.float_info.epsilon
 SMALL_LAMBDA = 1e-13  # below this the attractive root is 1/2 + lambda/sqrt(pi) to double precision
 
 
