@@ -120,6 +120,14 @@ class ElementSpace:
             matrix[np.ix_(dofs[keep], dofs[keep])] += local[np.ix_(keep, keep)]
         return matrix
 
+    def quadrature(self) -> tuple[np.ndarray, np.ndarray]:
+        """Gauss-Legendre points and weights of all elements (``order`` + 3 per element)."""
+        quad_x, quad_w = self._quadrature
+        left, right = self.nodes[:-1, None], self.nodes[1:, None]
+        points = left + (right - left) / 2 * (quad_x + 1)
+        weights = (right - left) / 2 * quad_w * np.ones_like(left)
+        return points.ravel(), weights.ravel()
+
     def vertex_vector(self, node: int) -> np.ndarray:
         """The values of all basis functions at mesh node ``node`` (a unit vector, or 0 if Dirichlet)."""
         vector = np.zeros(self.size)
@@ -277,6 +285,15 @@ class QuarterPlane:
         rho_squared = self._form(levels, self.angular_mass, self.trap)
         order = np.argsort(energies)
         return RelativeSolution(energies[order], ray_density[order], rho_squared[order], levels[order], n)
+
+    def density_on_grid(self, level: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Quadrature of |psi|^2 over the quarter plane: points (rho, phi) and weights w psi^2 rho, summing to 1."""
+        rho, rho_weights = self.radial.quadrature()
+        phi, phi_weights = self.angular.quadrature()
+        radial_values = self.radial.evaluate(level.T, rho)  # (n_rho points, N_phi)
+        values = self.angular.evaluate(radial_values.T, phi)  # (n_phi points, n_rho points)
+        weights = values**2 * (phi_weights[:, None] * (rho_weights * rho)[None, :])
+        return np.broadcast_to(rho[None, :], weights.shape), np.broadcast_to(phi[:, None], weights.shape), weights
 
     @staticmethod
     def _form(levels: np.ndarray, angular: np.ndarray, radial: np.ndarray) -> np.ndarray:

@@ -27,6 +27,8 @@ Scalars (result.SCALAR_NAMES; state k > 0 with suffix @k): ``delta`` = <sum_ij d
 dE/dg, ``contact`` = (2 mu)^2 g^2 <sum delta>, ``trap_energy`` = <sum V_trap> = omega ((n_cm + 1/2)/2
 + <rho^2>/2) and ``kinetic_energy`` = E - trap_energy - g delta. The virial theorem
 E = 2 <V_trap> + (g/2) <sum delta> holds for the exact states; its residual is in diagnostics.
+Observables: ``density`` (density_up, density_down of the first reported state, normalized to N_s) by
+quadrature of |psi|^2 over the plane (see ``densities``); the others are refused.
 """
 
 from __future__ import annotations
@@ -37,14 +39,16 @@ from typing import Any
 
 import numpy as np
 
+from ..problems.exact.oscillator import hermite_function
 from ..problems.spec import Problem
 from .base import Backend, Capabilities, Parameter, SolverError, Support
-from .jacobi_plane import QuarterPlane, angular_nodes, jacobi_angle, radial_nodes
-from .result import Solution
+from .jacobi_plane import QuarterPlane, RelativeSolution, angular_nodes, jacobi_angle, radial_nodes
+from .result import Observable, Solution
 
 ROUNDING_FLOOR = 1e-12  # relative to max(1, |value|): scatter of converged Ritz values, measured ~1e-13
 TAIL_EXPONENT = 41.0  # R solves (2E + 2) ln R - R^2 = -41: the level's Gaussian tail below 1e-18 at R
 RELATIVE_PARITIES = (-1, +1)
+DENSITY_CHUNK = 4096  # quadrature points per block when summing the density kernels (memory ~ grid x chunk)
 
 
 @dataclass
@@ -57,6 +61,9 @@ class RelativeLevel:
     rho_squared: float
     rho_squared_error: float
     converged: bool
+    plane: QuarterPlane  # finest discretization and its solution, for observables
+    solution: RelativeSolution
+    index: int
 
 
 def ladder_error(values: np.ndarray) -> tuple[float, bool]:
@@ -95,7 +102,7 @@ class ThreeBodyBackend(Backend):
     capabilities = Capabilities(
         particle_counts=((2, 1), (1, 2)),
         unequal_frequencies=False,  # the centre of mass separates only with one trap frequency
-        observables=("contact", "trap_energy"),
+        observables=("density", "contact", "trap_energy"),
         error_bars=True,
     )
     parameters = (
@@ -181,6 +188,9 @@ class ThreeBodyBackend(Backend):
                         rho_squared=float(rho2[-1]),
                         rho_squared_error=ladder_error(rho2)[0],
                         converged=converged,
+                        plane=plane,
+                        solution=runs[-1],
+                        index=k,
                     )
                 )
         info = {
@@ -242,9 +252,13 @@ class ThreeBodyBackend(Backend):
             scalar_errors[f"kinetic_energy{suffix}"] = error + trap_error + abs(g) * delta_error
             virial.append(energy - 2 * trap - 0.5 * g * delta)
         info["virial_residuals"] = virial
+        observables = {}
+        if "density" in problem.targets.observables:
+            observables = self.densities(problem, chosen[0][1], chosen[0][2])
         return Solution(
             energies=energies,
             states=states,
+            observables=observables,
             scalars=scalars,
             scalar_errors=scalar_errors,
             error_estimate=max(errors),
@@ -252,3 +266,51 @@ class ThreeBodyBackend(Backend):
             diagnostics=info,
             warnings=warnings,
         )
+
+    # ------------------------------------------------------------------ observables of state 0
+    def densities(self, problem: Problem, level: RelativeLevel, n_cm: int) -> dict[str, Observable]:
+        """n_s(x) of the first reported state, normalized to N_s (oscillator units inside, omega = 1).
+
+        In mass-scaled coordinates q = Q u_0 + r_x e_x + r_y e_y (u_0 the centre-of-mass direction,
+        e_x along the pair's line x_1 = x_2 in the plane, e_y its normal), so x_i = Q/sqrt(M) + s_i(r)
+        with s_i(r) = (r . e_i)/sqrt(m_i), and
+
+            n_i(x) = int d^2r |psi(r)|^2 sqrt(M) h_n(sqrt(M) (x - s_i(r)))^2
+
+        (h_n the unit-width oscillator function of the COM excitation). |psi|^2 on the plane is the
+        quarter's, repeated on its four images (x, +-y), (-x, +-y) (exchange and parity), each with 1/4.
+        """
+        pair_label, odd_label = ("up", "down") if problem.up.count == 2 else ("down", "up")
+        pair, odd = (problem.up, problem.down) if problem.up.count == 2 else (problem.down, problem.up)
+        omega = pair.omega
+        masses = np.array([pair.mass, pair.mass, odd.mass])
+        total = masses.sum()
+        com = np.sqrt(masses / total)
+        e_y = np.array([1.0, -1.0, 0.0]) / math.sqrt(2)  # normal of x_1 = x_2 (equal pair masses)
+        e_x = np.cross(e_y, com)  # in the plane, along the pair's line
+        rho, phi, weights = level.plane.density_on_grid(level.solution.vectors[level.index])
+        rx, ry, w = (rho * np.cos(phi)).ravel(), (rho * np.sin(phi)).ravel(), weights.ravel() / 4
+        images_x = np.concatenate([rx, rx, -rx, -rx])
+        images_y = np.concatenate([ry, -ry, ry, -ry])
+        images_w = np.concatenate([w, w, w, w])
+        x_max, _ = problem.extent()
+        x = np.linspace(-x_max, x_max, problem.targets.grid_points)
+        scaled = x * math.sqrt(omega)
+
+        def particle_density(i: int) -> np.ndarray:
+            shift = (images_x * e_x[i] + images_y * e_y[i]) / math.sqrt(masses[i])
+            density = np.zeros_like(scaled)
+            for start in range(0, shift.size, DENSITY_CHUNK):
+                block = slice(start, start + DENSITY_CHUNK)
+                kernel = hermite_function(n_cm, math.sqrt(total) * (scaled[:, None] - shift[None, block])) ** 2
+                density += math.sqrt(total) * kernel @ images_w[block]
+            return math.sqrt(omega) * density
+
+        return {
+            f"density_{pair_label}": Observable(
+                particle_density(0) + particle_density(1), {"x": x}, "1/length", f"integral dx = 2 (the {pair_label} pair)"
+            ),
+            f"density_{odd_label}": Observable(
+                particle_density(2), {"x": x}, "1/length", f"integral dx = 1 (one {odd_label} particle)"
+            ),
+        }

@@ -94,6 +94,31 @@ def test_first_order_slope(backend, m_up, m_down):
     assert (slope[0] - slope[1]) / (2 * h) == pytest.approx(c1, abs=1e-6)  # O(h^2) central difference
 
 
+def test_non_interacting_densities_are_orbital_sums(backend):
+    # g = 0 ground state (textbook): n_pair = phi_0^2 + phi_1^2 and n_odd = phi_0^2 with widths 1/sqrt(m_s);
+    # the 1+2 labelling puts the pair on the down species
+    problem = Problem.create(1, 2, 0.0, mass_up=1.0, mass_down=HEAVY, observables=["density"], grid_points=121)
+    result = backend.solve(problem)  # densities converge like the wave function, not like its energy
+    x = result.observables["density_down"].axes["x"]
+    b_pair, b_odd = 1 / math.sqrt(HEAVY), 1.0
+    pair = hermite_function(0, x, b_pair) ** 2 + hermite_function(1, x, b_pair) ** 2
+    assert result.observables["density_down"].values == pytest.approx(pair, abs=1e-9)
+    assert result.observables["density_up"].values == pytest.approx(hermite_function(0, x, b_odd) ** 2, abs=1e-9)
+
+
+def test_density_carries_the_trap_energy_of_the_trimer(backend):
+    # self-consistency of two outputs: <sum V_trap> = sum_s (m_s/2) int x^2 n_s(x) dx (definition), and
+    # int n_s = N_s; trapezoid on the uniform grid (spectrally accurate for Gaussian tails)
+    problem = Problem.create(2, 1, -3.0, mass_up=HEAVY, observables=["density"], grid_points=801, x_max=7.0)
+    result = backend.solve(problem, order=12)
+    x = result.observables["density_up"].axes["x"]
+    up, down = result.observables["density_up"].values, result.observables["density_down"].values
+    assert np.trapezoid(up, x) == pytest.approx(2.0, abs=1e-9)
+    assert np.trapezoid(down, x) == pytest.approx(1.0, abs=1e-9)
+    trap = 0.5 * HEAVY * np.trapezoid(x * x * up, x) + 0.5 * np.trapezoid(x * x * down, x)
+    assert trap == pytest.approx(result.scalars["trap_energy"], abs=1e-8)
+
+
 # ----------------------------------------------------------------------------- g -> +inf
 
 
@@ -267,6 +292,8 @@ def test_refuses_what_it_cannot_do(backend):
         backend.solve(Problem.create(2, 1, 1.0, omega_down=2.0))
     with pytest.raises(Unsupported, match="obdm"):
         backend.solve(Problem.create(2, 1, 1.0, observables=["obdm"]))
+    with pytest.raises(Unsupported, match="momentum"):
+        backend.solve(Problem.create(2, 1, 1.0, observables=["momentum"]))
 
 
 def test_common_frequency_scales_the_spectrum(backend):
