@@ -240,6 +240,9 @@ class Backend:
     summary: ClassVar[str] = ""
     parameters: ClassVar[tuple[Parameter, ...]] = ()
     capabilities: ClassVar[Capabilities] = Capabilities()
+    # Cheap parameters for the quick tier of the common check suite (``trapbench validate``): enough to
+    # exercise every code path in seconds, not to be accurate. The user's --param values override them.
+    check_params: ClassVar[dict[str, Any]] = {}
     # Extra libraries whose versions belong in the provenance (e.g. ("quspin",)).
     libraries: ClassVar[tuple[str, ...]] = ()
 

@@ -34,14 +34,14 @@ Scalars (``result.SCALAR_NAMES``) and observables (``result.OBSERVABLE_NAMES``) 
 the largest cutoff's eigenvectors for the ``observable_states`` lowest states (suffix @k for k > 0);
 momenta use phi~_n(p) = (-i)^n phi_n(p; 1/b_s), normalized to int n_s(p) dp = N_s. The Gaussian
 tails of a finite oscillator basis cannot show the C/k^4 contact tail: the ``contact`` scalar comes
-from <sum delta> instead. The virial residual E - 2<V_trap> - (g/2) <sum delta> (anchors 3.4) is in
-``diagnostics``; it vanishes as the basis converges.
+from <sum delta> instead. The virial residual E - 2<V_trap> - (g/2) <sum delta> (virial theorem, from
+scaling x -> s x) is in ``diagnostics``; it vanishes as the basis converges.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from functools import lru_cache
 from typing import Any
 
@@ -336,7 +336,12 @@ class OscillatorEDBackend(Backend):
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
     )
     # beyond ~10 particles the determinant basis grows too fast: a lattice method is the better tool
-    capabilities = Capabilities(max_particles=10, observables=("density", "momentum", "obdm", "pair_position", "pair_momentum", "noise", "contact", "trap_energy"), error_bars=True)
+    capabilities = Capabilities(
+        max_particles=10,
+        observables=("density", "momentum", "obdm", "pair_position", "pair_momentum", "noise", "contact", "trap_energy"),
+        error_bars=True,
+    )
+    check_params = {"cutoff": 12, "ladder": 3}
     parameters = (
         Parameter("truncation", str, "energy", "basis cutoff: 'energy' (E <= E_0 + cutoff) or 'orbital'", choices=("energy", "orbital")),
         Parameter(
@@ -378,11 +383,8 @@ class OscillatorEDBackend(Backend):
         return {2: 32, 3: 28, 4: 24, 5: 20, 6: 16, 7: 14}.get(n, 12)
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
-        """Solve on one BLAS thread (engineering notes: two threads on a loaded 2-core box are far slower)."""
-        from threadpoolctl import threadpool_limits
-
-        with threadpool_limits(limits=1):
-            return self._compute(problem, params)
+        """Solve with the BLAS thread count the caller set (trapbench's executor: ``--blas-threads``, default 1)."""
+        return self._compute(problem, params)
 
     def _compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         kind = params["truncation"]
@@ -516,7 +518,7 @@ class OscillatorEDBackend(Backend):
         """Scalars (always) and the requested observables on grids of one state.
 
         ``trap_delta`` = (<V_trap>, dE/dg), extrapolated along the cutoff ladder like the energy, so
-        that the virial residual E - 2<V> - (g/2) dE/dg (anchors 3.4) tests converged quantities and
+        that the virial residual E - 2<V> - (g/2) dE/dg (virial theorem) tests converged quantities and
         the kinetic energy is E - <V> - g dE/dg; grids come from the largest cutoff's eigenvector.
         """
         basis = level.sector.basis

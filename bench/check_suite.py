@@ -245,7 +245,8 @@ def admitted_problems(backend: Any, params: dict[str, Any], problems: Iterable[P
         for point in problem.points():
             if support_of(backend, point, params):
                 found.append(point)
-    return sorted(found, key=lambda p: (p.n_particles, p.targets.states))
+    # smallest first; equal masses before unequal ones of the same size (cheaper for grid methods)
+    return sorted(found, key=lambda p: (p.n_particles, not p.equal_masses, p.targets.states))
 
 
 def quick_problems(admitted: Sequence[Problem]) -> list[Problem]:
@@ -267,7 +268,8 @@ def backend_checks(
 ) -> list[BackendCheck]:
     """Every check that applies to ``backend`` (an instance or a registered name), in running order.
 
-    ``tier`` "quick" keeps the physics checks to the ``quick_problems`` of the admitted default problems; "thorough" runs
+    ``tier`` "quick" runs at the backend's declared ``check_params`` (cheap settings; ``params`` override them)
+    and keeps the physics checks to the ``quick_problems`` of the admitted default problems; "thorough" runs
     them on all, plus the references of the catalogue entries with at most ``catalogue_max_particles``
     particles (default 3 for "thorough", 0 for "quick"). Problems given explicitly are all checked, whatever
     the tier. ``only`` restricts the suite to the named checks (contract or physics).
@@ -276,6 +278,8 @@ def backend_checks(
         raise ValueError(f"tier: got {tier!r}; allowed: {', '.join(TIERS)}")
     backend = registry.get(backend) if isinstance(backend, str) else backend
     params = dict(params or {})
+    if tier == "quick":
+        params = {**getattr(backend, "check_params", {}), **params}
     if isinstance(backend, Backend):
         params = backend.resolve_params(params)  # malformed parameters: SpecError before any work
     unknown = sorted(set(only or ()) - set(CONTRACT_CHECKS) - set(CHECKS) - {"declaration"})

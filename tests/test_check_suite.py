@@ -2,25 +2,19 @@
 
 The physics checks state exact properties of the Hamiltonian (bench/validation.py names the origin of
 each); the contract checks state the backend protocol of backends/base.py (common practice for a plug-in
-interface, no outside source). Cheap parameters keep each backend's suite to seconds.
+interface, no outside source). The quick tier runs each backend at the cheap ``check_params`` it declares.
 """
 
 import pytest
 
+from trapbench.backends import registry
 from trapbench.backends.base import Backend, Capabilities
 from trapbench.backends.result import Observable, Solution
 from trapbench.backends.two_body import TwoBodyBackend
 from trapbench.bench.check_suite import assert_check, backend_checks, check_cases, run_checks
 from trapbench.problems.spec import Problem
 
-CHEAP_PARAMS = {
-    "two-body": {},
-    "perturbative": {},
-    "strong-coupling": {},
-    "oscillator-ed": {"cutoff": 12, "ladder": 3},
-    "lattice-ed": {"spacings": [0.5, 0.35, 0.25]},
-    "lattice-dmrg": {"spacings": [0.6, 0.45, 0.3], "chi": [16, 32], "max_sweeps": 6},
-}
+BUILTIN = list(registry.BUILTIN)  # each runs at the cheap check_params it declares beside its code
 # First order in g carries no error bar, so every comparison with an exact level at g != 0 beyond its
 # O(g^2) accuracy is a genuine, expected failure of the method (not of the check).
 KNOWN_FAILURES = {
@@ -35,8 +29,8 @@ KNOWN_FAILURES = {
 
 def _cases():
     cases = []
-    for name, params in CHEAP_PARAMS.items():
-        for case in check_cases(name, params, known_failures=KNOWN_FAILURES.get(name)):
+    for name in BUILTIN:
+        for case in check_cases(name, known_failures=KNOWN_FAILURES.get(name)):
             cases.append(pytest.param(*case.values, id=f"{name}:{case.id}", marks=case.marks))
     return cases
 
@@ -47,8 +41,8 @@ def test_builtin_backend_passes_its_checks(check):
 
 
 def test_every_builtin_backend_is_covered_by_contract_and_physics_checks():
-    for name, params in CHEAP_PARAMS.items():
-        kinds = {check.kind for check in backend_checks(name, params)}
+    for name in BUILTIN:
+        kinds = {check.kind for check in backend_checks(name)}
         assert kinds == {"contract", "physics"}, name
 
 
