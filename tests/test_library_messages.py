@@ -4,6 +4,7 @@ import logging
 import warnings
 
 from trapbench.backends import get
+from trapbench.bench.cli import main
 from trapbench.backends.two_body import TwoBodyBackend
 from trapbench.problems.spec import Problem
 
@@ -42,3 +43,13 @@ def test_dmrg_solve_prints_no_library_warning(capfd):
     _, err = capfd.readouterr()
     assert err == ""
     assert any("unused options" in m for m in result.diagnostics.get("library_messages", []))
+
+
+def test_solve_verbose_shows_them(capsys, monkeypatch):
+    from trapbench.backends import registry
+
+    monkeypatch.setitem(registry.BUILTIN, "toy-chatty", f"{__name__}:ChattyToy")
+    assert main(["solve", "--up", "1", "--down", "1", "--g", "1", "-b", "toy-chatty"]) == 0
+    assert "library:" not in capsys.readouterr().out
+    assert main(["solve", "--up", "1", "--down", "1", "--g", "1", "-b", "toy-chatty", "-v"]) == 0
+    assert "library: UserWarning: an option was not used (x2)" in capsys.readouterr().out

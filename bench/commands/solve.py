@@ -30,6 +30,8 @@ def register(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print the result(s) as JSON instead of a table")
     parser.add_argument("--output", "-o", metavar="FILE", help="also write the results as JSON to FILE")
     parser.add_argument("--blas-threads", type=int, default=1, metavar="N", help="BLAS/OpenMP threads (default 1)")
+    parser.add_argument("--verbose", "-v", action="store_true",
+                        help="also print the messages libraries emitted during each solve (kept in diagnostics)")
 
 
 def split_backend_params(pairs: list[str] | None, backends: list[str]) -> dict[str, dict[str, str]]:
@@ -85,13 +87,13 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(documents[0] if len(documents) == 1 else {"results": documents}))
     else:
-        _print_table(problem, results)
+        _print_table(problem, results, args.verbose)
     for name, g, message in failures:
         print(f"{name} at g = {g:g} failed: {message}", file=sys.stderr)
     return 1 if failures else 0
 
 
-def _print_table(problem, results) -> None:
+def _print_table(problem, results, verbose: bool = False) -> None:
     print(f"{problem.describe()}   energies in hbar*omega, g in sqrt(hbar^3 omega/m0)")
     header = f"{'backend':16s} {'g':>9s}  {'energies (ascending)':48s} {'error est.':>10s} {'wall s':>8s}"
     print(header)
@@ -102,3 +104,6 @@ def _print_table(problem, results) -> None:
         print(f"{r.backend:16s} {r.g:9.4g}  {energies:48s} {error:>10s} {r.wall_time_s:8.3f}")
         for warning in r.warnings:
             print(f"{'':28s}note: {warning}")
+        if verbose:
+            for message in r.diagnostics.get("library_messages", []):
+                print(f"{'':28s}library: {message}")
