@@ -39,11 +39,12 @@ from typing import Any
 import numpy as np
 
 from ..backends import registry
-from ..backends.base import Backend, Capabilities, ContractError, Unsupported, support_of
+from ..backends.base import Backend, Capabilities, support_of
 from ..backends.result import OBSERVABLE_NAMES, SCALAR_NAMES
 from ..problems.catalogue import entries as catalogue_entries
 from ..problems.spec import OBSERVABLES, Problem
-from .validation import CHECKS, Runner, Skip, Tolerance, Verdict, default_problems, run_check
+from .executor import UNSUPPORTED, execute
+from .validation import CHECKS, Runner, Skip, TaskFailed, Tolerance, Verdict, default_problems, run_check
 
 TIERS = ("quick", "thorough")
 
@@ -78,12 +79,24 @@ def _verdict(name: str, problem: Problem | None, status: str, reason: str) -> Ve
     return Verdict(name, "-" if problem is None else problem.describe(), status, reason)
 
 
+class BrokenContract(Exception):
+    """The backend's answer broke the protocol (the base class's ContractError, or a wrong answer)."""
+
+
 def _solve(backend: Any, problem: Problem, params: dict[str, Any]):
-    """Solve through the protocol; a refusal is a skip, a broken contract a failure (raised as ContractError)."""
+    """Solve through the executor: a refusal is a skip, a broken contract ``BrokenContract``, any other
+    failure ``TaskFailed`` (an "error" verdict)."""
     support = support_of(backend, problem, params)
     if not support:
         raise Skip(f"{backend.name} does not admit {problem.describe()}: {support.reason}")
-    return backend.solve(problem, **params)
+    outcome = execute(backend, problem, params)
+    if outcome.status == UNSUPPORTED:
+        raise Skip(outcome.error)
+    if outcome.error_type == "ContractError":
+        raise BrokenContract(outcome.error.removeprefix("ContractError: "))
+    if not outcome.ok:
+        raise TaskFailed(outcome.error.splitlines()[0])
+    return outcome.solved()
 
 
 def check_declaration(backend: Any, params: dict[str, Any]) -> Verdict:
@@ -125,15 +138,16 @@ def check_refusal(backend: Any, params: dict[str, Any], problem: Problem) -> Ver
     if not requests:
         raise Skip("the declaration rules nothing out on this problem")
     for what, request, word in requests:
-        try:
-            backend.solve(request, **params)
-        except Unsupported as exc:
-            if word not in str(exc):
-                return _verdict(name, problem, "fail", f"{what} was refused, but the reason does not say '{word}': {exc}")
+        outcome = execute(backend, request, params)
+        if outcome.status == UNSUPPORTED:
+            if word not in outcome.error:
+                return _verdict(name, problem, "fail",
+                                f"{what} was refused, but the reason does not say '{word}': {outcome.error}")
             continue
-        except Exception as exc:  # anything but a clear refusal is a broken contract
-            return _verdict(name, problem, "fail", f"{what}: expected Unsupported, got {exc.__class__.__name__}: {exc}")
-        return _verdict(name, problem, "fail", f"{what} lies outside the declared capabilities but was computed")
+        if outcome.ok:
+            return _verdict(name, problem, "fail", f"{what} lies outside the declared capabilities but was computed")
+        # anything but a clear refusal is a broken contract
+        return _verdict(name, problem, "fail", f"{what}: expected a refusal, got {outcome.error.splitlines()[0]}")
     return _verdict(name, problem, "pass", f"refused {len(requests)} requests outside its capabilities with reasons")
 
 
@@ -142,10 +156,7 @@ def check_state_count(backend: Any, params: dict[str, Any], problem: Problem) ->
     declared = getattr(backend, "capabilities", None)
     counts = (1,) if isinstance(declared, Capabilities) and not declared.excited_states else (1, 3)
     for states in counts:
-        try:
-            result = _solve(backend, problem.with_targets(states=states, observables=[]), params)
-        except ContractError as exc:
-            return _verdict(name, problem, "fail", str(exc))
+        result = _solve(backend, problem.with_targets(states=states, observables=[]), params)
         energies = list(result.energies)
         if len(energies) != states:
             return _verdict(name, problem, "fail", f"asked for {states} states, got {len(energies)} energies")
@@ -160,10 +171,7 @@ def check_parity_sector(backend: Any, params: dict[str, Any], problem: Problem) 
         raise Skip("the backend declares no parity sectors")
     states = 2 if _capabilities(backend).excited_states else 1
     for sector, sign in (("even", 1), ("odd", -1)):
-        try:
-            result = _solve(backend, problem.with_targets(states=states, parity=sector, observables=[]), params)
-        except ContractError as exc:
-            return _verdict(name, problem, "fail", str(exc))
+        result = _solve(backend, problem.with_targets(states=states, parity=sector, observables=[]), params)
         labels = [s.get("parity") if isinstance(s, dict) else None for s in result.states]
         if len(labels) != len(result.energies) or any(label != sign for label in labels):
             return _verdict(name, problem, "fail", f"the {sector} sector returned states labelled {labels}")
@@ -175,10 +183,7 @@ def check_observables(backend: Any, params: dict[str, Any], problem: Problem) ->
     offered = list(_capabilities(backend).observables)
     if not offered:
         raise Skip("the backend declares no observables")
-    try:
-        result = _solve(backend, problem.with_targets(states=1, observables=offered), params)
-    except ContractError as exc:
-        return _verdict(name, problem, "fail", str(exc))
+    result = _solve(backend, problem.with_targets(states=1, observables=offered), params)
     unregistered = [n for n in result.observables if n.split("@")[0] not in OBSERVABLE_NAMES]
     unregistered += [n for n in result.scalars if n.split("@")[0] not in SCALAR_NAMES]
     if unregistered:
@@ -227,6 +232,10 @@ def _guarded(name: str, problem: Problem | None, body: Callable[[], Verdict]) ->
             return body()
         except Skip as exc:
             return _verdict(name, problem, "skip", str(exc))
+        except BrokenContract as exc:
+            return _verdict(name, problem, "fail", str(exc))
+        except TaskFailed as exc:
+            return _verdict(name, problem, "error", str(exc))
         except Exception as exc:  # a crash inside a check is a finding about the backend
             return _verdict(name, problem, "error", f"{exc.__class__.__name__}: {exc}")
 

@@ -51,10 +51,11 @@ from typing import Any
 
 import numpy as np
 
-from ..backends.base import Unsupported, support_of
+from ..backends.base import support_of
 from ..backends.result import Result
 from ..problems.references import noninteracting_levels, references_for
 from ..problems.spec import Problem
+from .executor import UNSUPPORTED, Limits, execute
 from .verdicts import reference_decides
 
 MAX_ANTISYMMETRIC_STATES = 40
@@ -95,12 +96,17 @@ class Skip(Exception):
     """The check cannot run here; the message says why."""
 
 
-class Runner:
-    """Solves problems with one backend through the protocol, caching by problem key."""
+class TaskFailed(Exception):
+    """The backend failed on a problem a check needed (its own message, e.g. "SolverError: ...")."""
 
-    def __init__(self, backend: Any, params: dict[str, Any] | None = None):
+
+class Runner:
+    """Solves problems with one backend through the harness's executor, caching by problem key."""
+
+    def __init__(self, backend: Any, params: dict[str, Any] | None = None, limits: Limits | None = None):
         self.backend = backend
         self.params = dict(params or {})
+        self.limits = limits
         self._cache: dict[str, Result] = {}
 
     def solve(self, problem: Problem) -> Result:
@@ -108,10 +114,12 @@ class Runner:
             support = support_of(self.backend, problem, self.params)
             if not support:
                 raise Skip(f"{self.backend.name} does not support {problem.describe()}: {support.reason}")
-            try:
-                self._cache[problem.key] = self.backend.solve(problem, **self.params)
-            except Unsupported as exc:
-                raise Skip(str(exc)) from None
+            outcome = execute(self.backend, problem, self.params, limits=self.limits)
+            if outcome.status == UNSUPPORTED:
+                raise Skip(outcome.error)
+            if not outcome.ok:
+                raise TaskFailed(outcome.error.splitlines()[0])
+            self._cache[problem.key] = outcome.solved()
         return self._cache[problem.key]
 
 
@@ -507,7 +515,9 @@ def run_check(name: str, runner: Runner, problem: Problem, tolerance: Tolerance)
         return CHECKS[name](runner, problem, tolerance)
     except Skip as exc:
         return Verdict(name, problem.describe(), "skip", str(exc))
-    except Exception as exc:  # a solver failure is a finding of the validation, reported as such
+    except TaskFailed as exc:  # a solver failure is a finding of the validation, reported as such
+        return Verdict(name, problem.describe(), "error", str(exc))
+    except Exception as exc:  # so is a crash inside the check on what the backend returned
         return Verdict(name, problem.describe(), "error", f"{exc.__class__.__name__}: {exc}")
 
 
