@@ -18,7 +18,8 @@ def register(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--mass-down", type=float, default=1.0, metavar="B", help="mass of down fermions (m0)")
     parser.add_argument("--g", type=float, required=True, help="contact coupling g")
     parser.add_argument("--accuracy", type=float, default=1e-4,
-                        help="wanted relative error of the ground-state energy (default 1e-4)")
+                        help="wanted relative error of the ground-state energy (default 1e-4); a stored result counts"
+                             " only where a reference at least ten times tighter confirms it")
     add_store_argument(parser)
 
 

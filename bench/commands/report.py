@@ -11,7 +11,7 @@ from .sweep import add_execution_arguments, add_store_argument, options_from
 
 NAME = "report"
 HELP = ("run suites (skipping results already stored) and write reports/: Markdown and HTML with the method map,"
-        " agreement tables, accuracy-vs-cost and physics figures")
+        " error-bar calibration, agreement tables, accuracy-vs-cost and physics figures")
 ORDER = 66
 
 # The benchmark tables come from quick; the physics figures need the problems of figures.
