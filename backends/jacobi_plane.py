@@ -28,15 +28,19 @@ with a tensor product of hierarchical (integrated-Legendre, Babuska-Szabo) C0 sp
 rho on [0, R] (psi = 0 at rho = 0 since the node line passes through the origin, and at rho = R)
 and in phi with an element boundary on the ray, so the derivative jump across it is exact and
 convergence in the polynomial order p is exponential (hp-FEM: Schwab, "p- and hp-Finite Element
-Methods", Oxford 1998). Near the origin the solution has rho^k log(rho) terms (the rays meet there):
+Methods", Oxford 1998). Near the origin the solution has rho^k log(rho) terms (Frobenius expansion about the point where
+the rays meet, derived here):
 radial elements are graded geometrically toward rho = 0 (ratio ~0.2, the hp-FEM choice).
 
 Solver. In the eigenbasis of the angular stiffness/mass pair (K_phi u = s^2 M_phi u) the problem is
 N_phi independent radial problems coupled only through the rank-one ray term c c^T (c = basis
 values at alpha). (H - sigma S)^-1 is therefore applied exactly with one dense factorization per
 angular mode and a Woodbury correction of size N_rho, and scipy's ARPACK (eigsh, shift-invert)
-finds the lowest levels. Spaces of a fixed mesh are nested in p, so every Ritz value is an upper
-bound that decreases with p (min-max principle).
+finds the lowest levels; their energies are then Rayleigh quotients in the element basis (the
+computed angular eigenbasis is orthonormal only to rounding, which would shift Ritz values by ~1e-10).
+Spaces of a fixed mesh are nested in p, so every level is an upper bound that decreases with p
+(min-max principle). Measured (bench/benchmarks/bench_three_body_results.md): p = 12-14 reaches the
+rounding floor ~1e-13 for mass ratios 0.1-10 and g = -5 ... 100.
 """
 
 from __future__ import annotations
@@ -188,7 +192,7 @@ class RelativeSolution:
     energies: np.ndarray  # E_rel, units of omega
     ray_density: np.ndarray  # int psi(rho, alpha)^2 d rho per level (normalized over the quarter plane)
     rho_squared: np.ndarray  # <rho^2> per level
-    vectors: np.ndarray  # (levels, N_phi_modes, N_rho) coefficients in the angular eigenbasis
+    vectors: np.ndarray  # (levels, N_phi, N_rho) coefficients in the element basis (angular x radial)
     dimension: int
 
 
