@@ -160,14 +160,19 @@ class ThreeBodyBackend(Backend):
         dimensions = []
         for parity in RELATIVE_PARITIES:
             runs = []
-            shift = sigma
             for order in orders:
                 plane = QuarterPlane(alpha, lam, parity, order, radial, angular)
-                runs.append(plane.lowest(count, shift))
-                # the next rung's levels lie below this one's (nested spaces) by far less than this margin;
-                # a shift close below them makes shift-invert converge in few iterations
-                lowest = runs[-1].energies[0]
-                shift = max(sigma, lowest - 0.25 * max(1.0, abs(lowest)))
+                shift = sigma
+                if len(runs) >= 2:
+                    # a shift close below the levels makes shift-invert converge in few iterations; the
+                    # next rung lies below this one (nested spaces) by less than the last change, which
+                    # shrinks geometrically: four times it (and a quarter of |E|) keeps the shift below
+                    lowest, change = runs[-1].energies[0], runs[-2].energies[0] - runs[-1].energies[0]
+                    shift = max(sigma, lowest - max(0.25 * max(1.0, abs(lowest)), 4 * abs(change)))
+                run = plane.lowest(count, shift)
+                if run.energies[0] < shift:  # a level below the shift: the guess failed, use the bound
+                    run = plane.lowest(count, sigma)
+                runs.append(run)
             dimensions.append(runs[-1].dimension)
             energies = np.array([run.energies for run in runs])
             if np.any(np.diff(energies, axis=0) > 1e-9 * np.maximum(1.0, np.abs(energies[1:]))):
