@@ -9,7 +9,7 @@ Prints one JSON line; ``--out`` appends it to a file.
     python bench/benchmarks/bench_lattice_run.py --backend lattice-ed --up 2 --down 2 --g 2 \\
         --grid-only --sites 40            # one lattice: time and memory against L
 
-Reference energies for the accuracy column: ``--exact`` (e.g. from oscillator-ed or the anchors).
+Reference energies for the accuracy column: ``--exact`` (e.g. the three-body backend, the reference dataset, or an exact 1+1 root).
 """
 
 from __future__ import annotations
