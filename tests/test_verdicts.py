@@ -183,8 +183,8 @@ def test_miscalibrated_backend_is_flagged_in_the_map_and_ranked_last_by_advise()
     assert row["backend at 1e-03"] == "overconfident"  # the map still names the cheapest that reached it ...
     assert row["error bars below 95 % at 2 sigma"] == "overconfident (0/1 = 0 %)"  # ... and flags its error bars
     advice = advise(frame, Query(2, 1, g=20.0, accuracy=1e-4))
-    assert [r.backend for r in advice.recommendations] == ["honest", "overconfident"]
-    assert not advice.recommendations[1].reliable and "coverage at 2 sigma 0 %" in advice.recommendations[1].reasons[1]
+    assert [r.backend for r in advice.recommendations] == ["honest"]  # a flagged backend is never recommended
+    assert "coverage at 2 sigma 0 %" in advice.rejected["overconfident"]
 
 
 def test_advice_carries_no_cost_over_from_other_masses():

@@ -1,0 +1,75 @@
+"""``trapbench map --store STORE``: build the method map that ``trapbench advise`` ships with, from sweeps of the map suite.
+
+    trapbench sweep map --store map.sqlite --workers 2
+    trapbench map --store map.sqlite [--store more.sqlite ...]   # writes problems/data/method_map.json
+
+Every successful ground-state result of the stores is graded (``advisor.graded_frame``: exact references,
+the shipped reference dataset, and the dataset's agreement rule applied to the stores' own results, never
+grading a method by its own family) and written as one compact JSON table with its version, the neighbour
+rule and the stores it came from.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+from pathlib import Path
+
+NAME = "map"
+HELP = "build the method map shipped for `trapbench advise` from stores holding sweeps of the 'map' suite"
+ORDER = 47
+
+
+def register(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--store", required=True, action="append", metavar="PATH",
+                        help="a results store of the map sweep (repeatable: every store's results are pooled)")
+    parser.add_argument("--suite", default=None,
+                        help="use only the results of this suite (default: every stored result)")
+    parser.add_argument("--output", metavar="PATH",
+                        help="where to write the table (default: the file shipped in this installation)")
+    parser.add_argument("--dry-run", action="store_true", help="print the summary, write nothing")
+
+
+def default_output() -> Path:
+    from importlib import resources
+
+    from ..advisor import MAP_RESOURCE
+
+    return Path(str(resources.files("trapbench.problems").joinpath(*MAP_RESOURCE)))
+
+
+def run(args: argparse.Namespace) -> int:
+    import pandas as pd
+
+    from ...problems.errors import SpecError
+    from ..advisor import graded_frame, measurement_table, table_to_json
+    from ..store import Store
+    from ..verdicts import REACHED, judge_frame
+
+    frames = []
+    for path in args.store:
+        if not Path(path).is_file():
+            raise SpecError("--store", f"no store at {path}; run 'trapbench sweep map --store {path}' first")
+        with Store.open(path) as store:
+            frames.append(store.results_frame(suite=args.suite))
+    frame = pd.concat([f for f in frames if not f.empty], ignore_index=True) if any(not f.empty for f in frames) else None
+    if frame is None:
+        raise SpecError("--suite" if args.suite else "--store", "the stores hold no results"
+                        + (f" of suite '{args.suite}'" if args.suite else ""))
+    table = measurement_table(graded_frame(frame))
+    if table.empty:
+        print("no successful ground-state result in these stores")
+        return 1
+    reached = judge_frame(table, 1e-4) == REACHED
+    summary = table.assign(reached=reached).groupby("backend").agg(results=("state", "size"),
+                                                                  reached_1e_4=("reached", "sum"))
+    print(f"method map: {len(table)} ground-state results from {len(args.store)} store(s)")
+    print(summary.to_string())
+    if args.dry_run:
+        return 0
+    target = Path(args.output) if args.output else default_output()
+    target.parent.mkdir(parents=True, exist_ok=True)
+    data = table_to_json(table, [Path(p).name for p in args.store])
+    target.write_text(json.dumps(data, separators=(",", ":"), default=str) + "\n", encoding="utf-8")
+    print(f"wrote {target}")
+    return 0
