@@ -1,0 +1,172 @@
+"""The advisor: the neighbour rule, the shape of `advise --json`, the shipped method map and its grading.
+
+Frames are synthetic (as tests/test_verdicts.py builds them) except where the shipped table is read.
+"""
+
+from __future__ import annotations
+
+import json
+
+import pandas as pd
+import pytest
+
+from trapbench.bench.advisor import (MASS_RATIO_FACTOR, WEAK_MAX, Query, advise, g_regime, graded_frame,
+                                     measurement_table, neighbour_distance, param_arguments, shipped_table,
+                                     table_from_json, table_to_json)
+from trapbench.bench.tables import attach_references
+
+
+class Exact:
+    """One exact ground-state reference for every problem (a synthetic closed form)."""
+
+    def __init__(self, value):
+        self.value = value
+
+    def __call__(self, problem):
+        from trapbench.problems.references import Reference
+
+        return [Reference("energy", 0, self.value, 0.0, "synthetic", "exact")]
+
+
+def runs(backend, points, n_up=2, n_down=1):
+    """A results frame as Store.results_frame makes it: one run per (mass_up, mass_down, g, energy, bar, cpu, params)."""
+    from trapbench.problems.spec import Problem
+
+    rows = []
+    for i, (mass_up, mass_down, g, energy, bar, cpu, params) in enumerate(points):
+        problem = Problem.create(n_up, n_down, g, mass_up=mass_up, mass_down=mass_down)
+        rows.append({"task_key": f"{backend}{i}", "problem_key": problem.key, "problem": problem.to_dict(),
+                     "problem_name": f"{n_up}+{n_down}", "n_up": n_up, "n_down": n_down, "mass_up": mass_up,
+                     "mass_down": mass_down, "g": g, "backend": backend, "params": params,
+                     "params_text": ", ".join(f"{k}={v}" for k, v in sorted(params.items())), "status": "ok", "state": 0,
+                     "energy": energy, "energy_error": bar, "error_estimate": bar, "solve_cpu_s": cpu, "cpu_time_s": cpu,
+                     "solve_wall_s": cpu, "peak_rss_bytes": 100 << 20})
+    return pd.DataFrame(rows)
+
+
+def test_g_regimes_and_their_boundaries():
+    assert [g_regime(g) for g in (-3.0, -1e-9, 0.0, WEAK_MAX, WEAK_MAX + 1e-9, 10.0)] == [
+        "attractive", "attractive", "weak", "weak", "strong", "strong"]
+
+
+def test_neighbours_share_counts_regime_and_a_mass_ratio_within_the_factor():
+    query = Query(2, 1, mass_up=20 / 3, g=-3.0)
+    candidates = [  # (n_up, n_down, m_up, m_down, g, neighbour?)
+        (2, 1, 20 / 3, 1.0, -2.0, True),                       # same masses, same regime
+        (1, 2, 1.0, 20 / 3, -1.0, True),                       # species relabelled: the same physics
+        (2, 1, 20 / 3 * 0.99 * MASS_RATIO_FACTOR, 1.0, -3.0, True),
+        (2, 1, 20 / 3 * 1.01 * MASS_RATIO_FACTOR, 1.0, -3.0, False),  # mass ratio too far
+        (2, 1, 2.0, 1.0, -3.0, False),
+        (2, 1, 20 / 3, 1.0, 2.0, False),                       # other g regime
+        (1, 2, 20 / 3, 1.0, -3.0, False),                      # 1+2 with the pair light: another system
+        (3, 1, 20 / 3, 1.0, -3.0, False),                      # other particle number
+    ]
+    n_up, n_down, m_up, m_down, g, expected = zip(*candidates)
+    distance = neighbour_distance(query, n_up, n_down, m_up, m_down, g)
+    assert list(distance.notna()) == list(expected)
+    assert distance.iloc[0] == pytest.approx(0.0, abs=1e-12) and distance.iloc[1] == pytest.approx(0.0, abs=1e-12)
+
+
+def test_advice_comes_only_from_neighbours_and_prefers_the_problem_itself():
+    exact = Exact(4.0)
+    frame = pd.concat([
+        runs("ladder", [(20 / 3, 1.0, -3.0, 4.0 + 4e-5, 5e-5, 30.0, {"cutoff": 32}),
+                        (20 / 3, 1.0, -3.0, 4.0 + 4e-3, 5e-3, 3.0, {"cutoff": 16}),
+                        (20 / 3, 1.0, -2.0, 4.0 + 4e-6, 5e-6, 2.0, {"cutoff": 24})]),
+        runs("cheap-elsewhere", [(1.0, 1.0, -3.0, 4.0 + 4e-7, 1e-6, 0.1, {"order": 10})]),  # mass ratio 1 only
+    ], ignore_index=True)
+    frame = attach_references(frame, exact)
+
+    at = advise(frame, Query(2, 1, mass_up=20 / 3, g=-3.0, accuracy=1e-4))
+    assert at.best.backend == "ladder" and at.best.evidence == "measured" and at.best.confidence == "high"
+    assert at.best.param_values == {"cutoff": 32} and at.best.cpu_s == 30.0
+    assert "only at other masses" in at.rejected["cheap-elsewhere"]
+
+    # g = -2.5: not measured; g = -3 is at least as strong and the same regime -> that run, medium confidence
+    near = advise(frame, Query(2, 1, mass_up=20 / 3, g=-2.5, accuracy=1e-4)).best
+    assert (near.evidence, near.confidence, near.measured_on["g"]) == ("nearby g", "medium", -3.0)
+
+    # the mirror image (1+2, light pair) of the same system is the same problem
+    mirror = advise(frame, Query(1, 2, mass_up=1.0, mass_down=20 / 3, g=-3.0, accuracy=1e-4)).best
+    assert mirror.evidence == "measured" and mirror.param_values == {"cutoff": 32}
+
+    none = advise(frame, Query(2, 1, mass_up=20 / 3, g=2.0, accuracy=1e-4))  # repulsive: another regime
+    assert none.best is None
+    data = none.to_json_dict()
+    assert data["backend"] is None and data["sweep_command"].startswith("trapbench sweep map")
+
+
+def test_a_backend_flagged_on_a_class_is_refused_there_only():
+    exact = Exact(4.0)
+    # error bar 1e-7 against a true error of 1e-6 at mass ratio 20/3: coverage 0 % there; honest bars at mass 1
+    frame = attach_references(pd.concat([
+        runs("narrow", [(20 / 3, 1.0, 2.0, 4.0 + 4e-6, 4e-7, 1.0, {"cutoff": 20}),
+                        (1.0, 1.0, 2.0, 4.0 + 4e-6, 4e-6, 1.0, {"cutoff": 20})]),
+        runs("honest", [(20 / 3, 1.0, 2.0, 4.0 + 4e-6, 4e-6, 9.0, {"order": 14})]),
+    ], ignore_index=True), exact)
+    heavy = advise(frame, Query(2, 1, mass_up=20 / 3, g=2.0, accuracy=1e-4))
+    assert [r.backend for r in heavy.recommendations] == ["honest"]
+    assert "coverage at 2 sigma 0 %" in heavy.rejected["narrow"]
+    equal = advise(frame, Query(2, 1, g=2.0, accuracy=1e-4))
+    assert equal.best.backend == "narrow"
+
+
+def test_json_advice_is_one_object_whose_params_the_solve_command_accepts():
+    from trapbench.backends import registry
+
+    exact = Exact(4.0)
+    frame = attach_references(runs("lattice-ed", [(1.0, 1.0, 1.0, 4.0 + 4e-6, 4e-6, 12.0,
+                                                   {"spacings": [0.5, 0.4, 0.3], "max_dimension": 2000000})]), exact)
+    data = json.loads(json.dumps(advise(frame, Query(2, 1, g=1.0, accuracy=1e-4)).to_json_dict()))
+    assert {"backend", "params", "expected_cpu_s", "expected_peak_mib", "evidence", "command"} <= set(data)
+    assert data["backend"] == "lattice-ed" and data["expected_cpu_s"] == 12.0 and data["expected_peak_mib"] == 100.0
+    assert data["params"] == {"max_dimension": "2000000", "spacings": "0.5,0.4,0.3"}
+    assert data["evidence"]["kind"] == "measured" and data["evidence"]["measured_on"]["g"] == 1.0
+    assert "--param spacings=0.5,0.4,0.3" in data["command"]
+    # the texts are what `--param` passes to the backend, which converts them back to the measured values
+    resolved = registry.get("lattice-ed").resolve_params(data["params"])
+    assert tuple(resolved["spacings"]) == (0.5, 0.4, 0.3) and resolved["max_dimension"] == 2000000
+    assert param_arguments({"chi": (32, 64), "mixer": False, "x_max": 6.5}) == {
+        "chi": "32,64", "mixer": "false", "x_max": "6.5"}
+
+
+def test_store_results_are_graded_by_other_methods_never_by_their_own():
+    # g = -2.5 is on no reference grid: the only reference is the three-body result of the same store
+    e3 = -1.23456789
+    frame = pd.concat([runs("three-body", [(20 / 3, 1.0, -2.5, e3, 1e-11, 2.0, {"order": 18})]),
+                       runs("oscillator-ed", [(20 / 3, 1.0, -2.5, e3 + 1e-5, 2e-5, 5.0, {"cutoff": 32})])],
+                      ignore_index=True)
+    graded = graded_frame(frame).set_index("backend")
+    assert graded.loc["oscillator-ed", "ref_value"] == pytest.approx(e3, rel=1e-15)
+    assert "three-body" in graded.loc["oscillator-ed", "ref_source"]
+    assert pd.isna(graded.loc["three-body", "ref_value"])  # never graded by its own result
+
+
+def test_table_round_trip_keeps_every_verdict(tmp_path):
+    from trapbench.bench.verdicts import judge_frame
+
+    exact = Exact(4.0)
+    frame = attach_references(runs("ladder", [(2.0, 1.0, -1.0, 4.0 + 4e-5, 5e-5, 3.0, {"cutoff": 24}),
+                                              (2.0, 1.0, -1.0, 4.0 + 4e-7, 5e-7, 9.0, {"cutoff": 32})]), exact)
+    table = measurement_table(frame)
+    back = table_from_json(json.loads(json.dumps(table_to_json(table, ["synthetic.sqlite"]))))
+    for threshold in (1e-3, 1e-5, 1e-6):
+        assert list(judge_frame(back, threshold)) == list(judge_frame(table, threshold))
+    assert back["params"].tolist() == [{"cutoff": 24}, {"cutoff": 32}]
+    assert advise(back, Query(2, 1, mass_up=2.0, g=-1.0, accuracy=1e-5)).best.param_values == {"cutoff": 32}
+
+
+def test_shipped_table_loads_and_advise_answers_without_a_store(tmp_path, capsys):
+    from trapbench.bench.cli import main
+
+    table = shipped_table()
+    if table.empty:
+        pytest.skip("this installation ships no method map")
+    assert {"backend", "params", "accuracy", "solve_cpu_s", "measurement_source"} <= set(table.columns)
+    assert table["measurement_source"].str.startswith("shipped method map").all()
+    absent = tmp_path / "no-store.sqlite"
+    code = main(["advise", "--store", str(absent), "--up", "2", "--down", "1", "--mass-up", str(20 / 3), "--g", "-3",
+                 "--accuracy", "1e-4", "--json"])
+    data = json.loads(capsys.readouterr().out)  # exactly one JSON object
+    assert code == (0 if data["backend"] else 1) and not absent.exists()
+    assert (data["backend"] is None) == (data["sweep_command"] is not None)
