@@ -238,7 +238,7 @@ def test_odd_even_staggering_matches_first_order_closed_form(built):
 def test_spectra_and_density_tables_are_the_stored_numbers(built):
     frame, output = built["frame"], built["output"]
     spectra = pd.read_csv(output / "tables" / "spectra.csv")
-    assert set(spectra["mass ratio"]) == {"1", "6.667 (40/6)"}
+    assert set(spectra["mass ratio"]) == {"1", "6.667 (20/3)"}
     levels = [f"E{k}" for k in range(6)]
     assert len(spectra) == 2 * 3 and set(levels) <= set(spectra.columns)  # two mass ratios x three g, six levels
     stored = frame[(frame["backend"] == "perturbative") & (frame["n_up"] == 2) & (frame["n_down"] == 1)
@@ -358,3 +358,88 @@ def test_noise_figures_read_maps_and_integrals_from_the_store(tmp_path):
     slopes = integral.table.dropna(subset=["slope"]).set_index("mass ratio")["slope"]
     assert slopes["1"] == pytest.approx(SyntheticNoise.S, rel=1e-10)
     assert slopes["2"] == pytest.approx(SyntheticNoise.S / 2, rel=1e-10)
+
+
+# ----------------------------------------------------------------------------- levels against the mass ratio, g = inf limits
+
+
+class SyntheticLevels:
+    """A stand-in backend whose k-th level of 2+1 is W_k(m_up/m_down) - 0.1 / (k + 1): just below the exact
+    g = +inf level W_k of the hard-core wedges (problems.exact.wedges), with error bar 1e-9."""
+
+    @staticmethod
+    def backend():
+        from trapbench.backends.base import Backend, Support
+        from trapbench.backends.result import Solution
+        from trapbench.problems.exact import wedges
+
+        class Synthetic(Backend):
+            name = "synthetic-levels"
+            version = "1"
+            summary = "levels just below the g = inf wedge levels, for the report tests"
+            parameters = ()
+
+            def supports(self, problem, params):
+                return Support.yes()
+
+            def compute(self, problem, params):
+                states = problem.targets.states
+                top = wedges.wedge_spectrum(problem.up.mass, problem.down.mass, 1.0, states)
+                return Solution(energies=[w.energy - 0.1 / (k + 1) for k, w in enumerate(top)],
+                                states=[{} for _ in top], error_estimate=1e-9)
+
+        return Synthetic()
+
+
+def store_levels(store, problems):
+    from trapbench.bench.executor import OK, Outcome
+    from trapbench.bench.suite import Task
+
+    backend = SyntheticLevels.backend()
+    run_id = store.begin_run("synthetic", "", len(problems))
+    for problem in problems:
+        store.record(run_id, "synthetic", Task("levels", problem, backend.name, {}, 60.0, 512.0),
+                     Outcome(status=OK, result=backend.solve(problem).to_json_dict(), wall_time_s=0.1, cpu_time_s=0.1,
+                             peak_rss_bytes=1 << 20))
+
+
+def test_mass_scan_draws_the_stored_levels_and_the_exact_infinite_coupling_curves(tmp_path):
+    from trapbench.bench.report.figures import mass_scan
+    from trapbench.bench.tables import attach_references
+    from trapbench.problems.spec import Problem
+
+    ratios = (1 / 8.8, 0.4, 1.0, 2.5, 5.0, 8.8)  # the lighter species at mass 1
+    problems = [Problem.create(2, 1, 10.0, mass_up=max(r, 1.0), mass_down=max(1 / r, 1.0), states=3) for r in ratios]
+    with Store.open(tmp_path / "s.sqlite") as store:
+        store_levels(store, problems[:4])
+        assert mass_scan.build(attach_references(store.results_frame())).missing  # four ratios are too few
+        store_levels(store, problems[4:])
+        outcome = mass_scan.build(attach_references(store.results_frame()))
+    assert outcome.missing is None and len(outcome.table) == len(ratios)
+    table = outcome.table
+    for k in range(3):  # the drawn numbers are the stored ones, each 0.1/(k+1) below its g = inf level
+        assert np.allclose(table[f"E{k} at g=inf"] - table[f"E{k}"], 0.1 / (k + 1), atol=1e-12)
+    # equal masses: the g = inf levels are the fermionized ones, N^2/2 = 4.5 three times (three distinguishable
+    # orderings of 2+1 on a line, each like three free fermions 1/2 + 3/2 + 5/2; textbook fermionization)
+    equal = table[table["mass ratio"] == "1"].iloc[0]
+    assert [equal[f"E{k} at g=inf"] for k in range(3)] == pytest.approx([4.5, 4.5, 4.5], abs=1e-12)
+    assert "8.8 (53Cr/6Li)" in set(table["mass ratio"]) and "0.1136 (6Li/53Cr)" in set(table["mass ratio"])
+    axis = outcome.figure.axes[0]
+    assert axis.get_xscale() == "log" and len(axis.lines) >= 3 + 3  # three level curves and three g = inf curves
+
+
+def test_spectra_panels_carry_the_exact_infinite_coupling_levels(built):
+    from trapbench.bench.report.figures import spectra
+    from trapbench.bench.tables import attach_references
+
+    data = spectra.select(attach_references(built["frame"]))
+    equal, heavy = data.panels
+    # fermionization of 2+1 at equal masses: 4.5 (three times), then 5.5 -- free-fermion sums 1/2 + 3/2 + 5/2 and
+    # 1/2 + 3/2 + 7/2, each times the C(3, 1) = 3 orderings of the spins (textbook, hand-counted here)
+    assert equal.infinite[:4] == pytest.approx([4.5, 4.5, 4.5, 5.5], abs=1e-12)
+    assert heavy.ratio == pytest.approx(20 / 3, rel=1e-6) and len(heavy.infinite) == 6
+    # every stored level at finite g > 0 lies at or below its g = inf counterpart (sum of deltas is positive)
+    for panel in (equal, heavy):
+        top = max(g for points in panel.lines.values() for g, _, _ in points)
+        at_top = sorted(e for points in panel.lines.values() for g, e, _ in points if g == top)
+        assert all(e <= inf + 1e-12 for e, inf in zip(at_top, sorted(panel.infinite)))

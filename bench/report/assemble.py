@@ -21,7 +21,7 @@ from ..verdicts import COVERAGE_TARGET, REFERENCE_MARGIN
 from . import analysis
 from .analysis import MAP_TARGETS, SCALING_ACCURACY, SCALING_MAX_STATES, target_label
 from .document import Document, Heading, Paragraph, Table, render_html, render_markdown
-from .figures import cost_scaling, densities, error_vs_cost, file_stem, noise, odd_even, spectra
+from .figures import cost_scaling, densities, error_vs_cost, file_stem, mass_scan, noise, odd_even, spectra
 
 MAX_COST_FIGURES = 24
 FIGURE_DPI = 100
@@ -135,7 +135,7 @@ def scaling_section(document: Document, frame: pd.DataFrame, folder: Path) -> No
 
 def physics_section(document: Document, frame: pd.DataFrame, store, folder: Path) -> None:
     document.add(Heading(2, "Physics"))
-    outcomes = [spectra.build(frame), densities.build(frame, store), noise.build_maps(frame, store),
+    outcomes = [spectra.build(frame), mass_scan.build(frame), densities.build(frame, store), noise.build_maps(frame, store),
                 noise.build_integral(frame), odd_even.build(frame)]
     for outcome in outcomes:
         document.add(Heading(3, outcome.title))

@@ -62,12 +62,29 @@ def mass_ratio(row) -> float:
     return round(float(row["mass_up"]) / float(row["mass_down"]), RATIO_DIGITS)
 
 
+# Named mass ratios: the demo mixture of the figures (a 53Cr-6Li pair, 52.9406 u / 6.0151 u = 8.801, taken as 8.8
+# as in problems/examples) and the check value 20/3 of the reference dataset.
+NAMED_RATIOS = ((8.8, "53Cr/6Li"), (1 / 8.8, "6Li/53Cr"), (20 / 3, "20/3"), (3 / 20, "3/20"))
+
+
 def ratio_text(ratio: float) -> str:
-    """m_up/m_down for people: '1', '2', '6.667 (40/6)'."""
-    for num, den in ((40, 6), (6, 40)):
-        if math.isclose(ratio, num / den, rel_tol=1e-6):
-            return f"{ratio:.4g} ({num}/{den})"
+    """m_up/m_down for people: '1', '2', '8.8 (53Cr/6Li)', '6.667 (20/3)'."""
+    for value, name in NAMED_RATIOS:
+        if math.isclose(ratio, value, rel_tol=1e-5):  # mass_ratio rounds to RATIO_DIGITS decimals
+            return f"{ratio:.4g} ({name})"
     return f"{ratio:.4g}"
+
+
+def infinite_coupling_levels(n_up: int, n_down: int, mass_up: float, mass_down: float, states: int) -> list[float]:
+    """The levels at g = +inf where trapbench knows them exactly (``references_for``'s ``energy_g_inf``), else [].
+
+    Known: equal masses (fermionization), 1+1 with any masses (Busch's limit), 2+1 / 1+2 with any masses (wedges).
+    """
+    from ....problems.references import references_for
+    from ....problems.spec import Problem
+
+    problem = Problem.create(n_up, n_down, 1.0, mass_up=mass_up, mass_down=mass_down, states=states)
+    return [r.value for r in sorted(references_for(problem), key=lambda r: r.state) if r.quantity == "energy_g_inf"]
 
 
 def requested(row) -> dict:

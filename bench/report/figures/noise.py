@@ -22,6 +22,7 @@ MAP_MIN_GRID = 41
 MAX_MAPS = 4
 MIN_POINTS = 3
 SLOPE_MAX_G = 0.5
+MAX_TICKED_RATIOS = 5
 INTEGRAL_COLUMN = "scalar.noise_integral"
 
 
@@ -148,10 +149,11 @@ def draw_integral(scans: pd.DataFrame):
     left.grid(True, alpha=0.3)
     if slopes:
         r, s, ds, _ = map(np.array, zip(*slopes))
-        right.errorbar(r, s, yerr=np.nan_to_num(ds), fmt="o-", capsize=3)
+        right.errorbar(r, s, yerr=np.nan_to_num(ds), fmt="o-", ms=4, capsize=3)
         right.set_xscale("log")
-        right.set_xticks(r, [f"{v:.4g}" for v in r])
-        right.minorticks_off()
+        if len(r) <= MAX_TICKED_RATIOS:  # few ratios: tick each; a long scan keeps the log axis's own ticks
+            right.set_xticks(r, [f"{v:.4g}" for v in r])
+            right.minorticks_off()
     right.set_xlabel(r"mass ratio $m_\uparrow/m_\downarrow$")
     right.set_ylabel(r"slope $s = \lim_{g\to 0}\sqrt{I}\,/\,|g|$ [$1/(\hbar^2\omega)$]")
     right.grid(True, which="both", alpha=0.3)

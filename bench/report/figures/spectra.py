@@ -1,8 +1,11 @@
-"""Spectra against g: the lowest levels of one configuration for equal masses and for m_up/m_down = 40/6 (or 6/40).
+"""Spectra against g: the lowest levels of one configuration for equal masses and for one unequal mass ratio.
 
-Levels are joined across g within each parity sector (the frame's ``parity`` label), in order of
-energy: levels of one sector do not cross unless another symmetry separates them; those of
-opposite parity may. A level whose error bar exceeds MAX_BAR is listed in the caption, not drawn.
+The unequal ratio is the one measured at the most g (the figures suite uses the demo mixture, a 53Cr-6Li
+pair with m_up/m_down = 8.8). Levels are joined across g within each parity sector (the frame's ``parity``
+label), in order of energy: levels of one sector do not cross unless another symmetry separates them; those
+of opposite parity may. A level whose error bar exceeds MAX_BAR is listed in the caption, not drawn. The
+g = +inf levels are drawn at the right edge where they are known exactly (``infinite_coupling_levels``:
+fermionization for equal masses, the hard-wall wedges for 2+1 / 1+2 with any masses).
 """
 
 from __future__ import annotations
@@ -13,14 +16,13 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from . import (ENERGY_LABEL, G_LABEL, FigureOutcome, backends_text, best_tasks, is_missing, levels_of, mass_ratio,
-               missing, new_figure, ratio_text, requested)
+from . import (ENERGY_LABEL, G_LABEL, FigureOutcome, backends_text, best_tasks, infinite_coupling_levels, is_missing,
+               levels_of, mass_ratio, missing, new_figure, ratio_text, requested)
 
-KEY, TITLE = "spectra", "Spectra against g: equal masses and mass ratio 40/6"
+KEY, TITLE = "spectra", "Spectra against g: equal masses and an unequal mass ratio"
 MIN_STATES = 6
 MIN_POINTS = 3
 MAX_BAR = 0.5  # hbar omega
-IMBALANCED = (40 / 6, 6 / 40)
 STYLES = {1: ("tab:blue", "-", "o", "even parity"), -1: ("tab:red", "--", "s", "odd parity"),
           0: ("0.2", "-", "o", "parity not reported")}
 
@@ -30,6 +32,7 @@ class Panel:
     ratio: float
     points_per_g: int
     lines: dict = field(default_factory=dict)  # (parity, k-th level of that sector) -> [(g, E, bar)]
+    infinite: list = field(default_factory=list)  # levels at g = +inf where known exactly
 
 
 @dataclass
@@ -55,7 +58,11 @@ def select(frame: pd.DataFrame) -> Spectra | None:
     candidates = []
     for (n_up, n_down), group in best.groupby(["n_up", "n_down"]):
         equal = group[np.isclose(group["ratio"], 1.0)]
-        imbalanced = group[np.isclose(group["ratio"], IMBALANCED[0]) | np.isclose(group["ratio"], IMBALANCED[1])]
+        unequal = group[~np.isclose(group["ratio"], 1.0)]
+        if unequal.empty:
+            continue
+        counts = unequal.groupby("ratio")["g"].nunique()
+        imbalanced = unequal[unequal["ratio"] == counts.idxmax()]
         if equal["g"].nunique() >= MIN_POINTS and imbalanced["g"].nunique() >= MIN_POINTS:
             candidates.append((min(equal["g"].nunique(), imbalanced["g"].nunique()), int(n_up), int(n_down), equal,
                                imbalanced))
@@ -64,7 +71,10 @@ def select(frame: pd.DataFrame) -> Spectra | None:
     _, n_up, n_down, equal, imbalanced = max(candidates, key=lambda c: (c[0], c[1] + c[2]))
     panels, table_rows, used, hidden, max_bar = [], [], [], [], 0.0
     for group in (equal, imbalanced):
-        panel = Panel(float(group["ratio"].iloc[0]), group["g"].nunique())
+        first = group.iloc[0]
+        panel = Panel(float(group["ratio"].iloc[0]), group["g"].nunique(),
+                      infinite=infinite_coupling_levels(int(n_up), int(n_down), float(first["mass_up"]),
+                                                        float(first["mass_down"]), int(requested(first).get("states", 1))))
         for task in group.sort_values("g").itertuples():
             rows = levels_of(frame, task.task_key)
             used.append(rows)
@@ -104,6 +114,10 @@ def draw(data: Spectra):
                         ms=3, lw=1.1, capsize=2, color=color, label=None if parity in labelled else label)
             labelled.add(parity)
         ax.axhline(n * n / 2, color="0.4", ls=":", lw=1, label=f"$N^2/2$ = {n * n / 2:g}")
+        if panel.infinite:  # the exact g = +inf levels, as ticks beyond the largest g drawn
+            right = max(g for points in panel.lines.values() for g, _, _ in points) if panel.lines else 1.0
+            ax.plot([right * 1.04 + 0.3] * len(panel.infinite), panel.infinite, ls="none", marker="_", ms=14, mew=2,
+                    color="tab:green", label=r"exact levels at $g = +\infty$")
         ax.set_xlabel(G_LABEL)
         ax.set_title(f"{data.n_up}+{data.n_down}, " + ("equal masses" if math.isclose(panel.ratio, 1.0) else
                                                        f"$m_\\uparrow/m_\\downarrow$ = {ratio_text(panel.ratio)}"))
@@ -121,7 +135,10 @@ def caption(data: Spectra) -> str:
             " sector in order of energy. Horizontal lines are levels that do not depend on g (for equal masses the"
             " spatially antisymmetric states, whose wave function vanishes at every contact). The dotted line is"
             f" N^2/2 = {n * n / 2:g}, where the C(N, N_up)-fold fermionized manifold of equal masses converges as"
-            " g -> infinity; with unequal masses that manifold is split into groups with different limits. Error bars:"
+            " g -> infinity; with unequal masses that manifold is split into groups with different limits. Green ticks at"
+            " the right edge: the exact levels at g = +inf where known (fermionized towers for equal masses, hard-wall"
+            " wedges of the Jacobi plane for 2+1 with any masses), the upper bounds of the levels at every finite g > 0."
+            " Error bars:"
             f" the backend's own (largest among the drawn points: {data.max_bar:.2g} hbar omega). Computed with "
             + backends_text(data.used) + "."
             + (f" Not drawn, error bar above {MAX_BAR:g} hbar omega: " + "; ".join(data.hidden) + "." if data.hidden
@@ -144,5 +161,5 @@ def build(frame: pd.DataFrame) -> FigureOutcome:
     data = select(frame)
     if data is None:
         return missing(KEY, TITLE, f"at least {MIN_STATES} levels at {MIN_POINTS} or more g, for equal masses and for"
-                       " 40/6, same particle numbers")
+                       " one unequal mass ratio, same particle numbers")
     return FigureOutcome(KEY, TITLE, caption(data), draw(data), table(data))
