@@ -20,7 +20,9 @@ spaces are nested, so each level decreases monotonically to its limit (min-max p
 differences d_prev, d_last of the last three rungs, convergence at a ratio r = d_last/d_prev <= 1/2
 leaves at most d_last r/(1 - r) <= d_last below the finest value: the bar is d_last; slower
 convergence gets 2 d_last / (1 - r) (r < 1) or 10 max(d) with a warning. A floor of 1e-12 max(1, |E|)
-covers rounding (measured scatter ~1e-13). Scalars are Hellmann-Feynman derivatives of the same Ritz
+covers rounding (measured scatter ~1e-13). The step is even: odd and even degrees converge at
+different rates, and a step-1 ladder's bar missed 8 % of the levels of a coverage study where the even
+steps missed none (bench_three_body_results.md). Scalars are Hellmann-Feynman derivatives of the same Ritz
 values (dE/dg = <sum delta>, dE/d(omega^2) ~ <rho^2>), with bars by the same rule.
 
 Scalars (result.SCALAR_NAMES; state k > 0 with suffix @k): ``delta`` = <sum_ij delta(x_i - x_j)> =
@@ -70,12 +72,7 @@ def ladder_error(values: np.ndarray) -> tuple[float, bool]:
     """Error bar of the last entry of a p-ladder (coarse -> fine) and whether convergence was geometric."""
     values = np.asarray(values, dtype=float)
     floor = ROUNDING_FLOOR * max(1.0, abs(values[-1]))
-    if values.size < 2:
-        return math.inf, False
-    last = abs(values[-1] - values[-2])
-    if values.size < 3:
-        return max(last, floor), False
-    previous = abs(values[-2] - values[-3])
+    last, previous = abs(values[-1] - values[-2]), abs(values[-2] - values[-3])
     if last <= floor or last <= 0.5 * previous:
         return max(last, floor), True
     ratio = last / previous
@@ -108,8 +105,15 @@ class ThreeBodyBackend(Backend):
     check_params = {"order": 10}  # ladder 6, 8, 10: ~1e-10 on the check suite's problems, a few times cheaper
     parameters = (
         Parameter("order", int, 14, "polynomial degree of the finest rung, in rho and in phi", minimum=4),
-        Parameter("ladder", int, 3, "rungs of the p-ladder (>= 3 for a geometric-convergence check)", minimum=2),
-        Parameter("step", int, 2, "degree increment between rungs", minimum=1),
+        Parameter("ladder", int, 3, "rungs of the p-ladder (3 are needed to check geometric convergence)", minimum=3),
+        Parameter(
+            "step",
+            int,
+            2,
+            "degree increment between rungs; even, since odd and even degrees converge at different rates"
+            " (with step 1 the bar missed 8% of levels, with 2 or 4 none; bench_three_body_results.md)",
+            choices=(2, 4),
+        ),
         Parameter(
             "radius",
             float,
@@ -158,6 +162,7 @@ class ThreeBodyBackend(Backend):
         orders = [params["order"] - k * params["step"] for k in range(params["ladder"] - 1, -1, -1)]
         levels: list[RelativeLevel] = []
         dimensions = []
+        ladders = {}
         for parity in RELATIVE_PARITIES:
             runs = []
             for order in orders:
@@ -175,6 +180,7 @@ class ThreeBodyBackend(Backend):
                 runs.append(run)
             dimensions.append(runs[-1].dimension)
             energies = np.array([run.energies for run in runs])
+            ladders[f"relative_parity_{parity:+d}"] = energies.T.tolist()  # per level, coarse -> fine
             if np.any(np.diff(energies, axis=0) > 1e-9 * np.maximum(1.0, np.abs(energies[1:]))):
                 raise SolverError(
                     f"{self.name}: a level rose with the polynomial order (min-max principle violated);"
@@ -207,6 +213,7 @@ class ThreeBodyBackend(Backend):
             "radial_elements": len(radial) - 1,
             "angular_elements": len(angular) - 1,
             "dimension_per_sector": dimensions,
+            "ladder_relative_energies": ladders,
         }
         return levels, info
 

@@ -255,7 +255,7 @@ def test_parity_sectors_and_centre_of_mass_tower(backend):
 def test_error_bars_cover_a_finer_solution(backend):
     # a coarse ladder's bars must cover the change to a much finer discretization (honesty of the bars)
     problem = Problem.create(2, 1, -3.0, mass_up=HEAVY, states=3, parity="even")
-    coarse = backend.solve(problem, order=8, ladder=3, step=1)
+    coarse = backend.solve(problem, order=8)
     fine = backend.solve(problem, order=16, radius=12.0)
     for e, bar, exact in zip(coarse.energies, coarse.energy_errors, fine.energies):
         assert abs(e - exact) <= bar

@@ -4,6 +4,7 @@ Run by hand (not part of the test suite; writes Markdown to stdout):
 
     python bench/benchmarks/bench_three_body.py                 # both tables
     python bench/benchmarks/bench_three_body.py --only values   # the values table only
+    python bench/benchmarks/bench_three_body.py --only coverage # the ladder rule at coarse settings
 
 Convergence table: 2+1 with mass ratio m_up/m_down in {0.1, 0.15, 1, 2, 20/3, 10} and g in
 {-5, -3, 2, 20, 100}; the lowest three levels (parity "any") at order p = 6 ... 16 (each a
@@ -13,6 +14,9 @@ Convergence table: 2+1 with mass ratio m_up/m_down in {0.1, 0.15, 1, 2, 20/3, 10
 Values table: mass ratios 0.15, 1, 2, 20/3 and g in {-3, -1, 0.5, 2, 5, 20} at the default
 parameters: E0, E1, E2 with error bars, CPU s, peak memory, and the distance to a finer run (order 20,
 radius + 2), with a coverage flag |E - E_fine| <= error bar.
+
+Coverage table: the error-bar rule (``three_body.ladder_error``) applied to coarse ladders (step 1,
+2, 4), each relative level against order 16, on the convergence grid of masses and g = -5, -1, 2, 20, 100.
 
 The finer run is the same method; its distance is a lower bound on the true error unless the
 method's limit is exact. Each case runs in a fresh child process so that VmHWM is its own peak.
@@ -33,6 +37,8 @@ CONVERGENCE_ORDERS = (6, 8, 10, 12, 14, 16)
 VALUE_MASSES = (0.15, 1.0, 2.0, 20 / 3)
 VALUE_COUPLINGS = (-3.0, -1.0, 0.5, 2.0, 5.0, 20.0)
 FINE = {"order": 20}
+COVERAGE_COUPLINGS = (-5.0, -1.0, 2.0, 20.0, 100.0)
+COVERAGE_LADDERS = {1: (5, 6, 7, 8), 2: (6, 7, 8, 9, 10, 11), 4: (12, 13)}  # step: finest orders
 
 
 def peak_memory_bytes() -> int:
@@ -134,14 +140,48 @@ def values_table() -> None:
     print()
 
 
+def coverage_table() -> None:
+    from trapbench.backends.three_body import ThreeBodyBackend, ladder_error
+    from trapbench.problems.spec import Problem
+
+    backend = ThreeBodyBackend()
+    backend.parameters = tuple(  # step 1 is refused by the backend; lift the restriction to measure why
+        p if p.name != "step" else type(p)(p.name, p.kind, p.default, p.doc) for p in backend.parameters
+    )
+    print("## Coverage of the ladder rule at coarse settings (per relative level, against order 16)\n")
+    print("| step | finest orders | level-ladders | covered at 1 bar | at 2 bars | smallest bar / error |")
+    print("|---|---|---|---|---|---|")
+    for step, orders in COVERAGE_LADDERS.items():
+        ratios = []
+        for mass in CONVERGENCE_MASSES:
+            for g in COVERAGE_COUPLINGS:
+                problem = Problem.create(2, 1, g, mass_up=mass, mass_down=1.0, states=3)
+                reference = backend.solve(problem, order=16).diagnostics["ladder_relative_energies"]
+                for order in orders:
+                    ladders = backend.solve(problem, order=order, step=step).diagnostics["ladder_relative_energies"]
+                    for sector, levels in ladders.items():
+                        for ladder, fine in zip(levels, reference[sector]):
+                            error = abs(ladder[-1] - fine[-1])
+                            ratios.append(ladder_error(ladder)[0] / max(error, 1e-300))
+        within_one, within_two = (100 * sum(r >= 1 / k for r in ratios) / len(ratios) for k in (1, 2))
+        print(
+            f"| {step} | {', '.join(map(str, orders))} | {len(ratios)} | {within_one:.1f} % | {within_two:.1f} % |"
+            f" {min(ratios):.3g} |",
+            flush=True,
+        )
+    print()
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--only", choices=("convergence", "values"))
+    parser.add_argument("--only", choices=("convergence", "values", "coverage"))
     args = parser.parse_args()
     if args.only in (None, "values"):
         values_table()
     if args.only in (None, "convergence"):
         convergence_table()
+    if args.only in (None, "coverage"):
+        coverage_table()
 
 
 if __name__ == "__main__":
