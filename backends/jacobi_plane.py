@@ -27,10 +27,10 @@ Weak form (Galerkin; the contact condition is natural, no cusp fitting):
 with a tensor product of hierarchical (integrated-Legendre, Babuska-Szabo) C0 spectral elements in
 rho on [0, R] (psi = 0 at rho = 0 since the node line passes through the origin, and at rho = R)
 and in phi with an element boundary on the ray, so the derivative jump across it is exact and
-convergence in the polynomial order p is exponential (hp-FEM: Schwab, "p- and hp-Finite Element
-Methods", Oxford 1998). Near the origin the solution has rho^k log(rho) terms (Frobenius expansion about the point where
-the rays meet, derived here):
-radial elements are graded geometrically toward rho = 0 (ratio ~0.2, the hp-FEM choice).
+convergence in the polynomial order p is exponential (hp-FEM: C. Schwab, "p- and hp-Finite Element
+Methods", Oxford 1998 [reference from memory]). Near the origin, where the rays meet, the solution has
+rho^k log(rho) terms (Frobenius expansion, derived here): radial elements are graded geometrically
+toward rho = 0 (ratio 0.2, the usual hp-FEM choice; measured insensitive to 2-8 layers).
 
 Solver. In the eigenbasis of the angular stiffness/mass pair (K_phi u = s^2 M_phi u) the problem is
 N_phi independent radial problems coupled only through the rank-one ray term c c^T (c = basis

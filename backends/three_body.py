@@ -7,7 +7,7 @@ lines of the odd particle with the pair; the pair's antisymmetry and the parity 
 plane with one contact ray (``jacobi_plane``, where the geometry is derived). That problem is solved
 by Galerkin spectral elements in polar coordinates (element boundary on the ray, so the contact
 condition enters exactly through the weak form and convergence in the polynomial order p is
-exponential; hp-FEM as in C. Schwab, "p- and hp-Finite Element Methods", Oxford 1998). Units:
+exponential; hp-FEM as in C. Schwab, "p- and hp-Finite Element Methods", Oxford 1998 [reference from memory]). Units:
 hbar = omega = 1 inside; a common omega rescales E(g, omega) = omega E(g / sqrt(omega), 1).
 
 The mesh adapts to g: radial elements graded geometrically toward rho = 0 below rho ~ 1/|lambda|

@@ -189,7 +189,7 @@ def test_equal_mass_strong_coupling_coefficient(backend):
 
 def busch_ground_level(lam: float) -> float:
     """Lowest even level e of -1/2 d^2/dy^2 + y^2/2 + lam delta(y): Gamma(3/4 - e/2)/Gamma(1/4 - e/2) = -lam/2
-    (T. Busch et al., Found. Phys. 28, 549 (1998)); mpmath root, 30 digits."""
+    (T. Busch et al., Found. Phys. 28, 549 (1998) [journal reference from memory]); mpmath root, 30 digits."""
     mpmath.mp.dps = 30
 
     def equation(e):
