@@ -50,6 +50,7 @@ import numpy as np
 from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import fock_ed
+from . import oscillator_scaling as scaling
 from ..problems import exact as ob
 from .base import Backend, Capabilities, Parameter, SolverError
 from .extrapolation import DriftingPowerLaw, PolynomialModel
@@ -58,6 +59,10 @@ from .result import Observable, Solution
 
 COM_TOLERANCE = 1e-3  # <N_com> within this of an integer labels the centre-of-mass excitation
 SCALAR_ERROR_FLOOR = 1e-8  # relative; see the ladder call in _compute
+# basis lengths are chosen at this cutoff: the bare optimum keeps shrinking with the cutoff (it fits the
+# cusp), and lengths found at 8 gave a monotonic renormalized ladder for the 20/3 trimer where those
+# found at 16 made the energy turn around
+LENGTH_SEARCH_CUTOFF = 8
 
 
 # ----------------------------------------------------------------------------- basis
@@ -73,6 +78,7 @@ class Truncation:
 class SectorBasis:
     basis: fock_ed.ProductBasis
     n_orbitals: tuple[int, int]
+    lengths: tuple[float, float]  # oscillator length of each species' orbitals (oscillator_scaling)
     max_degree: int | None = None  # largest a + b + c + d of a matrix element inside the basis
 
 
@@ -96,9 +102,17 @@ def _species_space(count: int, n_orbitals: int, omega: float, max_excitation: fl
     return fock_ed.FockSpace(n_orbitals, count, occ[order]), energy[order], parity[order]
 
 
-def sector_basis(problem: Problem, truncation: Truncation, parity: int) -> SectorBasis:
+def trap_lengths(problem: Problem) -> tuple[float, float]:
+    return problem.up.oscillator_length, problem.down.oscillator_length
+
+
+def sector_basis(
+    problem: Problem, truncation: Truncation, parity: int, lengths: tuple[float, float] | None = None
+) -> SectorBasis:
     """The truncated basis of total parity ``parity`` as rectangles of the padded coefficient matrix.
 
+    A configuration's truncation energy is sum_s omega_s (quanta_s + N_s/2) with the trap frequencies,
+    whatever the orbitals' ``lengths`` (default: the trap lengths): the cutoff counts quanta.
     Up configurations are grouped by (energy, parity); down configurations are sorted by parity,
     then energy, so each group's allowed partners are a contiguous prefix of one parity class.
     """
@@ -134,25 +148,34 @@ def sector_basis(problem: Problem, truncation: Truncation, parity: int) -> Secto
         quanta = int(math.floor(limit / min(problem.up.omega, problem.down.omega) + 1e-9))
         max_degree = 2 * (problem.up.count + problem.down.count - 2 + quanta)
     rect_array = np.array(rects, dtype=np.int64).reshape(-1, 4)
-    return SectorBasis(fock_ed.ProductBasis(up, down, rect_array), (m_u, m_d), max_degree)
+    lengths = trap_lengths(problem) if lengths is None else tuple(lengths)
+    return SectorBasis(fock_ed.ProductBasis(up, down, rect_array), (m_u, m_d), lengths, max_degree)
 
 
 def hamiltonian(problem: Problem, sector: SectorBasis, g: float) -> fock_ed.ProductHamiltonian:
-    """H = sum_s omega_s (n + 1/2) c+ c + g sum_q w_q rho_up(x_q) rho_down(x_q) on ``sector``."""
+    """H = sum_s sum_ab (h_s)_ab c+_a c_b + g sum_q w_q rho_up(x_q) rho_down(x_q) on ``sector``;
+    h_s = omega_s (n + 1/2) in the trap's orbitals, ``oscillator_scaling.one_body_matrix`` otherwise."""
     m_u, m_d = sector.n_orbitals
-    quad = ob.contact_quadrature(
-        m_u, problem.up.oscillator_length, m_d, problem.down.oscillator_length, sector.max_degree
-    )
+    (b_u, b_d) = sector.lengths
+    quad = ob.contact_quadrature(m_u, b_u, m_d, b_d, sector.max_degree)
     contact = fock_ed.ContactFactorization(
         quad.points, quad.weights, quad.values_up, quad.values_down, ob.orbital_parities(m_u), ob.orbital_parities(m_d)
     )
     return fock_ed.ProductHamiltonian(
-        sector.basis,
-        np.diag(ob.oscillator_energies(m_u, problem.up.omega)),
-        np.diag(ob.oscillator_energies(m_d, problem.down.omega)),
-        g,
-        contact,
+        sector.basis, one_body_matrix(problem.up, m_u, b_u), one_body_matrix(problem.down, m_d, b_d), g, contact
     )
+
+
+def one_body_matrix(species, n_orbitals: int, length: float) -> np.ndarray:
+    """h of one species in orbitals of ``length``: exactly diagonal when that is the trap length."""
+    if math.isclose(length, species.oscillator_length, rel_tol=1e-14):
+        return np.diag(ob.oscillator_energies(n_orbitals, species.omega))
+    return scaling.one_body_matrix(n_orbitals, species.mass, species.omega, length)
+
+
+def trap_potential_matrix(species, n_orbitals: int, length: float) -> np.ndarray:
+    """<a| m omega^2 x^2/2 |b> of one species in orbitals of ``length``."""
+    return scaling.trap_potential_matrix(n_orbitals, species.mass, species.omega, length)
 
 
 # ----------------------------------------------------------------------------- renormalization
@@ -166,25 +189,30 @@ def exact_pair_energy(g: float, reduced_mass: float, omega: float) -> float:
 
 
 @lru_cache(maxsize=64)
-def _pair_matrices(mass_up: float, mass_down: float, omega: float, kind: str, cutoff: int):
+def _pair_matrices(mass_up: float, mass_down: float, omega: float, kind: str, cutoff: int, lengths: tuple[float, float]):
     """Dense H0 and V = delta(x_up - x_down) of 1+1 in the even sector of the truncated basis.
 
     With one particle per species a configuration is one orbital, so V[(a, c), (b, d)] =
-    sum_q w_q u_a u_b v_c v_d is a single Gram product over the quadrature points.
+    sum_q w_q u_a u_b v_c v_d is a single Gram product over the quadrature points, and
+    H0[(a, c), (b, d)] = h_up[a, b] delta_cd + delta_ab h_down[c, d].
     """
     pair = Problem.create(1, 1, 0.0, mass_up=mass_up, mass_down=mass_down, omega_up=omega, omega_down=omega)
-    sector = sector_basis(pair, Truncation(kind, cutoff), +1)
+    sector = sector_basis(pair, Truncation(kind, cutoff), +1, lengths)
     m_u, m_d = sector.n_orbitals
-    quad = ob.contact_quadrature(m_u, pair.up.oscillator_length, m_d, pair.down.oscillator_length)
+    quad = ob.contact_quadrature(m_u, lengths[0], m_d, lengths[1])
     a = sector.basis.up.occupied[sector.basis.up_index, 0]
     c = sector.basis.down.occupied[sector.basis.down_index, 0]
     rows = quad.values_up[:, a] * quad.values_down[:, c]  # (points, basis)
     v = rows.T @ (quad.weights[:, None] * rows)
-    h0 = np.diag(omega * (a + c + 1.0))
+    h_up = one_body_matrix(pair.up, m_u, lengths[0])
+    h_down = one_body_matrix(pair.down, m_d, lengths[1])
+    h0 = h_up[np.ix_(a, a)] * (c[:, None] == c[None, :]) + h_down[np.ix_(c, c)] * (a[:, None] == a[None, :])
     return h0, 0.5 * (v + v.T)
 
 
-def effective_coupling(problem: Problem, truncation: Truncation, g: float) -> tuple[float, float]:
+def effective_coupling(
+    problem: Problem, truncation: Truncation, g: float, lengths: tuple[float, float] | None = None
+) -> tuple[float, float]:
     """g_eff with E_trunc(1+1; g_eff) = E_exact(1+1; g), and dg_eff/dg.
 
     Safeguarded Newton iteration with dE_trunc/dg_eff = <V> (Hellmann-Feynman) inside the bracket
@@ -196,7 +224,8 @@ def effective_coupling(problem: Problem, truncation: Truncation, g: float) -> tu
     from scipy.linalg import eigh
 
     omega, mu = problem.up.omega, problem.reduced_mass()
-    h0, v = _pair_matrices(problem.up.mass, problem.down.mass, omega, truncation.kind, truncation.cutoff)
+    lengths = trap_lengths(problem) if lengths is None else tuple(lengths)
+    h0, v = _pair_matrices(problem.up.mass, problem.down.mass, omega, truncation.kind, truncation.cutoff, lengths)
     target = exact_pair_energy(g, mu, omega)
 
     def evaluate(x: float) -> tuple[float, float]:
@@ -245,7 +274,9 @@ class Level:
     sector: SectorBasis
 
 
-def solve_cutoff(problem: Problem, truncation: Truncation, g_used: float, k: int, parities, tol: float):
+def solve_cutoff(
+    problem: Problem, truncation: Truncation, g_used: float, k: int, parities, tol: float, lengths=None
+):
     """The k lowest levels in each requested parity sector, merged and sorted.
 
     (Seeding Lanczos with the previous cutoff's eigenvector was tried: no fewer matvecs for k >= 3.)
@@ -253,7 +284,7 @@ def solve_cutoff(problem: Problem, truncation: Truncation, g_used: float, k: int
     levels = []
     diagnostics = {"dimension": {}, "matvecs": {}}
     for parity in parities:
-        sector = sector_basis(problem, truncation, parity)
+        sector = sector_basis(problem, truncation, parity, lengths)
         if sector.basis.dim == 0:
             continue
         ham = hamiltonian(problem, sector, g_used)
@@ -266,10 +297,13 @@ def solve_cutoff(problem: Problem, truncation: Truncation, g_used: float, k: int
 
 
 def com_quanta(problem: Problem, level: Level) -> float | None:
-    """<N_com> = || b_com psi ||^2 with b_com = sum_s sqrt(m_s/M) sum_n sqrt(n) c+_{s,n-1} c_{s,n}.
+    """<N_com> = || b_com psi ||^2 with b_com = sum_s sqrt(m_s/M) sum_ab (a_t,s)_ab c+_{s,a} c_{s,b}.
 
     With a common trap frequency the centre of mass separates (any masses) and every eigenstate of a
-    non-degenerate level has an integer <N_com>. Lowering stays inside both truncations.
+    non-degenerate level has an integer <N_com>. In the trap's orbitals a_t lowers (sqrt(n) below the
+    diagonal) and stays inside both truncations; in scaled orbitals it also raises
+    (``oscillator_scaling.trap_lowering_matrix``) and the part leaving the basis is lost, so <N_com> is
+    then only near an integer as the basis converges (the label needs COM_TOLERANCE).
     """
     if not problem.equal_frequencies:
         return None
@@ -277,15 +311,46 @@ def com_quanta(problem: Problem, level: Level) -> float | None:
     total = problem.up.mass * problem.up.count + problem.down.mass * problem.down.count
     m_u, m_d = level.sector.n_orbitals
     lower = []
-    for space, m, mass in ((basis.up, m_u, problem.up.mass), (basis.down, m_d, problem.down.mass)):
-        a = np.zeros((m, m))
-        n = np.arange(1, m)
-        a[n - 1, n] = np.sqrt(n)
-        lower.append(math.sqrt(mass / total) * space.one_body(a))
+    for space, m, species, length in zip((basis.up, basis.down), (m_u, m_d), problem.species, level.sector.lengths):
+        a = scaling.trap_lowering_matrix(m, species.oscillator_length, length)
+        lower.append(math.sqrt(species.mass / total) * space.one_body(a))
     psi = basis.to_matrix(level.vector)
-    # the lowered state in the full product space (no truncation needed: lowering removes energy)
+    # the lowered state in the padded product space (all of it inside the basis in the trap's orbitals)
     lowered = lower[0] @ psi + (lower[1] @ psi.T).T
     return float(np.sum(lowered**2))
+
+
+def heavy_light_trimer_possible(problem: Problem) -> bool:
+    """g < 0 and a species of at least two fermions is heavier than the other (occupied) species."""
+    up, down = problem.up, problem.down
+    heavy_pair = (up.count >= 2 and down.count >= 1 and up.mass > down.mass) or (
+        down.count >= 2 and up.count >= 1 and down.mass > up.mass
+    )
+    return problem.coupling < 0 and heavy_pair
+
+
+def basis_lengths(problem: Problem, choice: str, kind: str, cutoff: int, parities) -> tuple[tuple[float, float], dict]:
+    """The orbitals' length per species: the trap lengths, or those minimizing the bare ground energy
+    at ``cutoff`` (``oscillator_scaling.choose_lengths``).
+
+    ``auto`` optimizes only where a trimer of two heavy fermions and a light particle can bind (g < 0,
+    a species of >= 2 fermions heavier than its partner; in 1D such a trimer exists for any mass ratio
+    above 1 -- Kartavtsev et al., JETP 108, 365 (2009), from memory): its size is set by the light
+    particle's binding, far below the light trap length (2+1, mass ratio 20/3, g = -3: the trap
+    orbitals extrapolated to -2.47 for -4.097). Where no trimer forms the scaled orbitals were measured
+    worse than the trap's (1+2 at 20/3, g = -3: 3.3e-3 against 4.2e-4 off): they miss the unbound
+    particle and the centre-of-mass excitations, which the trap orbitals hold exactly.
+    """
+    if choice == "trap" or (choice == "auto" and not heavy_light_trimer_possible(problem)):
+        return trap_lengths(problem), {}
+    truncation = Truncation(kind, cutoff)
+
+    def lowest(lengths):
+        levels, _ = solve_cutoff(problem, truncation, problem.coupling, 1, parities, 1e-10, lengths)
+        return levels[0].energy
+
+    lengths, record = scaling.choose_lengths(trap_lengths(problem), lowest)
+    return (float(lengths[0]), float(lengths[1])), {"cutoff": cutoff, **record}
 
 
 # ----------------------------------------------------------------------------- extrapolation
@@ -354,6 +419,14 @@ class OscillatorEDBackend(Backend):
             allow_none=True,
         ),
         Parameter("renormalized", bool, True, "replace g by g_eff(cutoff) fixed by the exact 1+1 energy"),
+        Parameter(
+            "basis_lengths",
+            str,
+            "auto",
+            "orbital length per species: 'trap' (each species' trap length), 'optimize' (lowest bare energy at"
+            " the ladder's first cutoff, for bound pairs) or 'auto' (optimize when g < 0)",
+            choices=("auto", "trap", "optimize"),
+        ),
         Parameter("ladder", int, 4, "number of cutoffs solved (>= 3 extrapolates, 2 gives a difference)", minimum=1),
         Parameter("ladder_step", int, 4, "spacing between successive cutoffs of the ladder", minimum=1),
         Parameter(
@@ -409,10 +482,13 @@ class OscillatorEDBackend(Backend):
         k = wanted + params["extra_states"]
         parities = {"any": (+1, -1), "even": (+1,), "odd": (-1,)}[problem.targets.parity]
 
+        search_cutoff = min(cutoffs[0], LENGTH_SEARCH_CUTOFF)
+        lengths, length_search = basis_lengths(problem, params["basis_lengths"], kind, search_cutoff, parities)
+
         def solve_rung(c: int, final: bool) -> Rung:
             trunc = Truncation(kind, c)
-            g_used, slope = effective_coupling(problem, trunc, g) if renormalized else (g, 1.0)
-            levels, diag = solve_cutoff(problem, trunc, g_used, k, parities, params["tolerance"])
+            g_used, slope = effective_coupling(problem, trunc, g, lengths) if renormalized else (g, 1.0)
+            levels, diag = solve_cutoff(problem, trunc, g_used, k, parities, params["tolerance"], lengths)
             diag["g_used"] = g_used
             # degeneracy: size of the cluster (spacings < tolerance) among every level of this cutoff
             clusters = fock_ed.degeneracies([lv.energy for lv in levels], params["degeneracy_tolerance"])
@@ -479,6 +555,8 @@ class OscillatorEDBackend(Backend):
             "dimensions": [rung.diagnostics["dimension"] for rung in ladder.rungs],
             "matvecs": [rung.diagnostics["matvecs"] for rung in ladder.rungs],
             "n_orbitals": list(chosen[0].sector.n_orbitals),
+            "basis_lengths": list(lengths),
+            "basis_length_search": length_search,
             "virial_residual": virial[0],
             "virial_residuals": virial,
         }
@@ -509,8 +587,9 @@ class OscillatorEDBackend(Backend):
             vector @ hamiltonian(problem, level.sector, 1.0).matvec(vector)
             - vector @ hamiltonian(problem, level.sector, 0.0).matvec(vector)
         )
-        trap = fock_ed.one_body_expectation(rho_u, ob.trap_matrix(m_u, problem.up.omega)) + fock_ed.one_body_expectation(
-            rho_d, ob.trap_matrix(m_d, problem.down.omega)
+        b_u, b_d = level.sector.lengths
+        trap = fock_ed.one_body_expectation(rho_u, trap_potential_matrix(problem.up, m_u, b_u)) + fock_ed.one_body_expectation(
+            rho_d, trap_potential_matrix(problem.down, m_d, b_d)
         )
         return trap, delta_trunc * slope
 
@@ -541,7 +620,7 @@ class OscillatorEDBackend(Backend):
         x_max, p_max = problem.extent()
         x = np.linspace(-x_max, x_max, problem.targets.grid_points)
         p = np.linspace(-p_max, p_max, problem.targets.grid_points)
-        b_u, b_d = problem.up.oscillator_length, problem.down.oscillator_length
+        b_u, b_d = level.sector.lengths
         phi_u, phi_d = ob.position_orbitals(m_u, x, b_u), ob.position_orbitals(m_d, x, b_d)
         mom_u, mom_d = ob.momentum_orbitals(m_u, p, b_u), ob.momentum_orbitals(m_d, p, b_d)
         length, momentum = "1/length", "1/momentum"
@@ -575,15 +654,15 @@ class OscillatorEDBackend(Backend):
                 fock_ed.noise_on_grid(gamma, rho_u, rho_d, mom_u, mom_d), {"p_up": p, "p_down": p}, "1/momentum^2",
                 "integral = 0",
             )
-            scalars["noise_integral"] = self.noise_integral(problem, gamma, rho_u, rho_d, (m_u, m_d))
+            scalars["noise_integral"] = self.noise_integral(gamma, rho_u, rho_d, (m_u, m_d), level.sector.lengths)
         return observables, scalars, virial
 
     @staticmethod
-    def noise_integral(problem: Problem, gamma, rho_u, rho_d, n_orbitals) -> float:
+    def noise_integral(gamma, rho_u, rho_d, n_orbitals, lengths) -> float:
         """integral dp1 dp2 C(p1, p2)^2, exact by Gauss-Hermite in each momentum (C^2 in p_s is a
         polynomial of degree <= 4(M_s - 1) times exp(-2 b_s^2 p^2))."""
         m_u, m_d = n_orbitals
-        b_u, b_d = problem.up.oscillator_length, problem.down.oscillator_length
+        b_u, b_d = lengths
         p_u, w_u = ob.gauss_hermite_grid(2 * m_u, 1 / (math.sqrt(2) * b_u))
         p_d, w_d = ob.gauss_hermite_grid(2 * m_d, 1 / (math.sqrt(2) * b_d))
         return fock_ed.noise_integral(
