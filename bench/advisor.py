@@ -23,7 +23,9 @@ usually degrades as |g| grows) or within |g - g_measured| <= 0.5 + 0.25 |g| (con
 weaker one (low); ``neighbouring masses``:
 a mass ratio within the factor (low). Among the backend's qualifying runs the nearest neighbour wins
 (same masses, then at least as strong a coupling, then the smaller mass-ratio and g distances), and
-of its runs the cheapest. Its parameters, CPU time and peak memory are what the advice quotes.
+of its runs the cheapest. Its parameters, CPU time and peak memory are what the advice quotes. A run
+qualifies only when its own error bar is within the accuracy too: a run that met the reference by a lucky
+crossing of a non-monotone convergence, with a wide bar of its own, is not a recipe for a neighbouring problem.
 
 A backend whose error bars are flagged by ``verdicts.error_bar_calibration`` on that class (|E - ref|
 within 2 error bars in fewer than 95 % of the reference-checked results among its neighbouring
@@ -144,8 +146,8 @@ class Advice:
     def solve_command(self, recommendation: Recommendation) -> str:
         q = self.query
         params = "".join(f" --param {k}={v}" for k, v in param_arguments(recommendation.param_values).items())
-        return (f"trapbench solve --up {q.n_up} --down {q.n_down} --mass-up {q.mass_up:.12g} --mass-down"
-                f" {q.mass_down:.12g} --g {q.g:.12g} --backend {recommendation.backend}{params}")
+        return (f"trapbench solve --up {q.n_up} --down {q.n_down} --mass-up {q.mass_up!r} --mass-down"
+                f" {q.mass_down!r} --g {q.g!r} --backend {recommendation.backend}{params}")
 
     def explain(self) -> str:
         from .tables import to_markdown
@@ -153,10 +155,10 @@ class Advice:
         q = self.query
         head = (f"{q.n_up}+{q.n_down} fermions, masses {q.mass_up:g}/{q.mass_down:g}, g = {q.g:g} ({g_regime(q.g)}),"
                 f" relative accuracy {q.accuracy:g}")
-        lines = [head, ""]
+        lines = [head, f"Neighbouring problems: {NEIGHBOUR_RULE}.", ""]
         if self.best is None:
-            lines += ["No evidence: no stored measurement on a neighbouring problem (" + NEIGHBOUR_RULE + ") reaches"
-                      " this accuracy for a backend that supports the problem and whose error bars hold there.",
+            lines += ["No evidence: no stored measurement on a neighbouring problem reaches this accuracy for a backend"
+                      " that supports the problem and whose error bars hold there.",
                       "This sweep would produce it (then ask again with the same --store):", "",
                       "  " + evidence_command(q), ""]
         else:
@@ -234,13 +236,13 @@ def _calibration_flag(rows: pd.DataFrame) -> str | None:
 def _why_not(rows: pd.DataFrame, status: pd.Series, near: pd.Series, query: Query) -> str:
     """Why a backend has no recommendation: unverified, reached only on other problems, or best error above target."""
     reached = rows[status == REACHED]
-    if not reached.empty:
+    neighbours = rows[near.notna().to_numpy()]
+    if neighbours.empty and not reached.empty:
         same_counts = reached[(reached["n_up"] + reached["n_down"]) == query.n]
         where = "only at other masses or couplings" if not same_counts.empty else "only at other particle numbers"
-        return (f"reached {query.accuracy:g} {where}, none neighbouring ({NEIGHBOUR_RULE}): "
-                + ", ".join(sorted({f"{int(r.n_up)}+{int(r.n_down)} m_up/m_down = {r.mass_up / r.mass_down:.4g}, g = {r.g:g}"
+        return (f"reached {query.accuracy:g} {where}, none neighbouring: "
+                + "; ".join(sorted({f"{int(r.n_up)}+{int(r.n_down)} m_up/m_down = {r.mass_up / r.mass_down:.4g}, g = {r.g:g}"
                                     for r in reached.itertuples()})[:6]))
-    neighbours = rows[near.notna().to_numpy()]
     unverified = neighbours[status[neighbours.index] == UNVERIFIED]
     if not unverified.empty:
         own = pd.to_numeric(unverified["own_rel_error"], errors="coerce").min()
@@ -308,9 +310,13 @@ def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
             rejected[backend] = flag
             continue
         status = judge_frame(rows, query.accuracy)
-        good = neighbours[status[neighbours.index] == REACHED]
+        reached = neighbours[status[neighbours.index] == REACHED]
+        good = reached[pd.to_numeric(reached["own_rel_error"], errors="coerce") <= query.accuracy]
         if good.empty:
-            rejected[backend] = _why_not(rows, status, near, query)
+            rejected[backend] = _why_not(rows, status, near, query) if reached.empty else (
+                f"reached {query.accuracy:g} on neighbouring problems only in runs whose own error bar is wider (best"
+                f" {pd.to_numeric(reached['own_rel_error'], errors='coerce').min():.2g}): such a run does not know its"
+                " accuracy, so its parameters are not repeated")
             continue
         pick, evidence, confidence, reason = _pick(good, query)
         checked = error_bar_calibration(neighbours)["checked"].sum() if "error_bar" in neighbours else 0
