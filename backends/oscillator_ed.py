@@ -2,11 +2,15 @@
 
 Method (configuration interaction / "exact diagonalization", common practice for few fermions in
 a trap; e.g. Sowinski et al., Phys. Rev. A 88, 033607 (2013); Grining et al., New J. Phys. 17,
-115001 (2015)). Species s uses the orbitals of its own trap, phi_n(x; b_s), b_s = 1/sqrt(m_s omega_s),
-one-body energies omega_s (n + 1/2). The many-body basis is Slater determinants of each species:
+115001 (2015)). Species s uses oscillator orbitals phi_n(x; b_s): by default those of its own trap,
+b_s = 1/sqrt(m_s omega_s), one-body energies omega_s (n + 1/2); where a heavy-heavy-light trimer can
+bind (g < 0, a pair species heavier than its partner) narrower lengths chosen by minimizing the bare
+energy at a small cutoff (``basis_lengths``; ``oscillator_scaling``: the one-body term is then a
+pentadiagonal matrix, parity is still (-1)^n). The many-body basis is Slater determinants of each species:
 
 - ``truncation = "energy"``: all determinant pairs whose non-interacting energy is <= E_0 + cutoff
-  (cutoff in hbar omega_ref), the energy-restricted basis that converges far better per state;
+  (cutoff in hbar omega_ref; counted as sum_s omega_s x quanta_s whatever the orbitals' length), the
+  energy-restricted basis that converges far better per state;
 - ``truncation = "orbital"``: N_s fermions in the lowest ``cutoff`` orbitals of each species.
 
 Parity (x -> -x) is diagonal in this basis, (-1)^(sum of orbital indices), so each sector is a
@@ -482,6 +486,11 @@ class OscillatorEDBackend(Backend):
         k = wanted + params["extra_states"]
         parities = {"any": (+1, -1), "even": (+1,), "odd": (-1,)}[problem.targets.parity]
 
+        if params["basis_lengths"] == "trap" and heavy_light_trimer_possible(problem):
+            warnings.append(
+                "a heavy-heavy-light trimer may bind here and the trap orbitals describe it poorly;"
+                " basis_lengths = 'auto' chooses narrower orbitals"
+            )
         search_cutoff = min(cutoffs[0], LENGTH_SEARCH_CUTOFF)
         lengths, length_search = basis_lengths(problem, params["basis_lengths"], kind, search_cutoff, parities)
 
