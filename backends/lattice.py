@@ -45,7 +45,7 @@ import scipy.sparse as sp
 
 from ..problems.errors import SpecError
 from ..problems.spec import Problem, Species
-from .base import Parameter
+from .base import Parameter, Support
 from .extrapolation import PolynomialModel
 from .ladder import Rung, RungLevel, rank_keys, run_ladder
 from .result import Observable, Solution
@@ -351,6 +351,18 @@ def fit_to_budget(problem: Problem, half: float, fractions: Sequence[float], bud
         f" ({spacings[-1] / scale:.2f} ... {spacings[0] / scale:.2f} of the shortest length {scale:.3g})"
     )
     return spacings, note
+
+
+def ladder_support(make_ladder: Callable[[], SpacingLadder], budget: str, alternatives: str = "") -> Support:
+    """A backend's ``supports`` answer: yes when ``make_ladder`` finds a ladder within the budget
+    parameter ``budget``, else no with the reason (and ``alternatives``); other input errors propagate."""
+    try:
+        make_ladder()
+    except SpecError as error:
+        if error.field != f"param.{budget}":
+            raise
+        return Support.no(error.reason + (f"; {alternatives}" if alternatives else ""))
+    return Support.yes()
 
 
 @dataclass

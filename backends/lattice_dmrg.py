@@ -149,18 +149,12 @@ class LatticeDMRGBackend(Backend):
         observables=("density", "momentum", "obdm", "pair_position", "contact", "trap_energy"),
         error_bars=True,
     )
-    check_params = {"spacings": (0.6, 0.45, 0.3), "chi": (16, 32), "max_sweeps": 6}
+    check_params = {"spacings": (0.6, 0.45), "chi": (8, 16), "max_sweeps": 4}
 
     def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:
         """Yes when a useful spacing ladder fits ``max_sites`` (the default ladder is coarsened to fit)."""
         params = self.resolve_params(params or {})
-        try:
-            self.ladder(problem, params)
-        except SpecError as error:
-            if error.field != "param.max_sites":
-                raise
-            return Support.no(error.reason)
-        return Support.yes()
+        return lattice.ladder_support(lambda: self.ladder(problem, params), "max_sites")
 
     def ladder(self, problem: Problem, params: dict[str, Any]) -> lattice.SpacingLadder:
         budget = Budget("max_sites", params["max_sites"], float, "sites")

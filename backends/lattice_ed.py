@@ -23,7 +23,6 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
-from ..problems.errors import SpecError
 from ..problems.spec import Problem
 from . import fock_ed, lattice, lattice_observables
 from .base import Backend, Capabilities, Parameter, Support
@@ -192,13 +191,11 @@ class LatticeEDBackend(Backend):
     def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:
         """Yes when a useful spacing ladder fits ``max_dimension`` (the default ladder is coarsened to fit)."""
         params = self.resolve_params(params or {})
-        try:
-            self.ladder(problem, params)
-        except SpecError as error:
-            if error.field != "param.max_dimension":
-                raise
-            return Support.no(f"{error.reason}; lattice-dmrg or oscillator-ed scale better with the particle number")
-        return Support.yes()
+        return lattice.ladder_support(
+            lambda: self.ladder(problem, params),
+            "max_dimension",
+            "lattice-dmrg or oscillator-ed scale better with the particle number",
+        )
 
     def ladder(self, problem: Problem, params: dict[str, Any]) -> lattice.SpacingLadder:
         budget = dimension_budget(problem, params["max_dimension"])
