@@ -16,7 +16,8 @@ import pandas as pd
 
 from ...backends.provenance import library_version, source_revision
 from ...backends.provenance import machine as host_machine
-from ..tables import accuracy_vs_cost_table, attach_references, cost_vs_particle_number_table, failures_table
+from ..advisor import graded_frame
+from ..tables import accuracy_vs_cost_table, cost_vs_particle_number_table, failures_table
 from ..verdicts import COVERAGE_TARGET, REFERENCE_MARGIN
 from . import analysis
 from .analysis import MAP_TARGETS, SCALING_ACCURACY, SCALING_MAX_STATES, target_label
@@ -202,7 +203,8 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
         document.add(Paragraph("The store holds no results for this suite: run `trapbench report` without"
                                " `--from-store`, or `trapbench sweep` first."))
         return document
-    frame = attach_references(raw, tolerance=suite.tolerance if suite is not None else None)
+    # graded per backend: a method is never graded by a reference it produced (advisor.graded_frame)
+    frame = graded_frame(raw, tolerance=suite.tolerance if suite is not None else None)
     document.add(introduction(frame, store, command))
     method_map_section(document, frame)
     calibration_section(document, frame)
