@@ -24,8 +24,9 @@ weaker one (low); ``neighbouring masses``:
 a mass ratio within the factor (low). Among the backend's qualifying runs the nearest neighbour wins
 (same masses, then at least as strong a coupling, then the smaller mass-ratio and g distances), and
 of its runs the cheapest. Its parameters, CPU time and peak memory are what the advice quotes. A run
-qualifies only when its own error bar is within the accuracy too: a run that met the reference by a lucky
-crossing of a non-monotone convergence, with a wide bar of its own, is not a recipe for a neighbouring problem.
+qualifies only when every more converged run (smaller own error bar) of the same backend on the same problem
+reached the accuracy too (the ladder has settled there): a run that met the reference by a lucky crossing of a non-monotone convergence,
+which the next rung misses again, is not a recipe for a neighbouring problem.
 
 A backend whose error bars are flagged by ``verdicts.error_bar_calibration`` on that class (|E - ref|
 within 2 error bars in fewer than 95 % of the reference-checked results among its neighbouring
@@ -256,6 +257,20 @@ def _why_not(rows: pd.DataFrame, status: pd.Series, near: pd.Series, query: Quer
             else f"best stored relative error {best:.2g} on neighbouring problems misses {query.accuracy:g}")
 
 
+def _settled(rows: pd.DataFrame, reached: pd.Series) -> pd.Series:
+    """True for a run when it and every more converged run of the backend on the same problem reached the accuracy.
+
+    "More converged" is a smaller own error bar (runs without one rank last): CPU time would order the rungs too,
+    but timing noise reorders cheap runs.
+    """
+    problem = ["n_up", "n_down", "mass_up", "mass_down", "g"]
+    bar = pd.to_numeric(rows["own_rel_error"], errors="coerce").fillna(np.inf)
+    ordered = rows.assign(_reached=reached.astype(bool), _bar=bar).sort_values("_bar", kind="stable")
+    # running AND from the most converged run up: a run is settled when nothing more converged on its problem missed
+    settled = ordered.groupby(problem, sort=False)["_reached"].cummin()
+    return settled.reindex(rows.index).astype(bool)
+
+
 def _pick(good: pd.DataFrame, query: Query) -> tuple[pd.Series, str, str, str]:
     """The nearest qualifying neighbour (then the cheapest run there): (row, evidence, confidence, reason)."""
     good = good.assign(
@@ -311,12 +326,11 @@ def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
             continue
         status = judge_frame(rows, query.accuracy)
         reached = neighbours[status[neighbours.index] == REACHED]
-        good = reached[pd.to_numeric(reached["own_rel_error"], errors="coerce") <= query.accuracy]
+        good = reached[_settled(rows, status == REACHED)[reached.index]]
         if good.empty:
             rejected[backend] = _why_not(rows, status, near, query) if reached.empty else (
-                f"reached {query.accuracy:g} on neighbouring problems only in runs whose own error bar is wider (best"
-                f" {pd.to_numeric(reached['own_rel_error'], errors='coerce').min():.2g}): such a run does not know its"
-                " accuracy, so its parameters are not repeated")
+                f"reached {query.accuracy:g} on neighbouring problems only in runs that a more converged run of its own on"
+                " the same problem then missed: not converged there, so those parameters are not repeated")
             continue
         pick, evidence, confidence, reason = _pick(good, query)
         checked = error_bar_calibration(neighbours)["checked"].sum() if "error_bar" in neighbours else 0
