@@ -183,3 +183,36 @@ def test_a_run_that_met_the_reference_by_luck_is_not_a_recipe():
     assert ladder.best.param_values == {"cutoff": 32} and ladder.best.cpu_s == 22.0
     unsettled = advise(attach_references(runs("oscillator-ed", [lucky, between]), exact), query)
     assert unsettled.best is None and "not converged there" in unsettled.rejected["oscillator-ed"]
+
+
+def test_map_command_writes_a_table_that_advise_reads(tmp_path, capsys):
+    import textwrap
+
+    from trapbench.bench.cli import main
+    from trapbench.bench.suite import load_suite
+    from trapbench.bench.sweep import SweepOptions, run_sweep
+
+    suite_path = tmp_path / "tiny.toml"
+    suite_path.write_text(textwrap.dedent("""
+        name = "map"
+        [[problems]]
+        name = "1+1"
+        up = { count = 1 }
+        down = { count = 1 }
+        interaction = { g = [-2.0, 2.0] }
+        [[backends]]
+        name = "two-body"
+        ladder = [{ relative_points = 200 }, { relative_points = 800 }]
+        """))
+    store = tmp_path / "map.sqlite"
+    assert set(run_sweep(load_suite(suite_path), SweepOptions(store_path=store, progress=False)).statuses) == {"ok"}
+    output = tmp_path / "method_map.json"
+    assert main(["map", "--store", str(store), "--output", str(output)]) == 0
+    data = json.loads(output.read_text())
+    assert data["built_from"] == ["map.sqlite"] and "factor 1.5" in data["neighbour_rule"]
+    table = table_from_json(data)
+    assert len(table) == 4 and (table["ref_source"].str.contains("Busch")).all()  # exact 1+1 references graded them
+    advice = advise(table, Query(1, 1, g=-2.0, accuracy=1e-8))
+    assert advice.best.backend == "two-body" and advice.best.evidence == "measured"
+    assert main(["map", "--store", str(tmp_path / "absent.sqlite")]) == 2
+    assert "no store at" in capsys.readouterr().err
