@@ -32,6 +32,7 @@ physics checks on the smallest admitted problem and the smallest one with three 
 from __future__ import annotations
 
 import math
+import time
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
@@ -44,19 +45,21 @@ from ..backends.result import OBSERVABLE_NAMES, SCALAR_NAMES
 from ..problems.catalogue import entries as catalogue_entries
 from ..problems.spec import OBSERVABLES, Problem
 from .executor import UNSUPPORTED, execute
-from .validation import CHECKS, Runner, Skip, TaskFailed, Tolerance, Verdict, default_problems, run_check
+from .validation import CHECKS, Runner, Skip, TaskFailed, CheckTolerance, CheckVerdict, default_problems, run_check
 
 TIERS = ("quick", "thorough")
+QUICK_STATES = 3
+QUICK_BUDGET_S = 100.0  # default time budget of `trapbench validate --tier quick`
 
 
 @dataclass(frozen=True)
 class BackendCheck:
-    """One check (contract or physics) of one backend on one problem; ``run()`` gives its Verdict."""
+    """One check (contract or physics) of one backend on one problem; ``run()`` gives its CheckVerdict."""
 
     name: str
     kind: str  # "contract" or "physics"
     problem: Problem | None
-    run: Callable[[], Verdict]
+    run: Callable[[], CheckVerdict]
 
     @property
     def id(self) -> str:
@@ -75,8 +78,8 @@ def _capabilities(backend: Any) -> Capabilities:
     return declared
 
 
-def _verdict(name: str, problem: Problem | None, status: str, reason: str) -> Verdict:
-    return Verdict(name, "-" if problem is None else problem.describe(), status, reason)
+def _verdict(name: str, problem: Problem | None, status: str, reason: str) -> CheckVerdict:
+    return CheckVerdict(name, "-" if problem is None else problem.describe(), status, reason)
 
 
 class BrokenContract(Exception):
@@ -99,7 +102,7 @@ def _solve(backend: Any, problem: Problem, params: dict[str, Any]):
     return outcome.solved()
 
 
-def check_declaration(backend: Any, params: dict[str, Any]) -> Verdict:
+def check_declaration(backend: Any, params: dict[str, Any]) -> CheckVerdict:
     name = "declaration"
     missing = [field for field in ("name", "version", "summary") if not getattr(backend, field, "")]
     if not isinstance(getattr(backend, "capabilities", None), Capabilities):
@@ -132,7 +135,7 @@ def _outside_requests(problem: Problem, capabilities: Capabilities) -> list[tupl
     return requests
 
 
-def check_refusal(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+def check_refusal(backend: Any, params: dict[str, Any], problem: Problem) -> CheckVerdict:
     name = "refusal"
     requests = _outside_requests(problem, _capabilities(backend))
     if not requests:
@@ -151,7 +154,7 @@ def check_refusal(backend: Any, params: dict[str, Any], problem: Problem) -> Ver
     return _verdict(name, problem, "pass", f"refused {len(requests)} requests outside its capabilities with reasons")
 
 
-def check_state_count(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+def check_state_count(backend: Any, params: dict[str, Any], problem: Problem) -> CheckVerdict:
     name = "state-count"
     declared = getattr(backend, "capabilities", None)
     counts = (1,) if isinstance(declared, Capabilities) and not declared.excited_states else (1, 3)
@@ -165,7 +168,7 @@ def check_state_count(backend: Any, params: dict[str, Any], problem: Problem) ->
     return _verdict(name, problem, "pass", f"returned exactly {', '.join(map(str, counts))} ascending energies")
 
 
-def check_parity_sector(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+def check_parity_sector(backend: Any, params: dict[str, Any], problem: Problem) -> CheckVerdict:
     name = "parity-sector"
     if not _capabilities(backend).parity_sectors:
         raise Skip("the backend declares no parity sectors")
@@ -178,7 +181,7 @@ def check_parity_sector(backend: Any, params: dict[str, Any], problem: Problem) 
     return _verdict(name, problem, "pass", "even and odd sector requests return states of that parity only")
 
 
-def check_observables(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+def check_observables(backend: Any, params: dict[str, Any], problem: Problem) -> CheckVerdict:
     name = "observables"
     offered = list(_capabilities(backend).observables)
     if not offered:
@@ -201,7 +204,7 @@ def check_observables(backend: Any, params: dict[str, Any], problem: Problem) ->
     return _verdict(name, problem, "pass", f"{', '.join(offered)} returned under the shared names")
 
 
-def check_error_bars(backend: Any, params: dict[str, Any], problem: Problem) -> Verdict:
+def check_error_bars(backend: Any, params: dict[str, Any], problem: Problem) -> CheckVerdict:
     name = "error-bars"
     if not _capabilities(backend).error_bars:
         raise Skip("the backend declares no error bars")
@@ -214,7 +217,7 @@ def check_error_bars(backend: Any, params: dict[str, Any], problem: Problem) -> 
     return _verdict(name, problem, "pass", f"{len(errors)} finite error bars")
 
 
-CONTRACT_CHECKS: dict[str, Callable[..., Verdict]] = {
+CONTRACT_CHECKS: dict[str, Callable[..., CheckVerdict]] = {
     "refusal": check_refusal,
     "state-count": check_state_count,
     "parity-sector": check_parity_sector,
@@ -226,8 +229,8 @@ CONTRACT_CHECKS: dict[str, Callable[..., Verdict]] = {
 # ----------------------------------------------------------------------------- selection
 
 
-def _guarded(name: str, problem: Problem | None, body: Callable[[], Verdict]) -> Callable[[], Verdict]:
-    def run() -> Verdict:
+def _guarded(name: str, problem: Problem | None, body: Callable[[], CheckVerdict]) -> Callable[[], CheckVerdict]:
+    def run() -> CheckVerdict:
         try:
             return body()
         except Skip as exc:
@@ -260,17 +263,17 @@ def admitted_problems(backend: Any, params: dict[str, Any], problems: Iterable[P
 
 def quick_problems(admitted: Sequence[Problem]) -> list[Problem]:
     """The smallest admitted problem and the smallest with three or more particles (where interactions
-    between more than one pair first show)."""
+    between more than one pair first show), each asking for at most ``QUICK_STATES`` levels."""
     chosen = list(admitted[:1])
     chosen += [p for p in admitted if p.n_particles >= 3][:1]
-    return chosen
+    return [p.with_targets(states=min(p.targets.states, QUICK_STATES)) for p in chosen]
 
 
 def backend_checks(
     backend: Any,
     params: dict[str, Any] | None = None,
     tier: str = "quick",
-    tolerance: Tolerance = Tolerance(),
+    tolerance: CheckTolerance = CheckTolerance(),
     problems: Iterable[Problem] | None = None,
     only: Sequence[str] | None = None,
     catalogue_max_particles: int | None = None,
@@ -323,33 +326,49 @@ def backend_checks(
     return checks
 
 
-def run_checks(checks: Sequence[BackendCheck], progress: bool = False) -> list[Verdict]:
-    """Run ``checks`` in order (a progress bar on stderr with ``progress``); one Verdict each."""
+def run_checks(checks: Sequence[BackendCheck], progress: bool = False, budget_s: float | None = None) -> list[CheckVerdict]:
+    """Run ``checks`` in order (a progress bar on stderr with ``progress``); one CheckVerdict each.
+
+    With ``budget_s``, a check not yet started when that much wall time has passed is not run: its verdict
+    is a skip that says so (a check already running is never cut short).
+    """
+    start = time.monotonic()
+    iterator = checks
     if progress:
         from tqdm import tqdm
 
-        checks = tqdm(checks, desc="checks", unit="check", leave=False)
-    return [check.run() for check in checks]
+        iterator = tqdm(checks, desc="checks", unit="check", leave=False)
+    verdicts = []
+    for check in iterator:
+        if budget_s is not None and time.monotonic() - start > budget_s:
+            where = "-" if check.problem is None else check.problem.describe()
+            verdicts.append(CheckVerdict(check.name, where, "skip",
+                                    f"the time budget of {budget_s:g} s was spent; --tier thorough or --budget runs it"))
+            continue
+        verdicts.append(check.run())
+    return verdicts
 
 
 def validate(
     backend: Any,
     problems: Iterable[Problem] | None = None,
     params: dict[str, Any] | None = None,
-    tolerance: Tolerance = Tolerance(),
+    tolerance: CheckTolerance = CheckTolerance(),
     checks: Sequence[str] | None = None,
     catalogue_max_particles: int | None = None,
     tier: str = "quick",
     progress: bool = False,
-) -> list[Verdict]:
-    """The verdicts of ``backend_checks`` (what ``trapbench validate`` prints), then one "calibration" verdict
-    per particle number whose error bars met decisive references (``calibration_verdicts``)."""
+    budget_s: float | None = None,
+) -> list[CheckVerdict]:
+    """The verdicts of ``backend_checks`` (what ``trapbench validate`` prints; ``budget_s`` as in
+    ``run_checks``), then one "calibration" verdict per particle number whose error bars met decisive
+    references (``calibration_verdicts``)."""
     suite = backend_checks(backend, params, tier, tolerance, problems, checks, catalogue_max_particles)
-    verdicts = run_checks(suite, progress)
+    verdicts = run_checks(suite, progress, budget_s)
     return verdicts + calibration_verdicts(verdicts)
 
 
-def calibration_verdicts(verdicts: Sequence[Verdict]) -> list[Verdict]:
+def calibration_verdicts(verdicts: Sequence[CheckVerdict]) -> list[CheckVerdict]:
     """Error-bar calibration over the level comparisons of the "references" verdicts (``bench.verdicts``):
     per particle number, the share of levels with |E - ref| <= 2 error bars (fail below 95 %) and the
     median error bar / |E - ref|."""
@@ -366,7 +385,7 @@ def calibration_verdicts(verdicts: Sequence[Verdict]) -> list[Verdict]:
         if not row["checked"]:
             continue
         status = "fail" if row["flag"] else "pass"
-        found.append(Verdict(
+        found.append(CheckVerdict(
             "calibration", f"{row['backend']}, N = {row['N']}", status,
             f"{row['within 2 sigma']}/{row['checked']} levels within 2 error bars"
             f" ({100 * row['coverage at 2 sigma']:.0f} %, target >= 95 %); median bar/|E - ref| ="
@@ -392,7 +411,7 @@ def check_cases(backend: Any, params: dict[str, Any] | None = None, tier: str = 
     return cases
 
 
-def assert_check(check: BackendCheck) -> Verdict:
+def assert_check(check: BackendCheck) -> CheckVerdict:
     """Run one check inside a test: a skip skips, a failure fails with the check's reason."""
     import pytest
 

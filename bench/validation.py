@@ -59,12 +59,12 @@ from .executor import UNSUPPORTED, Limits, execute
 from .verdicts import reference_decides
 
 MAX_ANTISYMMETRIC_STATES = 40
-MIN_TOWER_STATES = 6
+MIN_TOWER_STATES = 4  # the fewest levels that give 1+1 a tested centre-of-mass partner
 DIFFERENCE_STEP = 0.02
 
 
 @dataclass(frozen=True)
-class Tolerance:
+class CheckTolerance:
     """How close is close enough (see the module docstring)."""
 
     absolute: float = 1e-6
@@ -76,7 +76,7 @@ class Tolerance:
 
 
 @dataclass(frozen=True)
-class Verdict:
+class CheckVerdict:
     """One check on one problem: status "pass", "fail", "skip" or "error", and why."""
 
     check: str
@@ -141,7 +141,7 @@ def _with_states(problem: Problem, states: int, parity: str | None = None) -> Pr
 
 
 def _compare_levels(
-    measured: Result, expected: Sequence[float], tolerance: Tolerance, extra_errors: Sequence[float] | None = None
+    measured: Result, expected: Sequence[float], tolerance: CheckTolerance, extra_errors: Sequence[float] | None = None
 ) -> tuple[float, float, int]:
     """Worst |E_i - expected_i| / allowed_i over the common levels: (deviation, allowed, index)."""
     worst = (0.0, tolerance.absolute, -1)
@@ -169,16 +169,16 @@ def _derivative(runner: Runner, problem: Problem, g: float, step: float) -> tupl
     return (4 * fine - coarse) / 3, max(errors) * 4 / step
 
 
-def _verdict(name: str, problem: Problem, deviation: float, allowed: float, what: str) -> Verdict:
+def _verdict(name: str, problem: Problem, deviation: float, allowed: float, what: str) -> CheckVerdict:
     status = "pass" if deviation <= allowed else "fail"
-    return Verdict(name, problem.describe(), status, f"{what}: |deviation| {deviation:.2e} vs allowed {allowed:.2e}",
+    return CheckVerdict(name, problem.describe(), status, f"{what}: |deviation| {deviation:.2e} vs allowed {allowed:.2e}",
                    deviation, allowed)
 
 
 # ----------------------------------------------------------------------------- the checks
 
 
-def check_noninteracting(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_noninteracting(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "non-interacting"
     if not problem.trap.is_harmonic:
         raise Skip("exact levels at g = 0 are known here for the harmonic trap only")
@@ -192,11 +192,11 @@ def check_noninteracting(runner: Runner, problem: Problem, tolerance: Tolerance)
     if len(labels) == len(result.energies) and None not in labels:
         wrong = _parity_groups_mismatch(result.energies, labels, noninteracting_levels(free, len(exact) + 1), tolerance)
         if wrong:
-            return Verdict(name, problem.describe(), "fail", f"parity labels at g = 0: {wrong}")
+            return CheckVerdict(name, problem.describe(), "fail", f"parity labels at g = 0: {wrong}")
     return _verdict(name, problem, deviation, allowed, f"{len(result.energies)} levels at g = 0 vs the oscillator tower")
 
 
-def _parity_groups_mismatch(energies, labels, exact, tolerance: Tolerance) -> str:
+def _parity_groups_mismatch(energies, labels, exact, tolerance: CheckTolerance) -> str:
     """Compare the parity labels of each complete degenerate group with the exact ones ("" if all agree).
 
     The levels already matched the tower rank by rank (within their error bars), so the group of exact
@@ -216,7 +216,7 @@ def _parity_groups_mismatch(energies, labels, exact, tolerance: Tolerance) -> st
     return ""
 
 
-def check_references(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_references(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     """Energies against the references that may grade this backend (never values it produced itself).
 
     The verdict rule of ``bench.verdicts``: a reference counts only where its uncertainty is at most a
@@ -250,7 +250,7 @@ def check_references(runner: Runner, problem: Problem, tolerance: Tolerance) -> 
     return verdict
 
 
-def _check_strong_coupling_coefficients(runner: Runner, problem: Problem, tolerance: Tolerance, refs) -> Verdict:
+def _check_strong_coupling_coefficients(runner: Runner, problem: Problem, tolerance: CheckTolerance, refs) -> CheckVerdict:
     """The states' "K" labels (E = E_inf - K/g) against the reference coefficients, for a backend that reports them."""
     result = runner.solve(problem)
     labels = [s.get("K") if isinstance(s, dict) else None for s in result.states]
@@ -262,7 +262,7 @@ def _check_strong_coupling_coefficients(runner: Runner, problem: Problem, tolera
     return _verdict("references", problem, *worst, f"{count} strong-coupling coefficients K vs {refs[0].kind} references")
 
 
-def check_weak_coupling_slope(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_weak_coupling_slope(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "weak-coupling-slope"
     slopes = [r for r in references_for(problem.at(0.0).with_targets(parity="any")) if r.quantity == "slope_g0"]
     if not slopes:
@@ -274,7 +274,7 @@ def check_weak_coupling_slope(runner: Runner, problem: Problem, tolerance: Toler
     return _verdict(name, problem, deviation, allowed, f"dE0/dg at g = 0 = {measured:.8g}, first order {expected:.8g}")
 
 
-def check_hellmann_feynman(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_hellmann_feynman(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "hellmann-feynman"
     base = _with_states(problem, 1)
     result = runner.solve(base)
@@ -290,7 +290,7 @@ def check_hellmann_feynman(runner: Runner, problem: Problem, tolerance: Toleranc
     return _verdict(name, problem, deviation, allowed, f"<sum delta> = {reported:.8g}, dE0/dg = {slope:.8g}")
 
 
-def check_virial(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_virial(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "virial"
     if not problem.trap.is_harmonic:
         raise Skip("the virial relation E = 2<V> + (g/2) dE/dg needs a harmonic trap")
@@ -313,7 +313,7 @@ def check_virial(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verd
                     f"E0 = {result.energies[0]:.8g}, 2<V> + (g/2) dE/dg = {predicted:.8g}")
 
 
-def check_com_tower(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_com_tower(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "com-tower"
     if not (problem.trap.is_harmonic and problem.equal_frequencies):
         raise Skip("the centre of mass separates only in a harmonic trap with one frequency")
@@ -332,14 +332,14 @@ def check_com_tower(runner: Runner, problem: Problem, tolerance: Tolerance) -> V
         lower = sum(1 for f, err in zip(energies, errors) if abs(f - e) <= tolerance.allowed(e, errors[i] + err))
         upper = sum(1 for f, err in zip(energies, errors) if abs(f - target) <= tolerance.allowed(target, errors[i] + err))
         if upper < lower:
-            return Verdict(name, problem.describe(), "fail",
+            return CheckVerdict(name, problem.describe(), "fail",
                            f"level {i} (E = {e:.8g}, multiplicity {lower}) has {upper} partners at E + omega = {target:.8g}")
     if not tested:
         raise Skip(f"no computed level lies one quantum below the highest one ({len(energies)} levels up to {top:.6g})")
-    return Verdict(name, problem.describe(), "pass", f"{tested} levels have their centre-of-mass partner at E + omega")
+    return CheckVerdict(name, problem.describe(), "pass", f"{tested} levels have their centre-of-mass partner at E + omega")
 
 
-def check_parity_labels(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_parity_labels(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "parity-labels"
     if not problem.trap.is_symmetric:
         raise Skip("parity is not conserved in an asymmetric trap")
@@ -357,7 +357,7 @@ def check_parity_labels(runner: Runner, problem: Problem, tolerance: Tolerance) 
         for i, (e, f) in enumerate(zip(labelled, part.energies)):
             allowed = tolerance.allowed(e, errors[i] + level_error(part, i))
             if abs(e - f) > allowed:
-                return Verdict(name, problem.describe(), "fail",
+                return CheckVerdict(name, problem.describe(), "fail",
                                f"level labelled {sector} at E = {e:.8g} but the {sector} sector's level {i} is {f:.8g}",
                                abs(e - f), allowed)
             if abs(e - f) / allowed > worst[0] / worst[1]:
@@ -365,7 +365,7 @@ def check_parity_labels(runner: Runner, problem: Problem, tolerance: Tolerance) 
     return _verdict(name, problem, *worst, "labelled levels equal the parity sectors' levels")
 
 
-def check_antisymmetric_state(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_antisymmetric_state(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "antisymmetric-state"
     if not (problem.trap.is_harmonic and problem.equal_masses and problem.equal_frequencies):
         raise Skip("the g-independent antisymmetric state needs equal masses and one harmonic frequency")
@@ -386,7 +386,7 @@ def check_antisymmetric_state(runner: Runner, problem: Problem, tolerance: Toler
     return _verdict(name, problem.at(g), deviation, allowed, f"nearest of {needed} levels to E = N^2/2 = {target:g}")
 
 
-def check_monotonic_bounds(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_monotonic_bounds(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "monotonic-bounds"
     if not problem.trap.is_harmonic:
         raise Skip("the bounding spectra are known for the harmonic trap only")
@@ -408,14 +408,14 @@ def check_monotonic_bounds(runner: Runner, problem: Problem, tolerance: Toleranc
         allowed = tolerance.allowed(bound, level_error(result, i))
         if excess > allowed:
             side = "below its g = 0 value" if (sign < 0) == (g > 0) else "above its g = +inf value"
-            return Verdict(name, problem.describe(), "fail",
+            return CheckVerdict(name, problem.describe(), "fail",
                            f"level {i} = {result.energies[i]:.8g} lies {side} {bound:.8g} by {excess:.2e}", excess, allowed)
         worst = max(worst, (max(excess, 0.0), allowed), key=lambda w: w[0] / w[1])
     what = "E(0) <= E(g) <= E(inf)" if upper and g > 0 else ("E(g) >= E(0)" if g > 0 else "E(g) <= E(0)")
     return _verdict(name, problem, *worst, f"{count} levels within {what}")
 
 
-def check_species_swap(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_species_swap(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "species-swap"
     swapped = replace(problem, up=replace(problem.down, name=problem.up.name), down=replace(problem.up, name=problem.down.name))
     if swapped.key == problem.key:
@@ -431,7 +431,7 @@ def check_species_swap(runner: Runner, problem: Problem, tolerance: Tolerance) -
 NORMALIZATION_TOLERANCE = 1e-4  # relative: trapezoidal integration of smooth, decaying profiles
 
 
-def check_normalization(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_normalization(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "normalization"
     result, reasons = None, []
     for wanted in (["density", "momentum"], ["density"], ["momentum"]):
@@ -458,7 +458,7 @@ def check_normalization(runner: Runner, problem: Problem, tolerance: Tolerance) 
             if abs(integral - count) / allowed > worst[0] / worst[1]:
                 worst = (abs(integral - count), allowed)
             if abs(integral - count) > allowed:
-                return Verdict(name, problem.describe(), "fail",
+                return CheckVerdict(name, problem.describe(), "fail",
                                f"{kind}_{species} integrates to {integral:.8g}, expected N_{species} = {count}",
                                abs(integral - count), allowed)
     if not tested:
@@ -466,7 +466,7 @@ def check_normalization(runner: Runner, problem: Problem, tolerance: Tolerance) 
     return _verdict(name, problem, *worst, f"{', '.join(tested)} integrate to N_s")
 
 
-def check_contact_convention(runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def check_contact_convention(runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     name = "contact-convention"
     result = runner.solve(_with_states(problem, 1))
     if not {"contact", "delta"} <= set(result.scalars):
@@ -479,7 +479,7 @@ def check_contact_convention(runner: Runner, problem: Problem, tolerance: Tolera
                     f"contact {result.scalars['contact']:.8g} vs (2 mu)^2 g^2 <sum delta> = {expected:.8g}")
 
 
-CHECKS: dict[str, Callable[[Runner, Problem, Tolerance], Verdict]] = {
+CHECKS: dict[str, Callable[[Runner, Problem, CheckTolerance], CheckVerdict]] = {
     "non-interacting": check_noninteracting,
     "references": check_references,
     "weak-coupling-slope": check_weak_coupling_slope,
@@ -509,19 +509,19 @@ def default_problems() -> list[Problem]:
     ]
 
 
-def run_check(name: str, runner: Runner, problem: Problem, tolerance: Tolerance) -> Verdict:
+def run_check(name: str, runner: Runner, problem: Problem, tolerance: CheckTolerance) -> CheckVerdict:
     """One check on one problem; skips and failures of the solver become verdicts, never exceptions."""
     try:
         return CHECKS[name](runner, problem, tolerance)
     except Skip as exc:
-        return Verdict(name, problem.describe(), "skip", str(exc))
+        return CheckVerdict(name, problem.describe(), "skip", str(exc))
     except TaskFailed as exc:  # a solver failure is a finding of the validation, reported as such
-        return Verdict(name, problem.describe(), "error", str(exc))
+        return CheckVerdict(name, problem.describe(), "error", str(exc))
     except Exception as exc:  # so is a crash inside the check on what the backend returned
-        return Verdict(name, problem.describe(), "error", f"{exc.__class__.__name__}: {exc}")
+        return CheckVerdict(name, problem.describe(), "error", f"{exc.__class__.__name__}: {exc}")
 
 
-def verdict_table(verdicts: Sequence[Verdict]) -> str:
+def verdict_table(verdicts: Sequence[CheckVerdict]) -> str:
     """A plain-text table, one line per verdict, and a summary line."""
     width = max([len(v.problem) for v in verdicts] + [7])
     lines = [f"{'check':22s} {'problem':{width}s} {'verdict':7s} reason", "-" * (40 + width)]

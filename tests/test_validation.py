@@ -17,7 +17,7 @@ from trapbench.backends.result import Solution
 from trapbench.backends.two_body import TwoBodyBackend
 from trapbench.bench.cli import main
 from trapbench.bench.check_suite import validate
-from trapbench.bench.validation import Tolerance
+from trapbench.bench.validation import CheckTolerance
 from trapbench.problems.errors import SpecError
 from trapbench.problems.spec import Problem
 
@@ -172,7 +172,7 @@ def test_error_estimates_widen_the_tolerance_only_when_reported():
     assert failed_checks(validate(silent, TWO_BODY_PROBLEMS[:1], checks=["references"])) == {"references"}
     # a wide enough user tolerance accepts it
     assert not failed_checks(validate(silent, TWO_BODY_PROBLEMS[:1], checks=["references"],
-                                      tolerance=Tolerance(absolute=2e-4)))
+                                      tolerance=CheckTolerance(absolute=2e-4)))
 
 
 def test_strong_coupling_backend_passes_where_it_applies():

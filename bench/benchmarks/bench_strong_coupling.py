@@ -48,7 +48,7 @@ def test_spin_chain_six_plus_six(benchmark):
 
 def test_validation_two_body(benchmark):
     from trapbench.backends.registry import get
-    from trapbench.bench.validation import validate
+    from trapbench.bench.check_suite import validate
 
     verdicts = benchmark.pedantic(validate, args=(get("two-body"),), kwargs={"catalogue_max_particles": 2},
                                   rounds=2, iterations=1)

@@ -21,10 +21,10 @@ ORDER = 40
 
 
 def register(parser: argparse.ArgumentParser) -> None:
-    from ..check_suite import CONTRACT_CHECKS, TIERS
-    from ..validation import CHECKS, Tolerance
+    from ..check_suite import CONTRACT_CHECKS, QUICK_BUDGET_S, TIERS
+    from ..validation import CHECKS, CheckTolerance
 
-    default = Tolerance()
+    default = CheckTolerance()
     add_problem_options(parser, required=False)
     parser.add_argument("--backend", "-b", required=True, metavar="NAME", help="the backend to validate")
     parser.add_argument("--param", "-p", action="append", metavar="KEY=VALUE",
@@ -36,6 +36,9 @@ def register(parser: argparse.ArgumentParser) -> None:
                         help="quick (default): the contract and the physics checks on the smallest problem and the smallest"
                              " with three or more particles;"
                              " thorough: every physics check on every problem, and the catalogue's references")
+    parser.add_argument("--budget", type=float, default=None, metavar="SECONDS",
+                        help=f"start no check after this much wall time; the rest are reported as skipped"
+                             f" (default: {QUICK_BUDGET_S:g} s with --tier quick, none with thorough)")
     parser.add_argument("--catalogue", type=int, default=None, metavar="N",
                         help="compare with the references of every catalogue entry with at most N particles"
                              " (default: 3 with --tier thorough, 0 with quick)")
@@ -49,18 +52,21 @@ def register(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from ..check_suite import validate
-    from ..validation import Tolerance, verdict_table
+    from ..check_suite import QUICK_BUDGET_S, validate
+    from ..validation import CheckTolerance, verdict_table
 
     for field in ("absolute", "relative", "error_factor"):
         if getattr(args, field) < 0:
             raise SpecError(f"--{field.replace('_', '-')}", f"got {getattr(args, field)}; must be >= 0")
+    if args.budget is not None and args.budget <= 0:
+        raise SpecError("--budget", f"got {args.budget}; give a positive number of seconds")
+    budget = args.budget if args.budget is not None else (QUICK_BUDGET_S if args.tier == "quick" else None)
     backend = registry.get(args.backend)
-    tolerance = Tolerance(args.absolute, args.relative, args.error_factor)
+    tolerance = CheckTolerance(args.absolute, args.relative, args.error_factor)
     problem = problem_from_args(args)  # None: the built-in small problems
     verdicts = validate(backend, problems=None if problem is None else problem.points(), params=parse_params(args.param),
                         tolerance=tolerance, checks=args.check, catalogue_max_particles=args.catalogue, tier=args.tier,
-                        progress=not args.json)
+                        progress=not args.json, budget_s=budget)
     if args.json:
         print(json.dumps([asdict(v) for v in verdicts], indent=1))
     else:
