@@ -94,12 +94,12 @@ def _shipped():
 
 
 def test_shipped_levels_respect_the_exact_bounds():
-    from trapbench.problems.exact import towers
+    from trapbench.problems.references import noninteracting_levels
 
     for entry in _shipped().entries:
         problem = Problem.create(entry.n_up, entry.n_down, entry.g, mass_up=entry.mass_up, mass_down=entry.mass_down,
                                  states=len(entry.levels))
-        free = [e for e, _ in towers.noninteracting_levels(problem, len(entry.levels))]
+        free = [e for e, _ in noninteracting_levels(problem, len(entry.levels))]
         for level in entry.levels:
             if not level.published:
                 continue
