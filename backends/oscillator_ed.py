@@ -30,7 +30,8 @@ across them by (parity sector, rank in the sector) and, with >= 3 cutoffs, extra
 ``cutoff_model``: bare interaction E_inf + a c^-1/2 + b c^-1 (measured 1+1 error exponents:
 0.50-0.53 in the energy cutoff for g = 0.5..10, 0.57 in the orbital cutoff n_max = 10-80);
 renormalized interaction E_inf + A c^-p with p fitted (2+2, g = 2: p rises from 0.7 to 1.76 over
-c = 8-32, then 1.67 at c = 36-44). The solver floor is the Lanczos tolerance. <V_trap> and dE/dg are
+c = 8-32, then 1.67 at c = 36-44), its bar widened where the ladder is not yet asymptotic
+(``GuardedPowerLaw``). The solver floor is the Lanczos tolerance. <V_trap> and dE/dg are
 extrapolated the same way (``scalar_errors``); the kinetic energy and the contact derived from them
 carry the propagated error bars.
 
@@ -45,7 +46,7 @@ scaling x -> s x) is in ``diagnostics``; it vanishes as the basis converges.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import lru_cache
 from typing import Any
 
@@ -57,7 +58,7 @@ from . import fock_ed
 from . import oscillator_scaling as scaling
 from ..problems import exact as ob
 from .base import Backend, Capabilities, Parameter, SolverError
-from .extrapolation import DriftingPowerLaw, PolynomialModel
+from .extrapolation import DriftingPowerLaw, Extrapolation, PolynomialModel
 from .ladder import Rung, RungLevel, rank_keys, run_ladder
 from .result import Observable, Solution
 
@@ -372,8 +373,38 @@ def cutoff_model(renormalized: bool):
     energy that turns around: the renormalized interaction is not variational).
     """
     if renormalized:
-        return DriftingPowerLaw()
+        return GuardedPowerLaw()
     return PolynomialModel(powers=(1.0, 2.0), exponent=-0.5, minimum_points=3)
+
+
+@dataclass(frozen=True)
+class GuardedPowerLaw:
+    """``DriftingPowerLaw`` with two guards for a renormalized ladder not yet in its asymptotic regime.
+
+    Measured on 2+1 with the pair heavy (mass ratio 20/3, g = 0.5 ... 20, trap orbitals, c = 16-28,
+    against the three-body backend): some levels rise monotonically but will turn around later, and the
+    fitted exponent then sits at the top of the scan (p -> 6, ``extrapolate_power_law``): the three
+    points follow no power law, so the bar is at least the total variation along the ladder. Levels
+    that already turned around (``DriftingPowerLaw`` returns the last value and the total variation)
+    missed by 2.2-2.4 times that variation: two error terms of opposite sign are both still active and
+    the remainder is not bounded by the excursion so far; the bar is twice the total variation.
+    """
+
+    minimum_points: int = 3
+    power_ceiling: float = 5.4  # 90 % of the exponent scan's upper end (6)
+
+    def __call__(self, steps, values) -> Extrapolation:
+        fit = DriftingPowerLaw()(steps, values)
+        variation = float(np.sum(np.abs(np.diff(np.asarray(values, dtype=float)))))
+        if fit.warning:  # turned around
+            return replace(fit, error=max(fit.error, 2.0 * variation))
+        if fit.parameters.get("power", 0.0) >= self.power_ceiling:
+            return replace(
+                fit,
+                error=max(fit.error, variation),
+                warning="the fitted exponent reached the top of its scan (no power law yet): error bar >= total variation",
+            )
+        return fit
 
 
 def derived_scalar_errors(problem: Problem, energy_error, trap_error, delta_error, suffix: str) -> dict[str, float]:

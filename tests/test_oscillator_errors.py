@@ -1,0 +1,35 @@
+"""The renormalized ladder's error model (``oscillator_ed.GuardedPowerLaw``) on synthetic ladders whose
+limit is known by construction (no physics reference needed: the sequences are made up here)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from trapbench.backends.oscillator_ed import GuardedPowerLaw
+
+CUTOFFS = np.array([16.0, 20.0, 24.0, 28.0])
+
+
+def test_a_clean_power_law_is_extrapolated_and_left_alone():
+    values = 3.0 + 0.4 * CUTOFFS**-1.7
+    fit = GuardedPowerLaw()(CUTOFFS, values)
+    assert fit.warning is None
+    assert fit.value == pytest.approx(3.0, abs=1e-6)
+    assert abs(fit.value - 3.0) <= fit.error
+
+
+def test_a_ladder_that_turned_around_gets_twice_its_total_variation():
+    values = np.array([1.0, 1.002, 1.0025, 1.0022])
+    fit = GuardedPowerLaw()(CUTOFFS, values)
+    assert fit.warning
+    assert fit.error == pytest.approx(2 * (0.002 + 0.0005 + 0.0003))
+
+
+def test_a_ladder_decaying_faster_than_any_scanned_power_gets_its_total_variation():
+    """Geometric convergence toward a limit the last points do not reveal (the fit runs to p = 6)."""
+    values = 2.0 + 0.01 * 0.2 ** (CUTOFFS / 4)
+    fit = GuardedPowerLaw()(CUTOFFS, values)
+    assert fit.parameters["power"] >= GuardedPowerLaw().power_ceiling
+    assert fit.error >= float(np.sum(np.abs(np.diff(values)))) - 1e-15
+    assert fit.warning
