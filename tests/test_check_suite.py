@@ -28,17 +28,18 @@ KNOWN_FAILURES = {
 
 
 # DMRG finds each excited state by a DMRG run of its own, minutes apiece at any useful spacing: in the test
-# suite it runs the contract and the physics checks that need the ground state only (`trapbench validate
-# --tier thorough` runs all of them).
+# suite it runs the contract and the physics checks that need the ground state only, on 1+1 at g = 1 and
+# on the heavy-light pair at g = 2 (`trapbench validate --tier thorough` runs all of them everywhere).
 GROUND_STATE_CHECKS = ("declaration", "refusal", "state-count", "parity-sector", "observables", "error-bars",
                        "references", "hellmann-feynman", "virial", "species-swap", "normalization", "contact-convention")
-ONLY = {"lattice-dmrg": GROUND_STATE_CHECKS}
+OPTIONS = {"lattice-dmrg": {"only": GROUND_STATE_CHECKS,
+                            "problems": [Problem.create(1, 1, 1.0), Problem.create(1, 1, 2.0, mass_up=40 / 6)]}}
 
 
 def _cases():
     cases = []
     for name in BUILTIN:
-        for case in check_cases(name, known_failures=KNOWN_FAILURES.get(name), only=ONLY.get(name)):
+        for case in check_cases(name, known_failures=KNOWN_FAILURES.get(name), **OPTIONS.get(name, {})):
             cases.append(pytest.param(*case.values, id=f"{name}:{case.id}", marks=case.marks))
     return cases
 
@@ -50,7 +51,7 @@ def test_builtin_backend_passes_its_checks(check):
 
 def test_every_builtin_backend_is_covered_by_contract_and_physics_checks():
     for name in BUILTIN:
-        kinds = {check.kind for check in backend_checks(name, only=ONLY.get(name))}
+        kinds = {check.kind for check in backend_checks(name, **OPTIONS.get(name, {}))}
         assert kinds == {"contract", "physics"}, name
 
 
@@ -141,3 +142,10 @@ def test_known_failures_are_declared_with_reasons_and_strict():
     cases = check_cases("perturbative", known_failures=KNOWN_FAILURES["perturbative"])
     marked = [case for case in cases if case.marks]
     assert marked and all(mark.kwargs["strict"] and mark.kwargs["reason"] for case in marked for mark in case.marks)
+
+
+def test_command_line_refuses_an_observable_the_backend_cannot_compute(capsys):
+    from trapbench.bench.cli import main
+
+    code = main(["solve", "--up", "2", "--down", "1", "--g", "20", "-b", "strong-coupling", "--observables", "momentum"])
+    assert code == 2 and "momentum" in capsys.readouterr().err
