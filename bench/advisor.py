@@ -122,7 +122,6 @@ class Recommendation:
     cpu_s: float | None
     peak_mib: float | None
     accuracy: float | None
-    reliable: bool
     reasons: list[str] = field(default_factory=list)
     param_values: dict = field(default_factory=dict)
     measured_on: dict = field(default_factory=dict)
@@ -141,7 +140,7 @@ class Advice:
     def table(self) -> pd.DataFrame:
         return pd.DataFrame([{
             "backend": r.backend, "params": r.params, "evidence": r.evidence, "confidence": r.confidence,
-            "cpu_s": r.cpu_s, "peak_mib": r.peak_mib, "accuracy": r.accuracy, "reliable": r.reliable,
+            "cpu_s": r.cpu_s, "peak_mib": r.peak_mib, "accuracy": r.accuracy,
         } for r in self.recommendations])
 
     def solve_command(self, recommendation: Recommendation) -> str:
@@ -340,7 +339,7 @@ def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
         recommendations.append(Recommendation(
             backend=backend, params=pick["params_text"], evidence=evidence, confidence=confidence,
             cpu_s=_number(pick["cost_cpu_s"]), peak_mib=_number(pick["peak_mib"]), accuracy=float(pick["accuracy"]),
-            reliable=True, reasons=reasons, param_values=_params_dict(pick.get("params")),
+            reasons=reasons, param_values=_params_dict(pick.get("params")),
             measured_on={"n_up": int(pick["n_up"]), "n_down": int(pick["n_down"]), "mass_up": float(pick["mass_up"]),
                          "mass_down": float(pick["mass_down"]), "g": float(pick["g"]),
                          "reference_source": pick.get("ref_source"), "source": pick.get("measurement_source")},
