@@ -28,12 +28,12 @@ KNOWN_FAILURES = {
 
 
 # DMRG finds each excited state by a DMRG run of its own, minutes apiece at any useful spacing: in the test
-# suite it runs the contract and the physics checks that need the ground state only, on 1+1 at g = 1 and
-# on the heavy-light pair at g = 2 (`trapbench validate --tier thorough` runs all of them everywhere).
+# suite it runs the contract and the physics checks that need the ground state only, on 1+1 at g = 1
+# (`trapbench validate --tier thorough` runs all of them everywhere).
 GROUND_STATE_CHECKS = ("declaration", "refusal", "state-count", "parity-sector", "observables", "error-bars",
                        "references", "hellmann-feynman", "virial", "species-swap", "normalization", "contact-convention")
 OPTIONS = {"lattice-dmrg": {"only": GROUND_STATE_CHECKS,
-                            "problems": [Problem.create(1, 1, 1.0), Problem.create(1, 1, 2.0, mass_up=40 / 6)]}}
+                            "problems": [Problem.create(1, 1, 1.0)]}}
 
 
 def _cases():
