@@ -57,7 +57,7 @@ from ..problems.spec import Problem
 from . import fock_ed
 from . import oscillator_scaling as scaling
 from ..problems import exact as ob
-from .base import Backend, Capabilities, Parameter, SolverError
+from .base import Backend, Capabilities, Parameter, SolverError, Support
 from .extrapolation import DriftingPowerLaw, Extrapolation, PolynomialModel
 from .ladder import Rung, RungLevel, rank_keys, run_ladder
 from .result import Observable, Solution
@@ -490,23 +490,33 @@ class OscillatorEDBackend(Backend):
             return {2: 30, 3: 24, 4: 18, 5: 14, 6: 12}.get(n, 10)
         return {2: 32, 3: 28, 4: 24, 5: 20, 6: 16, 7: 14}.get(n, 12)
 
+    def cutoff_ladder(self, problem: Problem, params: dict[str, Any]) -> list[int]:
+        """The cutoffs solved, ascending: ``cutoff``, ``cutoff - ladder_step``, ... (``ladder`` of them)."""
+        kind = params["truncation"]
+        cutoff = params["cutoff"]
+        if cutoff is None:  # the default ladder must start at a meaningful cutoff
+            lowest = max(problem.up.count, problem.down.count, 1) if kind == "orbital" else 2
+            cutoff = max(self.default_cutoff(problem, kind), lowest + params["ladder_step"] * (params["ladder"] - 1))
+        return [cutoff - params["ladder_step"] * i for i in range(params["ladder"])][::-1]
+
+    def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:
+        """A ladder below the smallest meaningful cutoff is a parameter error (SpecError naming param.cutoff),
+        raised before any work and when a suite is loaded."""
+        params = self.resolve_params(params or {})
+        cutoffs = self.cutoff_ladder(problem, params)
+        lowest = max(problem.up.count, problem.down.count, 1) if params["truncation"] == "orbital" else 1
+        if cutoffs[0] < lowest:
+            raise SpecError("param.cutoff", f"the ladder {cutoffs} goes below the smallest meaningful cutoff {lowest};"
+                                            " raise cutoff or lower ladder/ladder_step")
+        return Support.yes()
+
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         """Solve with the BLAS thread count the caller set (trapbench's executor: ``--blas-threads``, default 1)."""
         return self._compute(problem, params)
 
     def _compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         kind = params["truncation"]
-        cutoff = params["cutoff"]
-        if cutoff is None:  # the default ladder must start at a meaningful cutoff
-            lowest = max(problem.up.count, problem.down.count, 1) if kind == "orbital" else 2
-            cutoff = max(self.default_cutoff(problem, kind), lowest + params["ladder_step"] * (params["ladder"] - 1))
-        cutoffs = [cutoff - params["ladder_step"] * i for i in range(params["ladder"])][::-1]
-        lowest = max(problem.up.count, problem.down.count, 1) if kind == "orbital" else 1
-        if cutoffs[0] < lowest:
-            raise SpecError(
-                "param.cutoff",
-                f"the ladder {cutoffs} goes below the smallest meaningful cutoff; raise cutoff or lower ladder/ladder_step",
-            )
+        cutoffs = self.cutoff_ladder(problem, params)
         renormalized = params["renormalized"] and problem.g[0] != 0.0
         warnings = []
         if renormalized and not problem.equal_frequencies:

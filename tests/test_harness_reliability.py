@@ -527,3 +527,21 @@ def test_an_isolated_task_dies_with_its_watcher(toy_path, tmp_path, method):
         assert not alive, alive  # the task would have slept 120 s
     finally:
         kill_tree(watcher)
+
+
+def test_a_rung_below_the_oscillator_cutoff_floor_is_refused_at_load_time():
+    from trapbench.bench.suite import parse_suite
+
+    text = """
+name = "floor"
+[[problems]]
+name = "pair"
+up = { count = 1 }
+down = { count = 1 }
+interaction = { g = 1.0 }
+[[backends]]
+name = "oscillator-ed"
+ladder = [{ cutoff = 16 }, { cutoff = 4, ladder = 4, ladder_step = 2 }]
+"""
+    with pytest.raises(SpecError, match=r"backends\[0\]\.ladder\[1\].*param\.cutoff"):
+        parse_suite(text)
