@@ -11,15 +11,17 @@ Every function takes a pandas DataFrame and returns a DataFrame, so that reports
     to_markdown(table)              # a Markdown table; format_value formats one cell
     write_tables(frame, folder)     # all of them as .md/.csv/.html, and the error-vs-cost figures
 
-References come from ``trapbench.problems.references.references_for(problem)`` (matched on the
-physics of each single-g problem). Whether a result reaches an accuracy is decided by
-``bench.verdicts``: only against a reference at least ten times tighter than the threshold;
+References come from ``trapbench.problems.references.references_for(problem, for_backend=...)``
+(matched on the physics of each single-g problem; a dataset value never grades the backend that
+produced it). Whether a result reaches an accuracy is decided by ``bench.verdicts``: only against a reference at least ten times tighter than the threshold;
 otherwise the result is "unverified" and shown with its own error bar (``error_basis`` says
 which). Cost is the CPU time of the solve (``solve_cpu_s``), which background load distorts less
 than wall time.
 """
 
 from __future__ import annotations
+
+import inspect
 
 import json
 import math
@@ -80,9 +82,10 @@ def attach_references(
     uncertainty; None without a bar).
     """
     references = references if references is not None else default_references()
+    graded = references is not None and "for_backend" in inspect.signature(references).parameters
     tolerance = tolerance or (lambda quantity, backend: DEFAULT_TOLERANCES["energy"])
     frame = frame.copy()
-    cache: dict[str, list] = {}
+    cache: dict[tuple, list] = {}
     added: dict[str, list] = {k: [] for k in (
         "ref_value", "ref_uncertainty", "ref_source", "ref_kind", "ref_effective_uncertainty", "abs_error",
         "rel_error", "ref_rel_uncertainty", "error_bar", "own_rel_error", "accuracy", "error_basis", "allowed",
@@ -91,10 +94,12 @@ def attach_references(
         energy, state = row.get("energy"), int(row.get("state", -1))
         ref = None
         if references is not None and energy is not None and state >= 0 and not _missing(energy):
-            key = row["problem_key"]
+            # a computed reference never grades the backend that produced it: ask per backend
+            key = (row["problem_key"], row.get("backend") if graded else None)
             if key not in cache:
                 try:
-                    cache[key] = list(references(_problem(row)))
+                    found = references(_problem(row), for_backend=key[1]) if graded else references(_problem(row))
+                    cache[key] = list(found)
                 except Exception:  # a reference lookup that fails must not hide the results
                     cache[key] = []
             ref = next((r for r in cache[key] if r.quantity == "energy" and r.state == state), None)

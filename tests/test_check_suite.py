@@ -36,11 +36,20 @@ OPTIONS = {"lattice-dmrg": {"only": GROUND_STATE_CHECKS,
                             "problems": [Problem.create(1, 1, 1.0)]}}
 
 
+# At the cheap check settings (chi <= 16, two coarse spacings) DMRG's error bar misses the heavy-light pair's
+# energy by about three times: the bar does not hold the bond-dimension error of so small a chi.
+DMRG_HEAVY_LIGHT = {"only": ("references",), "problems": [Problem.create(1, 1, 2.0, mass_up=40 / 6)],
+                    "known_failures": {"references": "at chi <= 16 the bar misses the bond-dimension error"}}
+
+
 def _cases():
     cases = []
     for name in BUILTIN:
         for case in check_cases(name, known_failures=KNOWN_FAILURES.get(name), **OPTIONS.get(name, {})):
             cases.append(pytest.param(*case.values, id=f"{name}:{case.id}", marks=case.marks))
+    for case in check_cases("lattice-dmrg", **DMRG_HEAVY_LIGHT):
+        if case.values[0].name == "references":
+            cases.append(pytest.param(*case.values, id=f"lattice-dmrg:{case.id}", marks=case.marks))
     return cases
 
 
