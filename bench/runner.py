@@ -68,6 +68,11 @@ def _reset_peak_rss() -> None:
         pass
 
 
+def peak_rss_bytes() -> int:
+    """This process's peak resident set size (``VmHWM`` of /proc/self/status, Linux); 0 where unreadable."""
+    return _status_kib("VmHWM") * 1024
+
+
 def _status_kib(key: str) -> int:
     try:
         with open("/proc/self/status") as handle:
@@ -87,7 +92,7 @@ def _measured_solve(payload: dict) -> tuple:
                                                       payload["blas_threads"])
     after = resource.getrusage(resource.RUSAGE_SELF)
     cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
-    return status, error, error_type, result, cpu, _status_kib("VmHWM") * 1024
+    return status, error, error_type, result, cpu, peak_rss_bytes()
 
 
 def _end_with(watcher_pid: int) -> None:

@@ -16,19 +16,13 @@ from __future__ import annotations
 
 import argparse
 import json
-import resource
 import time
 import warnings
 from pathlib import Path
 
 from threadpoolctl import threadpool_limits
 
-
-def peak_memory_bytes() -> int:
-    for line in Path("/proc/self/status").read_text().splitlines():
-        if line.startswith("VmHWM:"):
-            return int(line.split()[1]) * 1024
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+from trapbench.bench.runner import peak_rss_bytes
 
 
 def numbers(text: str | None) -> tuple[float, ...] | None:
@@ -109,7 +103,7 @@ def main() -> None:
         params={k: list(v) if isinstance(v, tuple) else v for k, v in params.items()},
         wall_s=time.perf_counter() - wall,
         cpu_s=time.process_time() - cpu,
-        peak_memory_bytes=peak_memory_bytes(),
+        peak_memory_bytes=peak_rss_bytes(),
     )
     if args.exact is not None:
         record["exact"] = args.exact

@@ -27,20 +27,14 @@ import subprocess
 import sys
 import time
 
+from trapbench.bench.runner import peak_rss_bytes
+
 CASES = [
     (n, n, g, m)
     for n in (2, 3)
     for m in (1.0, 40 / 6)
     for g in (2.0, -2.0)
 ]
-
-
-def peak_memory_bytes() -> int:
-    with open("/proc/self/status") as status:
-        for line in status:
-            if line.startswith("VmHWM:"):
-                return int(line.split()[1]) * 1024
-    return 0
 
 
 def run_case(index: int, budget: float) -> dict:
@@ -79,7 +73,7 @@ def run_case(index: int, budget: float) -> dict:
     for row in rows:
         if "extrapolated" in row:
             row["self_error"] = abs(row["extrapolated"] - final)
-    return {"case": [n_up, n_down, g, mass], "rows": rows, "peak_bytes": peak_memory_bytes(), "final": final}
+    return {"case": [n_up, n_down, g, mass], "rows": rows, "peak_bytes": peak_rss_bytes(), "final": final}
 
 
 def first_reaching(rows: list[dict], key: str, final: float, target: float):

@@ -31,6 +31,8 @@ import subprocess
 import sys
 import time
 
+from trapbench.bench.runner import peak_rss_bytes
+
 CONVERGENCE_MASSES = (0.1, 0.15, 1.0, 2.0, 20 / 3, 10.0)
 CONVERGENCE_COUPLINGS = (-5.0, -3.0, 2.0, 20.0, 100.0)
 CONVERGENCE_ORDERS = (6, 8, 10, 12, 14, 16)
@@ -39,14 +41,6 @@ VALUE_COUPLINGS = (-3.0, -1.0, 0.5, 2.0, 5.0, 20.0)
 FINE = {"order": 20}
 COVERAGE_COUPLINGS = (-5.0, -1.0, 2.0, 20.0, 100.0)
 COVERAGE_LADDERS = {1: (5, 6, 7, 8), 2: (6, 7, 8, 9, 10, 11), 4: (12, 13)}  # step: finest orders
-
-
-def peak_memory_bytes() -> int:
-    with open("/proc/self/status") as status:
-        for line in status:
-            if line.startswith("VmHWM:"):
-                return int(line.split()[1]) * 1024
-    return 0
 
 
 def solve(mass: float, g: float, **params):
@@ -73,12 +67,12 @@ def run_convergence(mass: float, g: float) -> dict:
         distance = max(abs(a - b) for a, b in zip(result.energies, fine.energies))
         rows.append({"order": order, "distance": distance, "bar": max(result.energy_errors), "cpu": cpu,
                      "dimension": max(result.diagnostics["dimension_per_sector"])})
-    return {"mass": mass, "g": g, "rows": rows, "fine": fine.energies, "peak": peak_memory_bytes()}
+    return {"mass": mass, "g": g, "rows": rows, "fine": fine.energies, "peak": peak_rss_bytes()}
 
 
 def run_values(mass: float, g: float) -> dict:
     result, cpu = solve(mass, g)
-    peak = peak_memory_bytes()
+    peak = peak_rss_bytes()
     fine = fine_reference(mass, g)
     return {
         "mass": mass,
