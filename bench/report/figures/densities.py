@@ -33,7 +33,7 @@ def select(frame: pd.DataFrame) -> pd.DataFrame:
 def draw(tasks: pd.DataFrame, store):
     """The figure and the table of each density's integral, <x^2> and n(0)."""
     first = tasks.iloc[0]
-    n_up, n_down, mass_up, mass_down = first["n_up"], first["n_down"], first["mass_up"], first["mass_down"]
+    mass_up, mass_down = first["mass_up"], first["mass_down"]
     figure, axes = new_figure(3.6 * len(tasks) + 0.6, 3.8, len(tasks), sharey=True)
     rows = []
     heavy_is_up = mass_up > mass_down
