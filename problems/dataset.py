@@ -228,14 +228,16 @@ def best_values(rows: Iterable[Mapping[str, Any]]) -> dict[str, dict[int, dict[s
     """physics key -> state -> backend -> the backend's result with the smallest error bar for that level.
 
     ``rows`` are the store's tidy result rows (``Store.results_frame``): backend, backend_version, params,
-    n_up, n_down, mass_up, mass_down, g, state, energy, energy_error, status, cpu_time_s, and the problem's
-    parity sector. Rows without an error bar, of a parity sector, or of a failed task are ignored.
+    n_up, n_down, mass_up, mass_down, g, state, energy, energy_error, status, cpu_time_s, and the task's
+    ``problem`` (its targets' parity sector). Rows without an error bar, of a parity sector (their levels are not
+    the lowest of the full spectrum), or of a failed task are ignored.
     """
     best: dict[str, dict[int, dict[str, MethodValue]]] = {}
     for row in rows:
         if row.get("status", "ok") != "ok" or row.get("energy") is None or row.get("energy_error") is None:
             continue
-        if row.get("parity_sector", "any") != "any" or row["backend"] not in METHOD_FAMILIES:
+        sector = ((row.get("problem") or {}).get("targets") or {}).get("parity", "any")
+        if sector != "any" or row["backend"] not in METHOD_FAMILIES:
             continue
         energy, error = float(row["energy"]), float(row["energy_error"])
         if not (math.isfinite(energy) and math.isfinite(error)):

@@ -57,6 +57,15 @@ def test_three_particles_come_from_the_precision_method():
     assert level.status == "precision" and level.value == 4.1 and [m.backend for m in level.methods] == ["three-body"]
 
 
+def test_results_of_one_parity_sector_are_not_taken_for_the_full_spectrum():
+    odd_only = {**row("lattice-dmrg", 10.5, 1e-4), "problem": {"targets": {"parity": "odd"}}}
+    built = dataset.build([row("oscillator-ed", 10.0001, 2e-4), odd_only, row("lattice-dmrg", 10.0, 1e-4)])
+    level = built.entries[0].levels[0]
+    assert level.status == "agreed" and level.value == 10.0
+    alone = dataset.build([odd_only])
+    assert not alone.entries
+
+
 def test_each_method_keeps_its_most_precise_result():
     built = dataset.build([row("oscillator-ed", 10.3, 1e-1), row("oscillator-ed", 10.0002, 3e-4),
                            row("lattice-dmrg", 10.0, 1e-4)])
