@@ -22,7 +22,9 @@ Extrapolation`` with a ``minimum_points`` attribute, one per way a method approa
 - ``PolynomialModel``: polynomial in a power of the step (lattice spacing a: powers (2, 4) in a;
   bare contact interaction in an oscillator basis: powers (1, 2) in c^(-1/2));
 - ``DriftingPowerLaw``: E_inf + A c^(-p) with a drifting fitted p (renormalized oscillator basis);
-- ``DiscardedWeightLinear``: linear in the discarded weight of a DMRG bond-dimension ladder.
+- ``DiscardedWeightLinear``: linear in the discarded weight of a DMRG bond-dimension ladder;
+- ``GeometricTail``: no extrapolation, the finest value with a bound on the geometric tail of an
+  exponentially convergent (nested, variational) p-ladder (three-body's spectral elements).
 
 A model that cannot apply its form (e.g. values that turn around) still returns a limit and an
 honest error bar, and says why in ``Extrapolation.warning``; nothing is signalled by strings in
@@ -321,4 +323,44 @@ class DiscardedWeightLinear:
             return replace(fit, error=max(fit.error, abs(energies[-1] - fit.value) * 0.5))
         return Extrapolation(
             energies[-1], abs(energies[-1] - energies[-2]), "last value (no truncation left)", tuple(weights), tuple(energies)
+        )
+
+
+@dataclass(frozen=True)
+class GeometricTail:
+    """The finest value of a monotonic ladder converging geometrically, with a bound on what is left.
+
+    For nested variational spaces (a p-ladder of spectral elements) a level decreases monotonically
+    to its limit. With the last two changes d_prev, d_last and r = d_last / d_prev, geometric
+    convergence at r <= 1/2 leaves at most d_last r / (1 - r) <= d_last below the finest value, so
+    the error bar is d_last (sum of a geometric series). Slower convergence gets 2 d_last / (1 - r)
+    (r < 1) or 10 max(d_last, d_prev) (r >= 1), with a ``warning``. A change below ``rounding`` x
+    max(1, |value|) counts as converged. The value is never extrapolated: the finest value is the
+    variational one.
+    """
+
+    rounding: float = 1e-12
+    minimum_points: int = 3
+
+    def __call__(self, steps: Sequence[float], values: Sequence[float]) -> Extrapolation:
+        y = np.asarray(values, dtype=float)
+        if len(y) < 3:
+            raise ValueError(f"a geometric tail needs 3 rungs to measure its ratio, got {len(y)}")
+        floor = self.rounding * max(1.0, abs(y[-1]))
+        last, previous = abs(y[-1] - y[-2]), abs(y[-2] - y[-3])
+        warning = None
+        if last <= floor or last <= 0.5 * previous:
+            error = last
+        else:
+            ratio = last / previous
+            error = 2 * last / (1 - ratio) if ratio < 1 else 10 * max(last, previous)
+            warning = f"the ladder did not converge geometrically (ratio {ratio:.2f} of its last two changes); its error bar is widened"
+        return Extrapolation(
+            value=float(y[-1]),
+            error=float(max(error, floor)),
+            model="finest value + geometric tail bound",
+            steps=tuple(float(s) for s in steps),
+            values=tuple(y.tolist()),
+            parameters={"last_change": float(last), "previous_change": float(previous)},
+            warning=warning,
         )

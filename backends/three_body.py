@@ -15,7 +15,9 @@ The mesh adapts to g: radial elements graded geometrically toward rho = 0 below 
 angular shape, up to R where the highest wanted level's Gaussian tail is below 1e-18; for g < 0 the
 angular mesh is graded around the ray on the bound pair's width 1/(3 |lambda|) (at rho ~ 3).
 
-Error bars. The mesh is fixed and p runs over a ladder (order - (ladder - 1) step, ..., order); the
+Error bars. The mesh is fixed and p runs over a ladder (order - (ladder - 1) step, ..., order), solved
+by the shared convergence ladder (``ladder.run_ladder``, levels followed by relative parity and rank)
+with the ``extrapolation.GeometricTail`` model: the
 spaces are nested, so each level decreases monotonically to its limit (min-max principle). With
 differences d_prev, d_last of the last three rungs, convergence at a ratio r = d_last/d_prev <= 1/2
 leaves at most d_last r/(1 - r) <= d_last below the finest value: the bar is d_last; slower
@@ -44,7 +46,9 @@ import numpy as np
 from ..problems.exact.oscillator import hermite_function
 from ..problems.spec import Problem
 from .base import Backend, Capabilities, Parameter, SolverError, Support
+from .extrapolation import GeometricTail
 from .jacobi_plane import QuarterPlane, RelativeSolution, angular_nodes, jacobi_angle, radial_nodes
+from .ladder import Rung, RungLevel, run_ladder
 from .result import Observable, Solution
 
 ROUNDING_FLOOR = 1e-12  # relative to max(1, |value|): scatter of converged Ritz values, measured ~1e-13
@@ -66,19 +70,6 @@ class RelativeLevel:
     plane: QuarterPlane  # finest discretization and its solution, for observables
     solution: RelativeSolution
     index: int
-
-
-def ladder_error(values: np.ndarray) -> tuple[float, bool]:
-    """Error bar of the last entry of a p-ladder (coarse -> fine) and whether convergence was geometric."""
-    values = np.asarray(values, dtype=float)
-    floor = ROUNDING_FLOOR * max(1.0, abs(values[-1]))
-    last, previous = abs(values[-1] - values[-2]), abs(values[-2] - values[-3])
-    if last <= floor or last <= 0.5 * previous:
-        return max(last, floor), True
-    ratio = last / previous
-    if ratio < 1:
-        return max(2 * last / (1 - ratio), floor), False
-    return max(10 * max(last, previous), floor), False
 
 
 def outer_radius(energy: float) -> float:
@@ -160,13 +151,15 @@ class ThreeBodyBackend(Backend):
         # contact lines binds at most -mu g^2 with half the kinetic energy, so E_rel >= -2 lambda^2
         sigma = 1.5 if lam >= 0 else -2.0 * lam * lam - 1.0
         orders = [params["order"] - k * params["step"] for k in range(params["ladder"] - 1, -1, -1)]
+        model = GeometricTail(rounding=ROUNDING_FLOOR)
         levels: list[RelativeLevel] = []
         dimensions = []
         ladders = {}
         for parity in RELATIVE_PARITIES:
-            runs = []
-            for order in orders:
-                plane = QuarterPlane(alpha, lam, parity, order, radial, angular)
+            runs: list[RelativeSolution] = []
+
+            def solve_rung(order: float, final: bool, parity: int = parity, runs: list = runs) -> Rung:
+                plane = QuarterPlane(alpha, lam, parity, int(order), radial, angular)
                 shift = sigma
                 if len(runs) >= 2:
                     # a shift close below the levels makes shift-invert converge in few iterations; the
@@ -178,31 +171,44 @@ class ThreeBodyBackend(Backend):
                 if run.energies[0] < shift:  # a level below the shift: the guess failed, use the bound
                     run = plane.lowest(count, sigma)
                 runs.append(run)
-            dimensions.append(runs[-1].dimension)
-            energies = np.array([run.energies for run in runs])
-            ladders[f"relative_parity_{parity:+d}"] = energies.T.tolist()  # per level, coarse -> fine
+                return Rung(
+                    step=order,
+                    levels={
+                        k: RungLevel(
+                            energy=float(run.energies[k]),
+                            scalars={"ray_density": float(run.ray_density[k]), "rho_squared": float(run.rho_squared[k])},
+                            payload=(plane, run, k),
+                        )
+                        for k in range(len(run.energies))
+                    },
+                    diagnostics={"dimension": run.dimension},
+                )
+
+            ladder = run_ladder(orders, solve_rung, model, keep=count, floor=ROUNDING_FLOOR, scalar_floor=ROUNDING_FLOOR)
+            dimensions.append(ladder.final.diagnostics["dimension"])
+            energies = np.array(ladder.diagnostics()["raw_energies"])  # [rung][level], coarse -> fine
+            ladders[f"relative_parity_{parity:+d}"] = energies.T.tolist()
             if np.any(np.diff(energies, axis=0) > 1e-9 * np.maximum(1.0, np.abs(energies[1:]))):
                 raise SolverError(
                     f"{self.name}: a level rose with the polynomial order (min-max principle violated);"
                     f" energies along the ladder {energies.tolist()}"
                 )
-            for k in range(energies.shape[1]):
-                error, converged = ladder_error(energies[:, k])
-                ray = np.array([run.ray_density[k] for run in runs])
-                rho2 = np.array([run.rho_squared[k] for run in runs])
+            for rank, key in enumerate(ladder.keys):
+                suffix = "" if rank == 0 else f"@{rank}"
+                plane, solution, index = ladder.final.levels[key].payload
                 levels.append(
                     RelativeLevel(
-                        energy=float(energies[-1, k]),
-                        error=error,
+                        energy=ladder.energies[rank],
+                        error=ladder.energy_errors[rank],
                         parity=parity,
-                        ray_density=float(ray[-1]),
-                        ray_density_error=ladder_error(ray)[0],
-                        rho_squared=float(rho2[-1]),
-                        rho_squared_error=ladder_error(rho2)[0],
-                        converged=converged,
+                        ray_density=ladder.scalars["ray_density" + suffix],
+                        ray_density_error=ladder.scalar_errors["ray_density" + suffix],
+                        rho_squared=ladder.scalars["rho_squared" + suffix],
+                        rho_squared_error=ladder.scalar_errors["rho_squared" + suffix],
+                        converged=ladder.energy_fits[rank].get("warning") is None,
                         plane=plane,
-                        solution=runs[-1],
-                        index=k,
+                        solution=solution,
+                        index=index,
                     )
                 )
         info = {

@@ -9,7 +9,14 @@ import numpy as np
 import pytest
 from scipy import optimize, stats
 
-from trapbench.backends.extrapolation import DiscardedWeightLinear, DriftingPowerLaw, PolynomialModel, fit_line, fit_linear
+from trapbench.backends.extrapolation import (
+    DiscardedWeightLinear,
+    DriftingPowerLaw,
+    GeometricTail,
+    PolynomialModel,
+    fit_line,
+    fit_linear,
+)
 from trapbench.backends.ladder import Rung, RungLevel, rank_keys, run_ladder
 
 
@@ -94,6 +101,31 @@ def test_drifting_power_law_covers_its_limit_and_flags_a_turning_ladder():
     assert flagged.value == turning[-1]
     assert flagged.error == pytest.approx(0.05 + 0.01 + 0.005)  # total variation along the ladder
     assert "turned around" in flagged.warning
+
+
+@pytest.mark.parametrize("ratio", [0.1, 0.3, 0.45])
+def test_geometric_tail_bounds_the_remainder_of_a_fast_ladder(ratio):
+    # E_k = E_inf + A r^k: the remainder A r^K is d_last r / (1 - r) <= d_last for r <= 1/2
+    limit, amplitude = -1.25, 0.8
+    values = [limit + amplitude * ratio**k for k in range(4)]
+    fit = GeometricTail()(range(4), values)
+    assert fit.value == values[-1] and fit.warning is None
+    assert abs(values[-1] - limit) <= fit.error
+    assert fit.error == pytest.approx(values[-2] - values[-1])
+
+
+def test_geometric_tail_widens_and_warns_when_convergence_is_slow():
+    limit = 2.0
+    slow = [limit + 1.0 / (k + 1) for k in range(5)]  # algebraic: last ratio 0.6
+    fit = GeometricTail()(range(5), slow)
+    assert fit.warning and "did not converge geometrically" in fit.warning
+    assert fit.error == pytest.approx(2 * 0.05 / 0.4) and abs(slow[-1] - limit) <= fit.error
+    growing = [limit, limit - 0.05, limit - 0.2]  # ratio 3: no tail bound, ten times the larger change
+    assert GeometricTail()(range(3), growing).error == pytest.approx(1.5)
+    converged = [limit + 1e-15, limit, limit]
+    assert GeometricTail(rounding=1e-12)(range(3), converged).error == pytest.approx(2e-12)
+    with pytest.raises(ValueError, match="3 rungs"):
+        GeometricTail()(range(2), slow[:2])
 
 
 def test_discarded_weight_model_is_linear_and_exact_without_truncation():
