@@ -288,6 +288,19 @@ def build(rows: Iterable[Mapping[str, Any]], version: str = DATASET_VERSION) -> 
     return Dataset(version, created, tuple(entries), RULE_TEXT, UNITS)
 
 
+def merge(existing: Dataset, update: Dataset) -> Dataset:
+    """``update``'s entries over ``existing``'s: a grid point measured anew replaces the old entry, every other is kept.
+
+    A sweep of part of the grid (say the N = 4 points) thus adds to the shipped file instead of erasing the rest.
+    The result carries ``update``'s version and creation time.
+    """
+    entries = {entry.key: entry for entry in existing.entries}
+    entries.update({entry.key: entry for entry in update.entries})
+    order = {problem_key(point): k for k, point in enumerate(p for problem in dataset_problems() for p in problem.points())}
+    ordered = sorted(entries.values(), key=lambda e: order.get(e.key, len(order)))
+    return Dataset(update.version, update.created, tuple(ordered), update.rule, update.units)
+
+
 def summary_rows(dataset: Dataset) -> list[dict[str, Any]]:
     """One row per level: where it stands against the uncertainty goal of its particle number."""
     rows = []

@@ -95,6 +95,22 @@ def test_the_build_command_writes_a_versioned_file(tmp_path):
     assert main(["dataset", "--store", str(tmp_path / "missing.sqlite")]) == 2
 
 
+def test_a_partial_build_merges_into_the_existing_file_without_losing_points():
+    three = dataset.build([row("three-body", 4.1, 1e-9, n=(2, 1), g=2.0)])
+    first = dataset.build([row("oscillator-ed", 10.0, 2e-4), row("lattice-ed", 10.0001, 3e-4)])
+    assert [e.key for e in three.entries] != [e.key for e in first.entries]
+    merged = dataset.merge(three, first)
+    assert {e.key for e in merged.entries} == {three.entries[0].key, first.entries[0].key}
+    # grid order: 2+1 points come before 2+2 points
+    assert [(e.n_up, e.n_down) for e in merged.entries] == [(2, 1), (2, 2)]
+    # a point measured anew replaces the old entry
+    again = dataset.build([row("oscillator-ed", 10.0, 2e-4), row("lattice-ed", 10.5, 3e-4)])
+    remerged = dataset.merge(merged, again)
+    assert len(remerged.entries) == 2
+    assert remerged.index[first.entries[0].key].levels[0].status == "open"
+    assert remerged.index[three.entries[0].key].levels[0].value == 4.1
+
+
 def _shipped():
     loaded = dataset.load()
     if not loaded.entries:
