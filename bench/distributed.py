@@ -29,6 +29,7 @@ from .suite import Task
 
 LOCAL_CLUSTER_OPTIONS = {"threads_per_worker": 1, "processes": True, "dashboard_address": None}
 POLL_S = 1.0
+QUERY_TIMEOUT_S = 10.0  # a scheduler that does not answer a worker count within this is counted as gone
 STALL_MARGIN_S = 120.0
 
 
@@ -47,8 +48,8 @@ def local_cluster(workers: int):
 
 def _worker_count(client) -> int:
     try:
-        return len(client.nthreads())
-    except Exception:  # the scheduler itself is gone: as good as no worker
+        return len(client.nthreads(callback_timeout=QUERY_TIMEOUT_S))
+    except Exception:  # the scheduler itself is gone or silent: as good as no worker
         return 0
 
 
