@@ -18,6 +18,8 @@ quantum number).
 
 from __future__ import annotations
 
+import contextlib
+
 import logging
 import math
 from typing import Any
@@ -131,7 +133,13 @@ class LatticeDMRGBackend(Backend):
         Parameter("max_sweeps", int, 40, "sweep limit per bond dimension", minimum=2),
         Parameter("tolerance", float, 1e-10, "stop sweeping when |dE| / max(|E|, 1) falls below this", minimum=0.0),
         Parameter("mixer", bool, False, "subspace expansion (slows convergence on fine grids)"),
-        Parameter("threads", int, 1, "BLAS threads", minimum=1),
+        Parameter(
+            "threads",
+            int,
+            None,
+            "BLAS threads inside the solve; default: the run's limit (--blas-threads, 1 unless raised)",
+            minimum=1,
+        ),
         Parameter(
             "max_sites",
             int,
@@ -164,7 +172,9 @@ class LatticeDMRGBackend(Backend):
         chis = tuple(int(c) for c in params["chi"])
         if not chis or any(c < 1 for c in chis) or list(chis) != sorted(set(chis)):
             raise SpecError("param.chi", f"got {list(params['chi'])}; give distinct positive bond dimensions, ascending")
-        with threadpool_limits(params["threads"]):
+        # the executor already limits the pools to the run's --blas-threads; only an explicit value overrides it
+        limit = threadpool_limits(params["threads"]) if params["threads"] else contextlib.nullcontext()
+        with limit:
             return lattice.solve_continuum_ladder(
                 problem,
                 self.ladder(problem, params),

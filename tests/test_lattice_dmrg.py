@@ -152,3 +152,21 @@ def test_dmrg_fits_its_default_ladder_to_max_sites_and_refuses_only_without_a_us
     assert BACKEND.supports(problem, BACKEND.resolve_params({}))
     refusal = BACKEND.supports(problem, BACKEND.resolve_params({"max_sites": 20}))
     assert not refusal and "max_sites" in refusal.reason
+
+
+def test_the_runs_blas_thread_limit_reaches_the_solve_unless_threads_is_given(monkeypatch):
+    from threadpoolctl import threadpool_info
+
+    from trapbench.bench.executor import Limits, execute
+
+    seen = []
+
+    def record_pools(*args, **kwargs):
+        seen.append({pool["num_threads"] for pool in threadpool_info() if pool["user_api"] == "blas"})
+        raise RuntimeError("pools recorded")
+
+    monkeypatch.setattr(lattice, "solve_continuum_ladder", record_pools)
+    problem = Problem.create(1, 1, 1.0)
+    execute(LatticeDMRGBackend(), problem, {}, limits=Limits(blas_threads=2))
+    execute(LatticeDMRGBackend(), problem, {"threads": 1}, limits=Limits(blas_threads=2))
+    assert seen == [{2}, {1}]
