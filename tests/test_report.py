@@ -178,17 +178,22 @@ def test_agreement_tables_hold_the_stored_energies_and_busch_reference(built):
 
 def test_method_map_names_the_exact_two_body_solution_for_n2(built):
     table = pd.read_csv(built["output"] / "tables" / "method_map.csv")
-    row = table[(table["N"] == 2) & (table["mass ratio"] == "1")].iloc[0]
-    # two-body ran the three g of "1+1 scan"; the group also holds perturbative's 1+1 at g = -0.1, which
-    # first order misses by O(g^2) ~ 1e-3 relative
-    assert row["backend at 1e-05"] == "two-body (3 of 4)"
-    assert "perturbative" not in str(row["also reaching 1e-05"])
+    n2 = table[(table["N"] == 2) & (table["mass ratio"] == "1")]
+    assert set(n2["g regime"]) == {"weak", "attractive"}  # g = 0, 1, 3 and g = -0.1: the advisor's regimes
+    assert sorted(n2["target"].unique()) == [1e-6, 1e-5, 1e-4, 1e-3, 1e-2]
+    row = n2[(n2["g regime"] == "weak") & (n2["target"] == 1e-5)].iloc[0]
+    # two-body ran the three g of "1+1 scan", all weak; it reaches 1e-5 on each
+    assert row["backend"] == "two-body"
     stored = built["frame"]
     runs = stored[(stored["backend"] == "two-body") & (stored["n_up"] == 1) & (stored["mass_up"] == 1.0)
                   & (stored["state"] == 0)]
     # the map's cost is the largest over the problems of the cheapest run: a stored CPU time
     per_problem = runs.groupby("problem_key")["solve_cpu_s"].min()
-    assert row["CPU s at 1e-05"] == pytest.approx(per_problem.max(), rel=1e-9)
+    assert row["CPU s"] == pytest.approx(per_problem.max(), rel=1e-9)
+    assert row["peak MiB"] > 0
+    # the attractive group holds only perturbative's 1+1 at g = -0.1, which first order misses by O(g^2) ~ 1e-3
+    attractive = n2[(n2["g regime"] == "attractive") & (n2["target"] == 1e-5)].iloc[0]
+    assert attractive["backend"] == "none" and attractive["problems"] == 1
 
 
 def test_calibration_and_verdicts_are_reported(built):

@@ -160,9 +160,10 @@ def test_tables_method_map_and_advice_never_count_an_unverified_result():
     assert list(table["verdict"]) == [REACHED, REACHED]
     assert list(table["params"]) == ["cutoff=10", "cutoff=20"]  # the cheapest run below each threshold
 
-    loose_map, tight_map = method_map(loose).iloc[0], method_map(tight).iloc[0]
-    assert loose_map["backend at 1e-03"] == "none" and loose_map["unverified at 1e-03"] == "ladder"
-    assert tight_map["backend at 1e-05"] == "ladder" and tight_map["CPU s at 1e-05"] == 2.0
+    loose_map, tight_map = method_map(loose).set_index("target"), method_map(tight).set_index("target")
+    assert loose_map.loc[1e-3, "backend"] == "none" and loose_map.loc[1e-3, "unverified"] == "ladder"
+    assert tight_map.loc[1e-5, "backend"] == "ladder" and tight_map.loc[1e-5, "CPU s"] == 2.0
+    assert tight_map.loc[1e-5, "peak MiB"] == 2.0  # the cheapest run below 1e-5 is the second: 2 MiB
 
     query = Query(2, 1, g=20.0, accuracy=1e-4)
     refused = advise(loose, query)
@@ -179,8 +180,9 @@ def test_miscalibrated_backend_is_flagged_in_the_map_and_ranked_last_by_advise()
     frame = pd.concat([stored_frame([(4.0 + 1e-6, 1e-7)], backend="overconfident"),
                        stored_frame([(4.0 + 1e-6, 1e-6)], backend="honest").assign(solve_cpu_s=5.0)])
     frame = attach_references(frame.reset_index(drop=True), LooseOrTight(4.0, 0.0))
-    row = method_map(frame).iloc[0]
-    assert row["backend at 1e-03"] == "overconfident"  # the map still names the cheapest that reached it ...
+    row = method_map(frame).set_index("target").loc[1e-3]
+    assert row["backend"] == "overconfident"  # the map still names the cheapest that reached it ...
+    assert row["runner-up"] == "honest" and row["runner-up CPU s"] == 5.0
     assert row["error bars below 95 % at 2 sigma"] == "overconfident (0/1 = 0 %)"  # ... and flags its error bars
     advice = advise(frame, Query(2, 1, g=20.0, accuracy=1e-4))
     assert [r.backend for r in advice.recommendations] == ["honest"]  # a flagged backend is never recommended

@@ -13,7 +13,7 @@ from ..tables import successful_ground_states
 from ..verdicts import REACHED, UNVERIFIED, error_bar_calibration, judge_frame, poorly_calibrated
 from .figures import mass_ratio, ratio_text
 
-MAP_TARGETS = (1e-3, 1e-5)
+MAP_TARGETS = (1e-2, 1e-3, 1e-4, 1e-5, 1e-6)
 SCALING_ACCURACY = 1e-3
 SCALING_MAX_STATES = 4
 
@@ -28,52 +28,69 @@ def calibration(frame: pd.DataFrame) -> pd.DataFrame:
 
 
 def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) -> pd.DataFrame:
-    """The backend to use for each relative error, per particle number N and mass ratio m_up/m_down.
+    """The backend to use, per particle number N, mass ratio m_up/m_down, g regime and relative-error target.
 
-    For each backend and single-g problem of the group, the cheapest stored run (solve CPU time) that
-    reached the target (``verdicts``). The backend named is the one that reached it on the most
-    problems of the group (ties: the cheaper), "k of M" saying how many when not all; its cost is the
-    largest over those problems of the cheapest qualifying run. The other backends that reached the
-    target are listed with their counts, then those whose results there are unverified (no reference
-    ten times tighter than the target). The last column names the backends whose error bars at this N
-    cover |E - ref| at 2 sigma in fewer than 95 % of the checked results.
+    One row per (N, mass ratio, g regime, target); the g regimes are the advisor's (``advisor.g_regime``:
+    attractive g < 0, weak 0 <= g <= 3, strong g > 3). For each backend and single-g problem of the group,
+    the cheapest stored run (solve CPU time) that reached the target (``verdicts``). Backends are ranked by
+    the number of problems of the group on which they reached it, then by cost: the first is named with
+    its cost (the largest over those problems of the cheapest qualifying run) and the peak memory of those
+    runs, the second as the runner-up; "k of M" says on how many problems when not on all. Then the
+    backends whose results there are unverified (no reference ten times tighter than the target), and
+    those whose error bars at this N cover |E - ref| at 2 sigma in fewer than 95 % of the checked results.
     """
+    from ..advisor import g_regime
+
     ok = successful_ground_states(frame)
+    columns = ["N", "N_up+N_down", "mass ratio", "g regime", "problems", "target", "backend", "CPU s", "peak MiB",
+               "runner-up", "runner-up CPU s", "unverified", "error bars below 95 % at 2 sigma"]
     if ok.empty:
-        return pd.DataFrame(columns=["N", "N_up+N_down", "mass ratio", "problems"])
-    ok = ok.assign(n=ok["n_up"] + ok["n_down"], ratio=[mass_ratio(r) for r in ok.to_dict("records")])
+        return pd.DataFrame(columns=columns)
+    ok = ok.assign(n=ok["n_up"] + ok["n_down"], ratio=[mass_ratio(r) for r in ok.to_dict("records")],
+                   regime=[g_regime(float(g)) for g in ok["g"]])
     flagged = poorly_calibrated(calibration(frame))
+    regime_order = {"attractive": 0, "weak": 1, "strong": 2}
     rows = []
-    for (n, ratio), group in ok.groupby(["n", "ratio"]):
+    groups = sorted(ok.groupby(["n", "ratio", "regime"]), key=lambda item: (item[0][0], item[0][1], regime_order[item[0][2]]))
+    for (n, ratio, regime), group in groups:
         total = group["problem_key"].nunique()
-        row = {"N": int(n), "N_up+N_down": ", ".join(sorted({f"{a}+{b}" for a, b in zip(group["n_up"], group["n_down"])})),
-               "mass ratio": ratio_text(float(ratio)), "problems": total}
+        flags = ", ".join(f"{backend} ({share})" for (backend, count), share in sorted(flagged.items())
+                          if count == n and backend in set(group["backend"]))
         for target in targets:
             status = judge_frame(group, target)
             reaching, unverified = [], []
             for backend, runs in group.groupby("backend"):
                 good = runs[status[runs.index] == REACHED]
                 if not good.empty:
-                    cost = good.groupby("problem_key")["cost_cpu_s"].min().max()
-                    reaching.append((-good["problem_key"].nunique(), cost, backend))
+                    cheapest = good.loc[good.groupby("problem_key")["cost_cpu_s"].idxmin()]
+                    reaching.append((-good["problem_key"].nunique(), cheapest["cost_cpu_s"].max(),
+                                     cheapest["peak_mib"].max(), backend))
                 elif (status[runs.index] == UNVERIFIED).any():
                     unverified.append(backend)
             reaching.sort()
-            label = target_label(target)
 
             def named(entry) -> str:
                 count = -entry[0]
-                return entry[2] + ("" if count == total else f" ({count} of {total})")
+                return entry[3] + ("" if count == total else f" ({count} of {total})")
 
-            row[f"backend at {label}"] = named(reaching[0]) if reaching else "none"
-            row[f"CPU s at {label}"] = reaching[0][1] if reaching else None
-            row[f"also reaching {label}"] = ", ".join(named(e) for e in reaching[1:])
-            row[f"unverified at {label}"] = ", ".join(unverified)
-        row["error bars below 95 % at 2 sigma"] = ", ".join(
-            f"{backend} ({share})" for (backend, count), share in sorted(flagged.items()) if count == n
-            and backend in set(group["backend"]))
-        rows.append(row)
-    return pd.DataFrame(rows)
+            first = reaching[0] if reaching else None
+            second = reaching[1] if len(reaching) > 1 else None
+            rows.append({
+                "N": int(n),
+                "N_up+N_down": ", ".join(sorted({f"{a}+{b}" for a, b in zip(group["n_up"], group["n_down"])})),
+                "mass ratio": ratio_text(float(ratio)),
+                "g regime": regime,
+                "problems": total,
+                "target": target,
+                "backend": named(first) if first else "none",
+                "CPU s": first[1] if first else None,
+                "peak MiB": first[2] if first else None,
+                "runner-up": named(second) if second else "",
+                "runner-up CPU s": second[1] if second else None,
+                "unverified": ", ".join(unverified),
+                "error bars below 95 % at 2 sigma": flags,
+            })
+    return pd.DataFrame(rows, columns=columns)
 
 
 def agreement_by_source(frame: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:

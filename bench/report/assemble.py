@@ -35,7 +35,7 @@ def _save(figure, folder: Path, name: str) -> Path:
 
 
 def _targets_text(targets=MAP_TARGETS) -> str:
-    return " and ".join(target_label(t) for t in targets)
+    return ", ".join(target_label(t) for t in targets)
 
 
 def introduction(frame: pd.DataFrame, store, command: str | None) -> Paragraph:
@@ -54,11 +54,12 @@ def introduction(frame: pd.DataFrame, store, command: str | None) -> Paragraph:
 def method_map_section(document: Document, frame: pd.DataFrame) -> None:
     document.add(Heading(2, "Method map"), Table(
         analysis.method_map(frame),
-        "For each particle number and mass ratio m_up/m_down: the backend that reached a relative error of"
-        f" {_targets_text()} in the ground-state energy on the most stored problems of the group, the cheaper on"
-        " ties, with 'k of M' when not on all; its CPU time is the largest over those problems of the cheapest"
-        " qualifying run. Other backends that reached the target follow, then those whose results are unverified"
-        f" there (no reference within 1/{REFERENCE_MARGIN:g} of the target). The last column flags backends whose"
+        "One row per particle number, mass ratio m_up/m_down, g regime (attractive g < 0, weak 0 <= g <= 3,"
+        f" strong g > 3: the advisor's) and relative-error target ({_targets_text()}) in the ground-state energy:"
+        " the backend that reached the target on the most stored problems of the group, the cheaper on ties, with"
+        " 'k of M' when not on all; its CPU time is the largest over those problems of its cheapest qualifying run,"
+        " its memory the peak of those runs; then the runner-up by the same ranking, the backends whose results"
+        f" are unverified there (no reference within 1/{REFERENCE_MARGIN:g} of the target), and those whose"
         f" error bars cover |E - ref| at 2 sigma in fewer than {100 * COVERAGE_TARGET:.0f} % of the checked results.",
         "method_map"))
 
