@@ -25,11 +25,14 @@ import numpy as np
 
 from ..problems.exact.gauss_hermite import contact_quadrature
 from ..problems.spec import Problem
-from .base import Backend, Capabilities, SolverError
+from .base import Backend, Capabilities, SolverError, Unsupported
 from .result import Solution
 
 DEGENERACY_TOLERANCE = 1e-10
 MAX_EXCITATION_STEPS = 40
+# largest degenerate manifold diagonalized (its W matrix is built pair by pair): beyond it the ordering of
+# first-order levels is refused, never computed for minutes (4+4 at g = 10 needs manifolds of ~10^3 pairs)
+MAX_MANIFOLD_PAIRS = 1500
 
 
 def configurations(count: int, max_excitation: int) -> list[tuple[tuple[int, ...], int]]:
@@ -70,9 +73,20 @@ class PerturbativeBackend(Backend):
         ground = sum(s.omega * s.count**2 / 2 for s in problem.species)
         step = min(problem.up.omega, problem.down.omega)
         cut = 0.0
+        shifts: dict[tuple[float, int], tuple[np.ndarray, int]] = {}  # manifold -> (eigenvalues of W, size)
         while True:
             manifolds = self._manifolds(problem, cut, wanted)
-            levels = self._first_order_levels(problem, manifolds, g)
+            for key, pairs in manifolds.items():  # a manifold below the cut is complete: solved once
+                if key not in shifts:
+                    if len(pairs) > MAX_MANIFOLD_PAIRS:
+                        raise Unsupported(
+                            f"{k} first-order levels at g = {g:g} can be ordered only with the manifold at"
+                            f" {key[0] - ground:g} hbar*omega of excitation, {len(pairs)} determinant pairs (limit"
+                            f" {MAX_MANIFOLD_PAIRS}): the shift g w exceeds many level spacings, where first order"
+                            " means nothing - use an ED backend or a smaller |g|"
+                        )
+                    shifts[key] = (np.linalg.eigvalsh(self._interaction_matrix(problem, pairs)), len(pairs))
+            levels = self._first_order_levels(shifts, g)
             if len(levels) >= k:
                 # every unlisted manifold starts above ground + cut; attraction can lower it by at
                 # most |g| w, with w bounded here by the largest first-order coefficient met so far
@@ -94,21 +108,21 @@ class PerturbativeBackend(Backend):
             states=chosen,
             error_estimate=0.0 if g == 0 else None,
             warnings=warnings,
-            diagnostics={"excitation_energy_cut": cut, "manifolds": len(manifolds)},
+            diagnostics={"excitation_energy_cut": cut, "manifolds": len(shifts)},
         )
 
-    def _first_order_levels(self, problem: Problem, manifolds: dict, g: float) -> list[dict]:
-        """E0 + g w for every eigenvalue w of W in every manifold, ascending."""
+    @staticmethod
+    def _first_order_levels(shifts: dict[tuple[float, int], tuple[np.ndarray, int]], g: float) -> list[dict]:
+        """E0 + g w for every eigenvalue w of W in every manifold (E0, parity), ascending."""
         levels = []
-        for (energy0, parity), pairs in manifolds.items():
-            shifts = np.linalg.eigvalsh(self._interaction_matrix(problem, pairs))
-            for w in shifts:
-                multiplicity = int(np.sum(np.abs(shifts - w) <= DEGENERACY_TOLERANCE * max(1.0, abs(w))))
+        for (energy0, parity), (values, size) in shifts.items():
+            for w in values:
+                multiplicity = int(np.sum(np.abs(values - w) <= DEGENERACY_TOLERANCE * max(1.0, abs(w))))
                 levels.append(
                     {
                         "energy": energy0 + g * w,
                         "parity": parity,
-                        "degeneracy": multiplicity if g != 0 else len(pairs),
+                        "degeneracy": multiplicity if g != 0 else size,
                         "com": None,
                         "unperturbed_energy": energy0,
                         "first_order_coefficient": float(w),

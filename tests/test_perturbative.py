@@ -93,3 +93,18 @@ def test_says_it_is_first_order(backend):
     result = backend.solve(Problem.create(2, 1, 0.5))
     assert result.error_estimate is None
     assert any("first-order" in w for w in result.warnings)
+
+
+def test_strong_coupling_beyond_the_manifold_budget_is_refused_with_its_reason(backend, monkeypatch):
+    # 3+3 at g = 30: ordering the first-order levels needs manifolds up to 10 quanta of excitation (the
+    # lowest first-order level then has w = 0, E = 18, the fermionized energy of 3+3: six free fermions,
+    # Girardeau, J. Math. Phys. 1, 516 (1960)); with a budget of 100
+    # determinant pairs per manifold the request is refused, naming the manifold and the remedy
+    from trapbench.backends import perturbative
+    from trapbench.backends.base import Unsupported
+
+    problem = Problem.create(3, 3, 30.0)
+    assert backend.solve(problem).energies[0] == pytest.approx(18.0, abs=1e-9)
+    monkeypatch.setattr(perturbative, "MAX_MANIFOLD_PAIRS", 100)
+    with pytest.raises(Unsupported, match=r"determinant pairs \(limit 100\).*ED backend"):
+        backend.solve(problem)
