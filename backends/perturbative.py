@@ -14,6 +14,12 @@ x-integrals of four oscillator orbitals are done exactly by the Gauss-Hermite co
 ``trapbench.problems.exact.gauss_hermite`` (the integrand is a polynomial times
 exp(-x^2 (1/b_up^2 + 1/b_down^2))). The result is exact at g = 0 and
 first-order only otherwise: valid for |g| small against the level spacing.
+
+Which levels are lowest at first order is decided by widening the excitation cut one quantum at a time
+until no unlisted manifold can fall below the k-th level; each manifold's W is diagonalized once. At
+strong coupling (g w beyond many level spacings) that needs manifolds of thousands of determinant
+pairs; past ``MAX_MANIFOLD_PAIRS`` the request is refused with the manifold named (first order means
+nothing there).
 """
 
 from __future__ import annotations
