@@ -289,6 +289,16 @@ def test_command_reads_the_store_and_empty_store_says_what_to_run(built, tmp_pat
     text = (both / "report.md").read_text()
     assert text.startswith("# trapbench report: report-test + second")
     assert f"{len(set(built['keys']))} tasks" in text
+    assert f"holds every one of the suites' {len(set(built['keys']))} tasks" in text
+    # a suite whose computation is not stored: the report says it is partial and how to finish it
+    unrun = tmp_path / "unrun.toml"
+    unrun.write_text(second.read_text().replace('name = "second"', 'name = "unrun"').replace("800", "900"))
+    partial = tmp_path / "partial"
+    assert main(["report", "--suite", str(built["suite_path"]), "--suite", str(unrun), "--store", str(built["store"]),
+                 "--output", str(partial), "--from-store"]) == 0
+    text = (partial / "report.md").read_text()
+    total = len(set(built["keys"])) + 1
+    assert f"**Partial: 1 of the suites' {total} tasks have not been run yet (`trapbench report --suite" in text
     empty = tmp_path / "empty"
     code = main(["report", "--suite", str(built["suite_path"]), "--store", str(tmp_path / "none.sqlite"),
                  "--output", str(empty), "--from-store"])

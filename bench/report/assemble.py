@@ -38,7 +38,19 @@ def _targets_text(targets=MAP_TARGETS) -> str:
     return ", ".join(target_label(t) for t in targets)
 
 
-def introduction(frame: pd.DataFrame, store, command: str | None) -> Paragraph:
+def coverage_text(frame: pd.DataFrame, task_keys: set[str] | None, command: str | None) -> str:
+    """How much of the suites the store holds: a report of a partial sweep says so, with the way to finish it."""
+    if task_keys is None:
+        return ""
+    missing = len(set(task_keys) - set(frame["task_key"]))
+    if not missing:
+        return f" The store holds every one of the suites' {len(task_keys)} tasks."
+    finish = f" (`{command}` without `--from-store` runs them; stored results are kept)" if command else ""
+    return (f" **Partial: {missing} of the suites' {len(task_keys)} tasks have not been run yet{finish};"
+            " every table below covers only the stored ones.**")
+
+
+def introduction(frame: pd.DataFrame, store, command: str | None, task_keys: set[str] | None = None) -> Paragraph:
     statuses = frame.drop_duplicates("task_key")["status"].value_counts()
     return Paragraph(
         f"Generated {_dt.datetime.now(_dt.UTC).strftime('%Y-%m-%d %H:%M UTC')} from the results store"
@@ -48,7 +60,7 @@ def introduction(frame: pd.DataFrame, store, command: str | None) -> Paragraph:
         " sqrt(hbar/(m0 omega)), momenta in sqrt(hbar m0 omega). A result counts as reaching a relative error only"
         f" against a reference whose uncertainty is at most 1/{REFERENCE_MARGIN:g} of that error; otherwise it is"
         " *unverified*, shown with its own error bar, and reaches nothing. Cost is the CPU time of the solve."
-        + (f" Regenerate with `{command}`." if command else ""))
+        + (f" Regenerate with `{command}`." if command else "") + coverage_text(frame, task_keys, command))
 
 
 def method_map_section(document: Document, frame: pd.DataFrame) -> None:
@@ -206,7 +218,7 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
         return document
     # graded per backend: a method is never graded by a reference it produced (advisor.graded_frame)
     frame = graded_frame(raw, tolerance=suite.tolerance if suite is not None else None)
-    document.add(introduction(frame, store, command))
+    document.add(introduction(frame, store, command, task_keys))
     method_map_section(document, frame)
     calibration_section(document, frame)
     agreement_section(document, frame)
