@@ -196,3 +196,25 @@ def test_advice_carries_no_cost_over_from_other_masses():
     frame = attach_references(stored_frame([(4.0 + 1e-7, 1e-7)]), LooseOrTight(4.0, 0.0))
     advice = advise(frame, Query(2, 1, mass_up=20 / 3, g=20.0, accuracy=1e-4))
     assert advice.best is None and "only at other masses" in advice.rejected["ladder"]
+
+
+def test_cost_against_particle_number_keeps_unverified_costs_apart():
+    # common practice, no source: a made-up frame. N = 2 is decided by a tight reference; N = 10 has none,
+    # so its cost appears only in the own-error-bar columns, from the cheapest run whose bar is within 1e-3
+    from trapbench.bench.tables import cost_vs_particle_number_table
+
+    def row(key, n_up, rel_error, ref_unc, own, cpu):
+        return {"backend": "m", "problem_key": key, "n_up": n_up, "n_down": n_up, "status": "ok", "state": 0,
+                "rel_error": rel_error, "ref_rel_uncertainty": ref_unc, "own_rel_error": own,
+                "solve_cpu_s": cpu, "cpu_time_s": cpu, "peak_rss_bytes": 2**20 * cpu}
+
+    nan = float("nan")
+    frame = pd.DataFrame([
+        row("a", 1, 2e-4, 1e-6, 5e-4, 1.0), row("a", 1, 5e-5, 1e-6, 1e-4, 4.0),
+        row("b", 5, nan, nan, 3e-3, 10.0), row("b", 5, nan, nan, 8e-4, 50.0), row("b", 5, nan, nan, 2e-4, 90.0),
+    ])
+    table = cost_vs_particle_number_table(frame, accuracy=1e-3).set_index("n")
+    assert table.loc[2, "cpu_s"] == 1.0 and table.loc[2, "problems_reached"] == "1/1"
+    assert pd.isna(table.loc[2, "cpu_s_own_bar"])
+    assert pd.isna(table.loc[10, "cpu_s"]) and table.loc[10, "problems_unverified"] == "1/1"
+    assert table.loc[10, "cpu_s_own_bar"] == 50.0 and table.loc[10, "peak_mib_own_bar"] == 50.0

@@ -135,7 +135,8 @@ def scaling_section(document: Document, frame: pd.DataFrame, folder: Path) -> No
     scaling = cost_vs_particle_number_table(frame[analysis.benchmark_rows(frame)], accuracy=SCALING_ACCURACY)
     document.add(Table(scaling, f"Per backend and N: the cheapest stored run reaching relative error"
                        f" {target_label(SCALING_ACCURACY)}, the largest over the problems with that N; 'problems_unverified'"
-                       f" counts problems without a reference within 1/{REFERENCE_MARGIN:g} of it. Only problems asking"
+                       f" counts problems without a reference within 1/{REFERENCE_MARGIN:g} of it; for those, the '_own_bar' columns"
+                       " give the same cost over runs whose own error bar is within the target (unverified). Only problems asking"
                        f" for at most {SCALING_MAX_STATES} levels and no observables count (the figures' problems ask"
                        " for more, which costs more at any N).", "cost_vs_n"))
     reached = cost_scaling.select(scaling)
