@@ -12,6 +12,11 @@ phi_a phi_b chi_c chi_d exactly (Gauss-Hermite for oscillator orbitals), and it 
 interaction U sum_i n_{i,up} n_{i,down} (U = g/a) with points = sites, w_q = a and
 phi_a(x_q) = delta_aq / sqrt(a).
 
+Any other up-down two-body operator (e.g. an effective interaction tensor V[a, b, c, d], up c -> a,
+down d -> b) enters as interaction factors (``InteractionFactors``): V = sum_k O_up(A_k) O_down(B_k)
+with orbital matrices A_k, B_k (by SVD of V reshaped to (ac), (bd)); the same kernels apply
+g sum_k O_up(A_k) Psi O_down(B_k)^T, the quadrature form being the case A_q = w_q phi(x_q) phi(x_q)^T.
+
 Building blocks (all vectorised over configurations; loops run at most over orbital pairs,
 quadrature points or basis blocks):
 
@@ -24,7 +29,8 @@ quadrature points or basis blocks):
   configurations grouped by energy and down configurations sorted by energy is such a union
   ("staircase"); so is one parity sector when orbitals have definite parity.
 - ``ProductHamiltonian``: the matrix-free H acting on the padded coefficient matrix Psi[i_up, i_down]:
-  H Psi = h_up Psi + Psi h_down^T + g sum_q w_q D_up(q) Psi D_down(q)^T (masked to the basis),
+  H Psi = h_up Psi + Psi h_down^T + g sum_q w_q D_up(q) Psi D_down(q)^T (masked to the basis), or
+  with ``InteractionFactors`` g sum_k O_up(A_k) Psi O_down(B_k)^T,
   with a diagonal fast path when every D(q) is diagonal (lattice) and parity folding of the points
   q, -q when orbitals have definite parity. ``as_linear_operator``, ``to_dense``.
 - ``parity_isometry``: the sector +-1 of a parity given as an orbital map with phases, for bases
@@ -293,6 +299,62 @@ class ContactFactorization:
     parity_down: np.ndarray | None = None
 
 
+def _one_body(space: FockSpace, hops: Hops, matrix: np.ndarray) -> sp.csr_matrix:
+    """sum_ab matrix[a, b] c+_a c_b from the space's precomputed hops (zero entries dropped)."""
+    data = hops.sign * np.asarray(matrix)[hops.a, hops.b]
+    keep = data != 0
+    return sp.csr_matrix((data[keep], (hops.target[keep], hops.source[keep])), shape=(space.dim, space.dim))
+
+
+@dataclass(frozen=True)
+class InteractionFactors:
+    """A general up-down two-body operator as a sum of products of one-body operators,
+
+        V = sum_k O_up(A_k) O_down(B_k),   O_s(A) = sum_ac A[a, c] c+_{s,a} c_{s,c},
+
+    i.e. the tensor V[a, b, c, d] = sum_k A_k[a, c] B_k[b, d] (up c -> a, down d -> b). The engine then
+    applies g sum_k O_up(A_k) Psi O_down(B_k)^T. ``from_tensor`` factorizes a tensor by SVD.
+    """
+
+    up: tuple
+    down: tuple
+
+    @classmethod
+    def from_tensor(
+        cls, tensor: np.ndarray, parity_up: np.ndarray | None = None, parity_down: np.ndarray | None = None,
+        tolerance: float = 1e-14,
+    ) -> InteractionFactors:
+        """SVD of X[(a, c), (b, d)] = V[a, b, c, d]; singular values below ``tolerance`` x the largest are
+        dropped (the operator-norm error of the dropped part is at most that bound times the number
+        dropped). With orbital parities given (V conserving parity: (-1)^(a+c) = (-1)^(b+d), up to entries
+        below the same bound, which are dropped), the even and odd blocks are factorized apart so that every factor has definite parity (sparser operators)."""
+        tensor = np.asarray(tensor, dtype=float)
+        m_u, m_d = tensor.shape[0], tensor.shape[1]
+        x = tensor.transpose(0, 2, 1, 3).reshape(m_u * m_u, m_d * m_d)
+        largest = np.abs(x).max() if x.size else 0.0
+        if parity_up is None or parity_down is None:
+            blocks = [(np.ones(m_u * m_u, bool), np.ones(m_d * m_d, bool))]
+        else:
+            pu = np.outer(parity_up, parity_up).ravel()
+            pd = np.outer(parity_down, parity_down).ravel()
+            if np.any(np.abs(x[np.not_equal.outer(pu, pd)]) > tolerance * largest):
+                raise ValueError("the tensor does not conserve the given parities")
+            blocks = [(pu == s, pd == s) for s in (+1, -1)]
+        ups, downs = [], []
+        for rows, cols in blocks:
+            if not largest:
+                break
+            u, sigma, vt = np.linalg.svd(x[np.ix_(rows, cols)], full_matrices=False)
+            for k in np.nonzero(sigma > tolerance * largest)[0]:
+                a = np.zeros(m_u * m_u)
+                a[rows] = u[:, k] * sigma[k]
+                b = np.zeros(m_d * m_d)
+                b[cols] = vt[k]
+                ups.append(a.reshape(m_u, m_u))
+                downs.append(b.reshape(m_d, m_d))
+        return cls(tuple(ups), tuple(downs))
+
+
 def _density_operator(space: FockSpace, values: np.ndarray, pair_parity: np.ndarray | None, sector: int):
     """D(q) = sum_ab phi_a(x_q) phi_b(x_q) c+_a c_b for one point (values = phi(x_q), length M),
     keeping only orbital pairs whose parity product equals ``sector`` when ``pair_parity`` is given.
@@ -328,7 +390,7 @@ class ProductHamiltonian:
         h_up: np.ndarray,
         h_down: np.ndarray,
         g: float,
-        contact: ContactFactorization | None,
+        contact: ContactFactorization | InteractionFactors | None,
         terms_per_chunk: int | None = None,
     ):
         self.basis = basis
@@ -344,7 +406,9 @@ class ProductHamiltonian:
             self._h_down_t = basis.down.one_body(h_down).T.tocsr()
         self._interaction_diag = None
         self._chunks: list = []
-        if contact is not None and self.g != 0.0:
+        if isinstance(contact, InteractionFactors) and self.g != 0.0:
+            self._prepare_factors(contact, terms_per_chunk)
+        elif contact is not None and self.g != 0.0:
             self._prepare_contact(contact, terms_per_chunk)
         mask = np.zeros(n_u * n_d, bool)
         mask[basis.flat] = True
@@ -378,20 +442,37 @@ class ProductHamiltonian:
                     terms.append((w[q], vu[q], vd[q], +1))
         else:
             terms = [(w[q], vu[q], vd[q], 0) for q in range(len(x))]
+
+        def operators(weight, ru, rd, sector):
+            pu = c.parity_up if sector else None
+            pd = c.parity_down if sector else None
+            return (
+                weight * _density_operator(self.basis.up, ru, pu, sector),
+                _density_operator(self.basis.down, rd, pd, sector),
+            )
+
+        self._prepare_terms([lambda t=t: operators(*t) for t in terms], per_chunk)
+
+    def _prepare_factors(self, f: InteractionFactors, per_chunk: int) -> None:
+        """Terms O_up(A_k) (x) O_down(B_k), each a one-body operator of its species (``FockSpace.one_body``)."""
+        up, down = self.basis.up, self.basis.down
+        hops_up, hops_down = up.hops(), down.hops()
+        self._prepare_terms(
+            [lambda a=a, b=b: (_one_body(up, hops_up, a), _one_body(down, hops_down, b)) for a, b in zip(f.up, f.down)],
+            per_chunk,
+        )
+
+    def _prepare_terms(self, terms: list, per_chunk: int | None) -> None:
+        """Stack the terms' operators chunk by chunk for the kernels; ``terms`` are callables returning
+        (up operator, down operator), built only when their chunk is (bounded memory)."""
         n_u, n_d = self.basis.shape
         if per_chunk is None:
             per_chunk = max(1, min(len(terms), int(SCRATCH_ELEMENTS // max(1, n_u * n_d))))
         for start in range(0, len(terms), per_chunk):
-            chunk = terms[start : start + per_chunk]
-            ups, downs = [], []
-            for weight, ru, rd, sector in chunk:
-                pu = c.parity_up if sector else None
-                pd = c.parity_down if sector else None
-                ups.append(weight * _density_operator(self.basis.up, ru, pu, sector))
-                downs.append(_density_operator(self.basis.down, rd, pd, sector))
-            k = len(chunk)
-            down_stack = sp.vstack(downs).tocsc()  # (K n_d) x n_d: column j holds rows k*n_d + j'
-            up_stack = sp.hstack(ups).tocsr()  # n_u x (K n_u): row i holds columns k*n_u + i'
+            pairs = [term() for term in terms[start : start + per_chunk]]
+            k = len(pairs)
+            down_stack = sp.vstack([d for _, d in pairs]).tocsc()  # (K n_d) x n_d: column j holds rows k*n_d + j'
+            up_stack = sp.hstack([u for u, _ in pairs]).tocsr()  # n_u x (K n_u): row i holds columns k*n_u + i'
             for m in (down_stack, up_stack):
                 m.sum_duplicates()
             # renumber up columns to i'*K + k: the scratch T[i', k*n_d + j] is then read row by row
@@ -399,7 +480,7 @@ class ProductHamiltonian:
                 (up_stack.data, (up_stack.indices % n_u) * k + up_stack.indices // n_u, up_stack.indptr),
                 shape=up_stack.shape,
             )
-            self._chunks.append((len(chunk), down_stack, up_stack))
+            self._chunks.append((k, down_stack, up_stack))
         rows_c0 = np.zeros(n_u, np.int64)
         rows_c1 = np.zeros(n_u, np.int64)
         for r0, r1, c0, c1 in self.basis.rectangles:
