@@ -320,6 +320,25 @@ class InteractionFactors:
     down: tuple
 
     @classmethod
+    def single_hops(cls, tensor: np.ndarray, tolerance: float = 1e-14) -> InteractionFactors:
+        """A_k = the single hop c+_a c_c (one unit entry), B_k = V[a, :, c, :], for every up pair (a, c) with an
+        entry above ``tolerance`` x the largest: exact up to those entries, and cheap in the engine, which
+        then computes only the scratch rows the hop reads (``_select_scratch_rows``)."""
+        tensor = np.asarray(tensor, dtype=float)
+        m_u = tensor.shape[0]
+        largest = np.abs(tensor).max() if tensor.size else 0.0
+        ups, downs = [], []
+        for a in range(m_u):
+            for c in range(m_u):
+                block = tensor[a, :, c, :]
+                if largest and np.abs(block).max() > tolerance * largest:
+                    hop = np.zeros((m_u, m_u))
+                    hop[a, c] = 1.0
+                    ups.append(hop)
+                    downs.append(block.copy())
+        return cls(tuple(ups), tuple(downs))
+
+    @classmethod
     def from_tensor(
         cls, tensor: np.ndarray, parity_up: np.ndarray | None = None, parity_down: np.ndarray | None = None,
         tolerance: float = 1e-14,
@@ -480,7 +499,7 @@ class ProductHamiltonian:
                 (up_stack.data, (up_stack.indices % n_u) * k + up_stack.indices // n_u, up_stack.indptr),
                 shape=up_stack.shape,
             )
-            self._chunks.append((k, down_stack, up_stack))
+            self._chunks.append(_select_scratch_rows(k, n_u, n_d, down_stack, up_stack))
         rows_c0 = np.zeros(n_u, np.int64)
         rows_c1 = np.zeros(n_u, np.int64)
         for r0, r1, c0, c1 in self.basis.rectangles:
@@ -506,12 +525,16 @@ class ProductHamiltonian:
             c0, c1 = self._row_columns
             work = np.ascontiguousarray(psi.transpose(2, 0, 1), dtype=float)  # (nv, n_u, n_d)
             result = np.zeros_like(work)
-            for k, down_stack, up_stack in self._chunks:
-                t = np.zeros((nv, n_u, k * n_d))
-                step_down(work, c0, c1, down_stack.indptr, down_stack.indices, down_stack.data, t)
-                step_up(
-                    t.reshape(nv, n_u * k, n_d), c0, c1, up_stack.indptr, up_stack.indices, up_stack.data, self.g, result
-                )
+            for k, down_stack, up_stack, selected in self._chunks:
+                if selected is None:
+                    t = np.zeros((nv, n_u, k * n_d))
+                    step_down(work, c0, c1, down_stack.indptr, down_stack.indices, down_stack.data, t)
+                    t = t.reshape(nv, n_u * k, n_d)
+                else:
+                    row_ptr, row_term, term_ptr, rows = selected
+                    t = np.zeros((nv, len(row_term), n_d))
+                    _selected_kernel()(work, c0, c1, row_ptr, row_term, term_ptr, rows, down_stack.data, t)
+                step_up(t, c0, c1, up_stack.indptr, up_stack.indices, up_stack.data, self.g, result)
             out += result.transpose(1, 2, 0)
         out[~self._mask] = 0.0
         return out
@@ -523,7 +546,7 @@ class ProductHamiltonian:
             vectors = vectors[:, None]
         dim, nv = vectors.shape
         n_u, n_d = self.basis.shape
-        terms = max((k for k, _, _ in self._chunks), default=1)
+        terms = max((k for k, _, _, _ in self._chunks), default=1)
         batch = max(1, int(SCRATCH_ELEMENTS // max(1, terms * n_u * n_d)))
         out = np.empty((dim, nv), dtype=np.result_type(vectors, float))
         for s in range(0, nv, batch):
@@ -548,7 +571,7 @@ class ProductHamiltonian:
         nonzeros; used to compare throughput with a plain scipy CSR matvec)."""
         c0, c1 = self._row_columns if self._chunks else (None, None)
         total = 0
-        for _, down_stack, up_stack in self._chunks:
+        for _, down_stack, up_stack, _ in self._chunks:
             per_col = np.diff(down_stack.indptr)
             cum = np.concatenate([[0], np.cumsum(per_col)])
             total += int(np.sum(cum[c1] - cum[c0]))
@@ -605,6 +628,61 @@ def _kernels():
 
         _KERNELS = (step_down, step_up)
     return _KERNELS
+
+
+def _select_scratch_rows(k: int, n_u: int, n_d: int, down_stack: sp.csc_matrix, up_stack: sp.csr_matrix):
+    """(k, down_stack, up_stack, selection) of one chunk.
+
+    The scratch row T[i', k] = Psi[i', :] D_k^T is needed only where some up operator U_k reads
+    configuration i' (column i' K + k of ``up_stack``). When fewer than half of them are (sparse up
+    factors, e.g. single hops c+_a c_c), only those rows are stored and computed: ``up_stack`` columns
+    are renumbered to the compact row r, and the selection holds, per i', its rows r (row_ptr) with
+    their term k (row_term), and per down column j the start of each term's entries (term_ptr[j, k]) and the down row j' of every entry.
+    """
+    needed = np.unique(up_stack.indices)
+    if len(needed) >= 0.5 * n_u * k:
+        return k, down_stack, up_stack, None
+    up_stack = sp.csr_matrix(
+        (up_stack.data, np.searchsorted(needed, up_stack.indices), up_stack.indptr), shape=(n_u, len(needed))
+    )
+    row_ptr = np.searchsorted(needed // k, np.arange(n_u + 1)).astype(np.int64)
+    row_term = (needed % k).astype(np.int64)
+    down_stack.sort_indices()
+    column = np.repeat(np.arange(n_d), np.diff(down_stack.indptr))
+    counts = np.zeros((n_d, k), np.int64)
+    np.add.at(counts, (column, down_stack.indices // n_d), 1)
+    term_ptr = np.zeros((n_d, k + 1), np.int64)
+    term_ptr[:, 0] = down_stack.indptr[:-1]
+    term_ptr[:, 1:] = down_stack.indptr[:-1, None] + np.cumsum(counts, axis=1)
+    return k, down_stack, up_stack, (row_ptr, row_term, term_ptr, (down_stack.indices % n_d).astype(np.int64))
+
+
+_SELECTED_KERNEL = None
+
+
+def _selected_kernel():
+    """step_down on selected scratch rows: T[v, r, j'] = sum_{j in cols(i')} D_k[j', j] psi[v, i', j] for the
+    rows r of configuration i' (term k = row_term[r]); D_k's entries in column j are
+    term_ptr[j, k] .. term_ptr[j, k + 1] of the stacked CSC arrays (row j' = index mod n_d)."""
+    global _SELECTED_KERNEL
+    if _SELECTED_KERNEL is None:
+        import numba
+
+        @numba.njit(cache=True)
+        def step_down_selected(psi, c0, c1, row_ptr, row_term, term_ptr, rows, data, t):
+            for v in range(psi.shape[0]):
+                for i in range(psi.shape[1]):
+                    for r in range(row_ptr[i], row_ptr[i + 1]):
+                        k = row_term[r]
+                        for j in range(c0[i], c1[i]):
+                            x = psi[v, i, j]
+                            if x == 0.0:
+                                continue
+                            for p in range(term_ptr[j, k], term_ptr[j, k + 1]):
+                                t[v, r, rows[p]] += data[p] * x
+
+        _SELECTED_KERNEL = step_down_selected
+    return _SELECTED_KERNEL
 
 
 def _is_diagonal(matrix: np.ndarray) -> bool:

@@ -282,7 +282,8 @@ def _gauss_hermite_contact(m_u: int, m_d: int, b_u: float, b_d: float):
 @pytest.mark.parametrize("counts, masses", [((2, 2), (1.0, 1.0)), ((2, 1), (1.0, 20 / 3)), ((3, 2), (1.0, 0.5))])
 def test_interaction_factors_reproduce_the_quadrature_contact(counts, masses):
     """The bare contact tensor int phi_a phi_c chi_b chi_d dx (exact Gauss-Hermite, common practice), given
-    to the engine as SVD factors, gives the quadrature form's spectrum to 1e-12 (same operator two ways)."""
+    to the engine as SVD factors or as single up hops, gives the quadrature form's matrix and spectrum to
+    1e-12 (same operator two ways)."""
     from trapbench.problems.spec import Problem
     from trapbench.backends import oscillator_ed as oe
 
@@ -291,12 +292,15 @@ def test_interaction_factors_reproduce_the_quadrature_contact(counts, masses):
     m_u, m_d = sector.n_orbitals
     b_u, b_d = sector.lengths
     contact, tensor = _gauss_hermite_contact(m_u, m_d, b_u, b_d)
-    factors = fe.InteractionFactors.from_tensor(tensor, np.array(contact.parity_up), np.array(contact.parity_down))
     h_u, h_d = np.diag(np.arange(m_u) + 0.5), np.diag(np.arange(m_d) + 0.5)
     quadrature = fe.ProductHamiltonian(sector.basis, h_u, h_d, 1.7, contact).to_dense()
-    factored = fe.ProductHamiltonian(sector.basis, h_u, h_d, 1.7, factors).to_dense()
-    assert np.abs(quadrature - factored).max() < 1e-12
-    assert np.abs(np.linalg.eigvalsh(quadrature) - np.linalg.eigvalsh(factored)).max() < 1e-12
+    for factors in (
+        fe.InteractionFactors.from_tensor(tensor, np.array(contact.parity_up), np.array(contact.parity_down)),
+        fe.InteractionFactors.single_hops(tensor),
+    ):
+        factored = fe.ProductHamiltonian(sector.basis, h_u, h_d, 1.7, factors).to_dense()
+        assert np.abs(quadrature - factored).max() < 1e-12
+        assert np.abs(np.linalg.eigvalsh(quadrature) - np.linalg.eigvalsh(factored)).max() < 1e-12
     assert np.abs(quadrature - np.diag(np.diag(quadrature))).max() > 0.1  # the interaction is really there
 
 
@@ -309,8 +313,6 @@ def test_interaction_factors_match_jordan_wigner_for_a_random_tensor():
     tensor = 0.5 * (tensor + tensor.transpose(2, 3, 0, 1))  # Hermitian: V[a, b, c, d] = V[c, d, a, b]
     up, down = fe.FockSpace(m_u, n_u), fe.FockSpace(m_d, n_d)
     basis = fe.ProductBasis.full(up, down)
-    factors = fe.InteractionFactors.from_tensor(tensor)
-    engine = fe.ProductHamiltonian(basis, np.zeros((m_u, m_u)), np.zeros((m_d, m_d)), 1.0, factors).to_dense()
     c = jordan_wigner_annihilators(m_u + m_d)
     full = sum(
         tensor[a, b, cc, d] * c[a].T @ c[cc] @ c[m_u + b].T @ c[m_u + d]
@@ -318,5 +320,7 @@ def test_interaction_factors_match_jordan_wigner_for_a_random_tensor():
     )
     states = [su + sd for su in fixed_number_states(m_u, up.occupied) for sd in fixed_number_states(m_d, down.occupied, m_u)]
     expected = full[np.ix_(states, states)]
-    assert np.abs(engine - expected).max() < 1e-12
     assert np.abs(expected).max() > 0.5
+    for factors in (fe.InteractionFactors.from_tensor(tensor), fe.InteractionFactors.single_hops(tensor)):
+        engine = fe.ProductHamiltonian(basis, np.zeros((m_u, m_u)), np.zeros((m_d, m_d)), 1.0, factors).to_dense()
+        assert np.abs(engine - expected).max() < 1e-12
