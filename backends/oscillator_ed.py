@@ -157,17 +157,22 @@ def sector_basis(
     return SectorBasis(fock_ed.ProductBasis(up, down, rect_array), (m_u, m_d), lengths, max_degree)
 
 
-def hamiltonian(problem: Problem, sector: SectorBasis, g: float) -> fock_ed.ProductHamiltonian:
+def hamiltonian(
+    problem: Problem, sector: SectorBasis, g: float, factors: fock_ed.InteractionFactors | None = None
+) -> fock_ed.ProductHamiltonian:
     """H = sum_s sum_ab (h_s)_ab c+_a c_b + g sum_q w_q rho_up(x_q) rho_down(x_q) on ``sector``;
-    h_s = omega_s (n + 1/2) in the trap's orbitals, ``oscillator_scaling.one_body_matrix`` otherwise."""
+    h_s = omega_s (n + 1/2) in the trap's orbitals, ``oscillator_scaling.one_body_matrix`` otherwise.
+    With ``factors`` (an effective interaction tensor, ``effective_factors``) the interaction is
+    g sum_k O_up(A_k) O_down(B_k) instead of the contact."""
     m_u, m_d = sector.n_orbitals
     (b_u, b_d) = sector.lengths
-    quad = ob.contact_quadrature(m_u, b_u, m_d, b_d, sector.max_degree)
-    contact = fock_ed.ContactFactorization(
-        quad.points, quad.weights, quad.values_up, quad.values_down, ob.orbital_parities(m_u), ob.orbital_parities(m_d)
-    )
+    if factors is None:
+        quad = ob.contact_quadrature(m_u, b_u, m_d, b_d, sector.max_degree)
+        factors = fock_ed.ContactFactorization(
+            quad.points, quad.weights, quad.values_up, quad.values_down, ob.orbital_parities(m_u), ob.orbital_parities(m_d)
+        )
     return fock_ed.ProductHamiltonian(
-        sector.basis, one_body_matrix(problem.up, m_u, b_u), one_body_matrix(problem.down, m_d, b_d), g, contact
+        sector.basis, one_body_matrix(problem.up, m_u, b_u), one_body_matrix(problem.down, m_d, b_d), g, factors
     )
 
 
@@ -268,6 +273,59 @@ def effective_coupling(
     return float(x), exact_slope / slope
 
 
+# ----------------------------------------------------------------------------- effective interaction
+
+EFFECTIVE_DERIVATIVE_STEP = 1e-4  # relative step of the central difference dV_eff/dg (error ~ step^2 ~ 1e-8)
+
+
+def effective_refusal(problem: Problem, kind: str, length_choice: str) -> str | None:
+    """Why the centre-of-mass-aware effective interaction cannot be built here, or None.
+
+    It needs one trap frequency (the centre of mass separates), the energy truncation (a pair's quanta
+    are then bounded, so its relative space per centre-of-mass quantum is defined) and each species in
+    its natural orbitals b_s = 1/sqrt(m_s omega) (the Talmi-Moshinsky rotation holds only there).
+    """
+    if not problem.equal_frequencies:
+        return "the effective interaction needs equal trap frequencies (omega_up = omega_down)"
+    if kind != "energy":
+        return "the effective interaction needs truncation = 'energy' (pair quanta bounded per centre-of-mass quantum)"
+    if length_choice == "optimize":
+        return "the effective interaction needs each species' trap orbitals: use basis_lengths = 'trap' or 'auto'"
+    return None
+
+
+@lru_cache(maxsize=8)
+def _effective_tensor_factors(g, mass_up, mass_down, omega, pair_quanta, n_up, n_down):
+    """V_eff as engine factors; a common omega scales as E(g, omega) = omega E(g / sqrt(omega), 1)."""
+    from .effective_interaction import pair_interaction_tensor
+
+    tensor = omega * pair_interaction_tensor(g / math.sqrt(omega), mass_up, mass_down, pair_quanta, n_up, n_down)
+    return fock_ed.InteractionFactors.single_hops(tensor)
+
+
+def effective_factors(problem: Problem, truncation: Truncation, g: float) -> fock_ed.InteractionFactors:
+    """V_eff(g) (``effective_interaction``; pair cutoff Lambda = ``pair_cutoff``, the most quanta a pair
+    holds in the basis) as engine factors on the trap orbitals of ``truncation``."""
+    from .effective_interaction import pair_cutoff
+
+    m_u, m_d = orbital_counts(problem, truncation)
+    quanta = int(math.floor(truncation.cutoff / problem.up.omega + 1e-9))
+    lam = pair_cutoff(quanta, problem.up.count, problem.down.count)
+    return _effective_tensor_factors(float(g), problem.up.mass, problem.down.mass, problem.up.omega, lam, m_u, m_d)
+
+
+def effective_derivative_factors(problem: Problem, truncation: Truncation, g: float) -> fock_ed.InteractionFactors:
+    """dV_eff/dg as the central difference (V_eff(g + h) - V_eff(g - h)) / 2h, h = 1e-4 max(1, |g|):
+    truncation error ~ h^2 |V'''| / 6 (relative ~1e-9 for V_eff smooth on the scale of g), rounding
+    ~ 1e-16 / h ~ 1e-12."""
+    step = EFFECTIVE_DERIVATIVE_STEP * max(1.0, abs(g))
+    plus, minus = effective_factors(problem, truncation, g + step), effective_factors(problem, truncation, g - step)
+    scale = 1 / (2 * step)
+    return fock_ed.InteractionFactors(
+        tuple(scale * a for a in plus.up) + tuple(-scale * a for a in minus.up), plus.down + minus.down
+    )
+
+
 # ----------------------------------------------------------------------------- one cutoff
 
 
@@ -280,9 +338,10 @@ class Level:
 
 
 def solve_cutoff(
-    problem: Problem, truncation: Truncation, g_used: float, k: int, parities, tol: float, lengths=None
+    problem: Problem, truncation: Truncation, g_used: float, k: int, parities, tol: float, lengths=None, factors=None
 ):
-    """The k lowest levels in each requested parity sector, merged and sorted.
+    """The k lowest levels in each requested parity sector, merged and sorted (interaction: the contact
+    g_used delta, or g_used times the two-body operator ``factors``).
 
     (Seeding Lanczos with the previous cutoff's eigenvector was tried: no fewer matvecs for k >= 3.)
     """
@@ -292,7 +351,7 @@ def solve_cutoff(
         sector = sector_basis(problem, truncation, parity, lengths)
         if sector.basis.dim == 0:
             continue
-        ham = hamiltonian(problem, sector, g_used)
+        ham = hamiltonian(problem, sector, g_used, factors)
         values, vectors = fock_ed.lowest_eigenpairs(ham.as_linear_operator(), min(k, sector.basis.dim), tol=tol)
         diagnostics["dimension"][parity] = sector.basis.dim
         diagnostics["matvecs"][parity] = ham.matvec_count
@@ -370,7 +429,8 @@ def cutoff_model(renormalized: bool):
 
     Renormalized interaction: E(c) = E_inf + A c^(-p) with p fitted to the last three cutoffs and
     still drifting at reachable cutoffs (``extrapolation.DriftingPowerLaw``, which also handles an
-    energy that turns around: the renormalized interaction is not variational).
+    energy that turns around: the renormalized interaction is not variational). The effective
+    interaction (``renormalized`` true here too) is not variational either and uses the same model.
     """
     if renormalized:
         return GuardedPowerLaw()
@@ -453,7 +513,16 @@ class OscillatorEDBackend(Backend):
             minimum=0,
             allow_none=True,
         ),
-        Parameter("renormalized", bool, True, "replace g by g_eff(cutoff) fixed by the exact 1+1 energy"),
+        Parameter("renormalized", bool, True, "replace g by g_eff(cutoff) fixed by the exact 1+1 energy (read when interaction = 'auto')"),
+        Parameter(
+            "interaction",
+            str,
+            "auto",
+            "two-body interaction: 'bare' (g delta), 'renormalized' (running g_eff(cutoff)), 'effective' (Okubo /"
+            " Lee-Suzuki, centre-of-mass aware, exact 1+1 spectrum in the basis; equal frequencies, energy"
+            " truncation, trap orbitals) or 'auto' (as the flag 'renormalized' says)",
+            choices=("auto", "bare", "renormalized", "effective"),
+        ),
         Parameter(
             "basis_lengths",
             str,
@@ -508,7 +577,20 @@ class OscillatorEDBackend(Backend):
         if cutoffs[0] < lowest:
             raise SpecError("param.cutoff", f"the ladder {cutoffs} goes below the smallest meaningful cutoff {lowest};"
                                             " raise cutoff or lower ladder/ladder_step")
+        if params["interaction"] == "effective":
+            refusal = effective_refusal(problem, params["truncation"], params["basis_lengths"])
+            if refusal:
+                return Support.no(refusal)
         return Support.yes()
+
+    @staticmethod
+    def interaction_kind(problem: Problem, params: dict[str, Any]) -> str:
+        """'bare', 'renormalized' or 'effective': the ``interaction`` parameter, with 'auto' read from the
+        flag ``renormalized`` (its meaning before the parameter existed); g = 0 is always bare."""
+        kind = params["interaction"]
+        if kind == "auto":
+            kind = "renormalized" if params["renormalized"] else "bare"
+        return "bare" if problem.g[0] == 0.0 else kind
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         """Solve with the BLAS thread count the caller set (trapbench's executor: ``--blas-threads``, default 1)."""
@@ -517,11 +599,12 @@ class OscillatorEDBackend(Backend):
     def _compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         kind = params["truncation"]
         cutoffs = self.cutoff_ladder(problem, params)
-        renormalized = params["renormalized"] and problem.g[0] != 0.0
+        interaction = self.interaction_kind(problem, params)
         warnings = []
-        if renormalized and not problem.equal_frequencies:
-            renormalized = False
+        if interaction == "renormalized" and not problem.equal_frequencies:
+            interaction = "bare"
             warnings.append("renormalized interaction needs equal trap frequencies; the bare g was used")
+        effective = interaction == "effective"
         g = problem.coupling
         wanted = problem.targets.states
         k = wanted + params["extra_states"]
@@ -533,12 +616,20 @@ class OscillatorEDBackend(Backend):
                 " basis_lengths = 'auto' chooses narrower orbitals"
             )
         search_cutoff = min(cutoffs[0], LENGTH_SEARCH_CUTOFF)
-        lengths, length_search = basis_lengths(problem, params["basis_lengths"], kind, search_cutoff, parities)
+        # the effective interaction is built in the trap orbitals ('auto' means them here; it binds pairs itself)
+        length_choice = "trap" if effective else params["basis_lengths"]
+        lengths, length_search = basis_lengths(problem, length_choice, kind, search_cutoff, parities)
 
         def solve_rung(c: int, final: bool) -> Rung:
             trunc = Truncation(kind, c)
-            g_used, slope = effective_coupling(problem, trunc, g, lengths) if renormalized else (g, 1.0)
-            levels, diag = solve_cutoff(problem, trunc, g_used, k, parities, params["tolerance"], lengths)
+            factors, derivative = None, None
+            if effective:
+                factors = effective_factors(problem, trunc, g)
+                derivative = lambda trunc=trunc: effective_derivative_factors(problem, trunc, g)  # noqa: E731
+            g_used, slope = effective_coupling(problem, trunc, g, lengths) if interaction == "renormalized" else (g, 1.0)
+            levels, diag = solve_cutoff(
+                problem, trunc, 1.0 if effective else g_used, k, parities, params["tolerance"], lengths, factors
+            )
             diag["g_used"] = g_used
             # degeneracy: size of the cluster (spacings < tolerance) among every level of this cutoff
             clusters = fock_ed.degeneracies([lv.energy for lv in levels], params["degeneracy_tolerance"])
@@ -547,7 +638,9 @@ class OscillatorEDBackend(Backend):
                 found[key] = RungLevel(
                     energy=lv.energy,
                     labels={"parity": lv.parity, "degeneracy": cluster, "com": None},
-                    scalars=lambda lv=lv: dict(zip(("trap_energy", "delta"), self._expectations(problem, lv, g_used, slope))),
+                    scalars=lambda lv=lv: dict(
+                        zip(("trap_energy", "delta"), self._expectations(problem, lv, g_used, slope, derivative))
+                    ),
                     payload=lv,
                 )
             return Rung(c, found, diag)
@@ -559,7 +652,7 @@ class OscillatorEDBackend(Backend):
         ladder = run_ladder(
             cutoffs,
             solve_rung,
-            cutoff_model(renormalized),
+            cutoff_model(interaction != "bare"),
             keep=wanted,
             scalar_states=params["observable_states"],
             floor=max(params["tolerance"], 1e-12),
@@ -597,7 +690,7 @@ class OscillatorEDBackend(Backend):
         if count < wanted:
             warnings.append(f"the basis holds only {count} states in the requested sector(s)")
         diagnostics = {
-            "interaction": "renormalized" if renormalized else "bare",
+            "interaction": interaction,
             "truncation": kind,
             "cutoffs": cutoffs,
             **ladder.diagnostics(),
@@ -624,19 +717,26 @@ class OscillatorEDBackend(Backend):
 
     # ------------------------------------------------------------------ observables
     @staticmethod
-    def _expectations(problem: Problem, level: Level, g_used: float, slope: float) -> tuple[float, float]:
+    def _expectations(problem: Problem, level: Level, g_used: float, slope: float, derivative=None) -> tuple[float, float]:
         """(<V_trap>, dE/dg) of one level at one cutoff.
 
         <sum delta> in the basis is <psi|H(g=1) - H(g=0)|psi> (one matvec instead of the pair tensor);
-        dE/dg = <sum delta>_trunc dg_eff/dg for the renormalized energy (slope = 1 for bare g).
+        dE/dg = <sum delta>_trunc dg_eff/dg for the renormalized energy (slope = 1 for bare g). With the
+        effective interaction (``derivative`` returns the factors of dV_eff/dg) dE/dg = <psi|dV_eff/dg|psi>
+        (Hellmann-Feynman in the truncated space).
         """
         m_u, m_d = level.sector.n_orbitals
         rho_u, rho_d = fock_ed.one_body_density_matrices(level.sector.basis, level.vector)
         vector = level.vector
-        delta_trunc = float(
-            vector @ hamiltonian(problem, level.sector, 1.0).matvec(vector)
-            - vector @ hamiltonian(problem, level.sector, 0.0).matvec(vector)
-        )
+        if derivative is None:
+            delta_trunc = float(
+                vector @ hamiltonian(problem, level.sector, 1.0).matvec(vector)
+                - vector @ hamiltonian(problem, level.sector, 0.0).matvec(vector)
+            )
+        else:
+            zero_u, zero_d = np.zeros((m_u, m_u)), np.zeros((m_d, m_d))
+            dv = fock_ed.ProductHamiltonian(level.sector.basis, zero_u, zero_d, 1.0, derivative())
+            delta_trunc = float(vector @ dv.matvec(vector))
         b_u, b_d = level.sector.lengths
         trap = fock_ed.one_body_expectation(rho_u, trap_potential_matrix(problem.up, m_u, b_u)) + fock_ed.one_body_expectation(
             rho_d, trap_potential_matrix(problem.down, m_d, b_d)
