@@ -57,8 +57,8 @@ phi_n(x; b_s), b_s = 1/sqrt(m_s) (``problems.exact.oscillator``).
    the Busch spectrum (every N and both relative parities); with lambda replaced by lambda h_n(0) h_n'(0)
    (no truncation effect) the same sum is the bare contact tensor.
 
-``pair_cutoff`` ties Lambda to the many-body energy cutoff: the most quanta one up-down pair can hold
-in the basis (spectators in their lowest configuration).
+Pair states with more than Lambda quanta get no interaction (V_eff lives in its P space only); how
+Lambda follows the many-body cutoff is the caller's choice (``oscillator_ed.effective_factors``).
 """
 
 from __future__ import annotations
@@ -159,12 +159,6 @@ def relative_effective_interaction(lam: float, n_max: int) -> np.ndarray:
 
 
 # ----------------------------------------------------------------------------- lab-frame tensor
-
-
-def pair_cutoff(energy_cutoff: int, count_up: int, count_down: int) -> int:
-    """Lambda: the most quanta an up-down pair holds in the energy-truncated basis (excitation
-    <= energy_cutoff quanta): energy_cutoff + (N_up - 1) + (N_down - 1)."""
-    return energy_cutoff + count_up + count_down - 2
 
 
 def _relative_matrices(lam: float, max_quanta: int, effective: bool):

@@ -167,10 +167,3 @@ def test_pair_in_the_truncated_basis_has_the_exact_spectrum(masses, g):
     bare = ei.pair_interaction_tensor(g, *masses, lam_max, lam_max + 1, lam_max + 1, effective=False)
     assert np.abs(pair_spectrum(bare, lam_max)[0] - exact[0]) > 1e-3  # the bare contact is not exact there
 
-
-def test_pair_cutoff_is_the_largest_pair_quanta_of_the_basis():
-    """Lambda = cutoff + N_up + N_down - 2: 2+2 with 6 quanta of excitation (ground up {0,1}, down {0,1}) lets a
-    pair hold 1 + 1 + 6 = 8 quanta with the spectators in orbital 0 (counted by hand)."""
-    assert ei.pair_cutoff(6, 2, 2) == 8
-    assert ei.pair_cutoff(6, 1, 1) == 6
-    assert ei.pair_cutoff(10, 2, 1) == 11

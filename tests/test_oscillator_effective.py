@@ -46,7 +46,7 @@ def test_pair_is_exact_at_every_cutoff(g, mass_down):
 @pytest.mark.parametrize("g", [2.0, -1.0])
 def test_three_body_converges_to_the_precision_solver(g):
     """2+1, equal masses, against ``three-body``: the error shrinks along the cutoffs 8, 16, 24 and is
-    below 2e-4 at 24 (measured 1.1e-4 at g = 2 and -7.1e-5 at g = -1), smaller than the running
+    below 2e-4 at 24 (measured 1.0e-4 at g = 2 and -8.0e-5 at g = -1), smaller than the running
     coupling's at the same cutoff (measured 4.4e-4 and -2.3e-4)."""
     problem = Problem.create(2, 1, g)
     reference = get("three-body").solve(problem).energies[0]
