@@ -42,9 +42,37 @@ equal masses; -3.3e-4 against -6.1e-4 for mass ratio 20/3 at g = 2); Lambda = cu
 contact above it -3.7e-3 (2+2); Lambda = cutoff + N_up + N_down 2.4e-3 (2+1, equal masses). Pairs
 whose spectators are excited see the same V_eff (a two-body operator cannot know them): the remaining
 error is many-body. Needs a common trap frequency, the energy truncation and the trap orbitals (``basis_lengths = 'auto'`` means them here); anything else is
-refused with the reason. <sum delta> = dE/dg = <dV_eff/dg> (Hellmann-Feynman in the truncated space;
+refused with the reason, and so is the regime where a heavy-heavy-light trimer can bind (g < 0, a pair
+species heavier than its partner): the trap orbitals cannot hold it (measured 2+1, mass ratio 20/3:
+-4.5e-3 off at cutoff 32 for g = -1, 1.76 off and outside twice its bar at g = -3). <sum delta> = dE/dg = <dV_eff/dg> (Hellmann-Feynman in the truncated space;
 dV_eff/dg by a central difference of the tensor, relative error ~1e-8). Densities and correlations are
 those of the truncated eigenvectors, not transformed back (their error is not stated separately).
+
+Measured ground-state error at single cutoffs c (``bench/benchmarks/bench_effective_interaction.py``,
+one core; 2+1 against ``three-body``, 2+2 against 5.53938, the extrapolation of these ladders, known to
+~2e-4; m = m_up/m_down, the pair's mass ratio; p fitted to |error| ~ c^-p over c = 20-32, for 2+2 from
+the successive differences; '-' where the error changes sign; CPU s of the single solve at c = 32;
+2+1 at m = 20/3, g = -1: bare and running in optimized orbitals, effective in the trap's, now refused):
+
+    case         g   interaction   c = 16    c = 24    c = 32     p    CPU s
+    2+1  m=1     2   bare         +9.5e-02  +7.6e-02  +6.5e-02  0.53    4.8
+                     renormalized +8.8e-04  +4.4e-04  +2.8e-04  1.64    3.8
+                     effective    +2.5e-04  +1.0e-04  +5.7e-05  2.08    6.2
+    2+1  m=1    -1   bare         +6.1e-02  +5.1e-02  +4.5e-02  0.44    6.4
+                     renormalized -4.7e-04  -2.3e-04  -1.4e-04  1.69    7.7
+                     effective    -2.0e-04  -8.0e-05  -4.3e-05  2.20    5.5
+    2+1  m=20/3  2   bare         +7.9e-02  +6.7e-02  +5.8e-02  0.47    4.8
+                     renormalized -2.0e-03  +4.4e-04  +6.9e-04     -    5.5
+                     effective    -4.5e-03  -6.1e-04  +1.7e-04     -    5.3
+    2+1  m=20/3 -1   bare         +8.1e-02  +6.8e-02  +6.0e-02  0.44   11.6
+                     renormalized -1.7e-04  +1.9e-05  +2.2e-05     -    9.1
+                     effective    -2.2e-02  -9.4e-03  -4.5e-03  2.43    3.3
+    2+2  m=1     2   bare         +1.9e-01  +1.5e-01  +1.3e-01  0.78   30.2
+                     renormalized +3.8e-03  +1.9e-03  +1.1e-03  1.94   34.2
+                     effective    +1.6e-03  +7.2e-04  +4.1e-04  2.11   39.7
+
+The effective ladder uses the running coupling's model (``cutoff_model``); on four-cutoff ladders of
+the 2+1 rows above all 16 extrapolations lay within twice their bars (median bar 4x the true error).
 
 Convergence: ``ladder`` cutoffs (cutoff, cutoff - step, ...) run through the shared convergence
 ladder (``backends/ladder.py``, which states how every error bar is formed): each level is followed
@@ -305,7 +333,8 @@ def effective_refusal(problem: Problem, kind: str, length_choice: str) -> str | 
 
     It needs one trap frequency (the centre of mass separates), the energy truncation (a pair's quanta
     are then bounded, so its relative space per centre-of-mass quantum is defined) and each species in
-    its natural orbitals b_s = 1/sqrt(m_s omega) (the Talmi-Moshinsky rotation holds only there).
+    its natural orbitals b_s = 1/sqrt(m_s omega) (the Talmi-Moshinsky rotation holds only there). Where a
+    heavy-heavy-light trimer can bind (``heavy_light_trimer_possible``) those orbitals fail: refused.
     """
     if not problem.equal_frequencies:
         return "the effective interaction needs equal trap frequencies (omega_up = omega_down)"
@@ -313,6 +342,12 @@ def effective_refusal(problem: Problem, kind: str, length_choice: str) -> str | 
         return "the effective interaction needs truncation = 'energy' (pair quanta bounded per centre-of-mass quantum)"
     if length_choice == "optimize":
         return "the effective interaction needs each species' trap orbitals: use basis_lengths = 'trap' or 'auto'"
+    if heavy_light_trimer_possible(problem):
+        return (
+            "a heavy-heavy-light trimer may bind here and the effective interaction needs the trap orbitals, which"
+            " cannot hold it (2+1, mass ratio 20/3, g = -3: 1.76 off with a bar of 0.73); use interaction ="
+            " 'renormalized' with basis_lengths = 'auto'"
+        )
     return None
 
 
