@@ -30,23 +30,27 @@ parameter sets mean what they meant. The effective interaction (``effective_inte
 Lee-Suzuki transformation of the exact two-body relative problem, built per centre-of-mass quantum N of
 the pair, for any masses through generalized Talmi-Moshinsky brackets; Kvaal et al., Phys. Rev. B 76,
 085421 (2007); Rotureau, Eur. Phys. J. D 67, 153 (2013); Brauneis et al., arXiv:2408.10052 (2024)) replaces
-g delta by a pair tensor V_eff[a, b; c, d] applied through the engine's interaction factors. Two-body
-cutoff: Lambda = cutoff (in quanta), the excitation the basis allows, so a pair with N centre-of-mass
-quanta gets the relative space n <= cutoff - N and 1+1 is exact at every cutoff. A pair can hold up to
-cutoff + N_up + N_down - 2 quanta when its spectators sit in their lowest orbitals; those pair states
-above Lambda get no interaction. Measured alternatives (ground-state error at cutoff 24; 2+2 equal
-masses g = 2 against 5.53939, the extrapolation of the ladders of both the running and the effective
-interaction, inside the dataset's agreed 5.5393 +- 1.9e-3; 2+1 against ``three-body``): Lambda = cutoff + N_up + N_down - 2 (every
-pair state covered) 2.6e-3 for 2+2 against 7.1e-4, about equal for 2+1 (1.1e-4 against 1.0e-4 at
-equal masses; -3.3e-4 against -6.1e-4 for mass ratio 20/3 at g = 2); Lambda = cutoff with the bare
-contact above it -3.7e-3 (2+2); Lambda = cutoff + N_up + N_down 2.4e-3 (2+1, equal masses). Pairs
-whose spectators are excited see the same V_eff (a two-body operator cannot know them): the remaining
-error is many-body. Needs a common trap frequency, the energy truncation and the trap orbitals (``basis_lengths = 'auto'`` means them here); anything else is
-refused with the reason, and so is the regime where a heavy-heavy-light trimer can bind (g < 0, a pair
-species heavier than its partner): the trap orbitals cannot hold it (measured 2+1, mass ratio 20/3:
--4.5e-3 off at cutoff 32 for g = -1, 1.76 off and outside twice its bar at g = -3). <sum delta> = dE/dg = <dV_eff/dg> (Hellmann-Feynman in the truncated space;
-dV_eff/dg by a central difference of the tensor, relative error ~1e-8). Densities and correlations are
-those of the truncated eigenvectors, not transformed back (their error is not stated separately).
+g delta by a pair tensor V_eff[a, b; c, d] applied through the engine's interaction factors.
+
+Two-body cutoff: Lambda = cutoff (in quanta), the excitation the basis allows, so a pair with N
+centre-of-mass quanta gets the relative space n <= cutoff - N and 1+1 is exact at every cutoff. A pair
+can hold up to cutoff + N_up + N_down - 2 quanta when its spectators sit in their lowest orbitals; those
+pair states above Lambda get no interaction. Measured alternatives (ground-state error at cutoff 24;
+2+2 equal masses, g = 2, against 5.53938, the extrapolation of the ladders below; 2+1 against
+``three-body``): Lambda = cutoff + N_up + N_down - 2 (every pair state covered) 2.6e-3 for 2+2
+against 7.2e-4, about equal for 2+1 (1.1e-4 against 1.0e-4 at equal masses; -3.3e-4 against -6.1e-4
+for mass ratio 20/3 at g = 2); Lambda = cutoff with the bare contact above it -3.7e-3 (2+2); Lambda =
+cutoff + N_up + N_down 2.4e-3 (2+1, equal masses). Pairs whose spectators are excited see the same
+V_eff (a two-body operator cannot know them): the remaining error is many-body.
+
+Needs a common trap frequency, the energy truncation and the trap orbitals (``basis_lengths = 'auto'``
+means them here); anything else is refused with the reason, and so is the regime where a
+heavy-heavy-light trimer can bind (g < 0, a pair species heavier than its partner): the trap orbitals
+cannot hold it (measured 2+1, mass ratio 20/3: -4.5e-3 off at cutoff 32 for g = -1; 1.76 off and
+outside twice its bar at g = -3). <sum delta> = dE/dg = <dV_eff/dg> (Hellmann-Feynman in the truncated
+space; dV_eff/dg by a central difference of the tensor, truncation error ~h^2, h = 1e-4 max(1, |g|)).
+Densities and correlations are those of the truncated eigenvectors, not transformed back (their error
+is not stated separately).
 
 Measured ground-state error at single cutoffs c (``bench/benchmarks/bench_effective_interaction.py``,
 one core; 2+1 against ``three-body``, 2+2 against 5.53938, the extrapolation of these ladders, known to
@@ -73,6 +77,10 @@ the successive differences; '-' where the error changes sign; CPU s of the singl
 
 The effective ladder uses the running coupling's model (``cutoff_model``); on four-cutoff ladders of
 the 2+1 rows above all 16 extrapolations lay within twice their bars (median bar 4x the true error).
+Single runs outside the table (no reference below 1e-3): 3+3, g = 2: effective 11.98223, 11.99183,
+11.99220 at c = 12, 16, 20 (rising, then flat), running 12.00493, 12.00169, 11.99847 (falling); 2+2 with
+m_up/m_down = 3/20, g = 2: effective 5.25369, 5.25782 at c = 16, 24, running 5.25607, 5.25906 (both
+rising).
 
 Convergence: ``ladder`` cutoffs (cutoff, cutoff - step, ...) run through the shared convergence
 ladder (``backends/ladder.py``, which states how every error bar is formed): each level is followed
@@ -325,7 +333,7 @@ def effective_coupling(
 
 # ----------------------------------------------------------------------------- effective interaction
 
-EFFECTIVE_DERIVATIVE_STEP = 1e-4  # relative step of the central difference dV_eff/dg (error ~ step^2 ~ 1e-8)
+EFFECTIVE_DERIVATIVE_STEP = 1e-4  # relative step of the central difference dV_eff/dg (see effective_derivative_factors)
 
 
 def effective_refusal(problem: Problem, kind: str, length_choice: str) -> str | None:
@@ -356,7 +364,10 @@ def _effective_tensor_factors(g, mass_up, mass_down, omega, pair_quanta, n_up, n
     """V_eff as engine factors; a common omega scales as E(g, omega) = omega E(g / sqrt(omega), 1)."""
     from .effective_interaction import pair_interaction_tensor
 
-    tensor = omega * pair_interaction_tensor(g / math.sqrt(omega), mass_up, mass_down, pair_quanta, n_up, n_down)
+    try:
+        tensor = omega * pair_interaction_tensor(g / math.sqrt(omega), mass_up, mass_down, pair_quanta, n_up, n_down)
+    except ArithmeticError as failure:
+        raise SolverError(f"oscillator-ed: the effective interaction could not be built ({failure})") from None
     return fock_ed.InteractionFactors.single_hops(tensor)
 
 
