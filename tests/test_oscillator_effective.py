@@ -14,6 +14,7 @@ import pytest
 from threadpoolctl import threadpool_limits
 
 from trapbench.backends.base import Unsupported
+from trapbench.bench.check_suite import assert_check, check_cases
 from trapbench.backends.oscillator_ed import OscillatorEDBackend
 from trapbench.backends.registry import get
 from trapbench.problems.exact.busch import two_body_levels
@@ -101,3 +102,12 @@ def test_contact_density_and_virial_residual_converge_with_the_effective_interac
     assert abs(fine.scalars["delta"] - reference) < 3e-4
     assert abs(fine.scalars["delta"] - reference) < abs(coarse.scalars["delta"] - reference)
     assert abs(fine.diagnostics["virial_residual"]) < 0.5 * abs(coarse.diagnostics["virial_residual"])
+
+
+@pytest.mark.parametrize(
+    "check", check_cases("oscillator-ed", params={"interaction": "effective", "cutoff": 12, "ladder": 3})
+)
+def test_common_check_suite_with_the_effective_interaction(check):
+    """The project's common checks (contract, virial, Hellmann-Feynman, centre-of-mass tower, parity,
+    species swap, g = 0, references from other methods) with the effective interaction."""
+    assert_check(check)
