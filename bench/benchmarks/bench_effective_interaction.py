@@ -5,6 +5,7 @@ Run by hand (not part of the test suite), one core:
 
     OMP_NUM_THREADS=1 python bench/benchmarks/bench_effective_interaction.py            # full table
     OMP_NUM_THREADS=1 python bench/benchmarks/bench_effective_interaction.py --quick    # cutoffs 8..16
+    OMP_NUM_THREADS=1 python bench/benchmarks/bench_effective_interaction.py --survey   # 2+1 error-bar survey
 
 Cases: 2+1 with the pair's mass ratio m_up/m_down = 1 and 20/3 at g = 2 and -1 (reference: the
 ``three-body`` backend, ~1e-8), and 2+2 equal masses at g = 2 (no reference precise enough: the agreed
@@ -17,7 +18,9 @@ includes building the interaction and the ground state's scalars). The convergen
 successive differences, |E(c) - E(c - 4)| ~ c^-(p+1)); it is reported only where the error keeps
 its sign over those cutoffs. A refused combination (the effective interaction where a heavy-heavy-light
 trimer can bind) is printed as refused and left out of the tables. The coverage table applies the
-backend's ladder rule to every four consecutive cutoffs of the 2+1 rows.
+backend's ladder rule to every four consecutive cutoffs of the 2+1 rows. ``--survey`` runs the backend
+with its default ladder (effective, then running interaction) on 2+1 over mass ratios 0.15-20/3 and g = -3 ... 20 (three levels each) against
+``three-body`` and counts the levels within twice their error bars.
 """
 
 from __future__ import annotations
@@ -126,10 +129,60 @@ def coverage(rows) -> list[str]:
     return lines
 
 
+SURVEY_RATIOS = (0.15, 1.0, 2.0, 20 / 3)
+SURVEY_COUPLINGS = (-3.0, -1.0, 0.5, 2.0, 10.0, 20.0)
+
+
+def survey(interaction: str, states: int = 3) -> list[str]:
+    """2+1 with default ladders and ``interaction`` against ``three-body``, the lowest ``states`` levels
+    over both parities: error, bar, coverage, ground states within 1e-4/1e-5/1e-6; refusals listed."""
+    import statistics
+
+    from threadpoolctl import threadpool_limits
+
+    from trapbench.backends.base import Unsupported
+    from trapbench.backends.oscillator_ed import OscillatorEDBackend
+    from trapbench.backends.registry import get
+    from trapbench.problems.spec import Problem
+
+    lines = ["| m_up/m_down | g | level | error | bar | within 2 bars | CPU s |", "|---|---|---|---|---|---|---|"]
+    marks, ground = [], []
+    with threadpool_limits(limits=1):
+        for ratio in SURVEY_RATIOS:
+            for g in SURVEY_COUPLINGS:
+                problem = Problem.create(2, 1, g, mass_up=ratio, mass_down=1.0, states=states)
+                start = time.process_time()
+                try:
+                    result = OscillatorEDBackend().solve(problem, interaction=interaction)
+                except Unsupported:
+                    lines.append(f"| {ratio:.3g} | {g:g} | - | refused | - | - | - |")
+                    continue
+                cpu = time.process_time() - start
+                reference = get("three-body").solve(problem).energies
+                ground.append(abs(result.energies[0] - reference[0]))
+                for k, (e, bar, ref) in enumerate(zip(result.energies, result.energy_errors, reference)):
+                    inside = abs(e - ref) <= 2 * bar
+                    marks.append((inside, bar / max(abs(e - ref), 1e-15)))
+                    lines.append(f"| {ratio:.3g} | {g:g} | {k} | {e - ref:+.1e} | {bar:.1e} | {'yes' if inside else 'NO'} | {cpu:.1f} |")
+                print(lines[-1], flush=True)
+    within = " / ".join(str(sum(e <= t for e in ground)) for t in (1e-4, 1e-5, 1e-6))
+    lines.append(
+        f"\n{interaction}: {sum(m for m, _ in marks)}/{len(marks)} levels within 2 bars; median bar / |error| ="
+        f" {statistics.median(r for _, r in marks):.1f}; ground states within 1e-4 / 1e-5 / 1e-6: {within}"
+        f" of {len(ground)}"
+    )
+    return lines
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true")
+    parser.add_argument("--survey", action="store_true", help="only the 2+1 coverage survey with default ladders")
     args = parser.parse_args()
+    if args.survey:
+        for interaction in ("effective", "renormalized"):
+            print("\n".join(survey(interaction)))
+        return
     cutoffs = [8, 12, 16] if args.quick else [8, 12, 16, 20, 24, 28, 32]
     rows = run(cutoffs)
     print("\n".join(table(rows)))
