@@ -44,6 +44,15 @@ def test_pair_is_exact_at_every_cutoff(g, mass_down):
     assert abs(bare.energies[0] - exact[0]) > 1e-3
 
 
+def test_pair_is_exact_in_a_tighter_common_trap():
+    """omega_up = omega_down = 2: the tensor is built at g / sqrt(omega) and scaled by omega (exact scaling of
+    the contact problem, E(g, omega) = omega E(g / sqrt(omega), 1)); 1+1 levels equal the ``two-body`` ones."""
+    problem = Problem.create(1, 1, 2.0, mass_down=20 / 3, omega_up=2.0, omega_down=2.0, states=4)
+    exact = get("two-body").solve(problem).energies
+    result = ED.solve(problem, interaction="effective", cutoff=8, ladder=1)
+    assert max(abs(a - b) for a, b in zip(result.energies, exact)) < 1e-11
+
+
 @pytest.mark.parametrize("g", [2.0, -1.0])
 def test_three_body_converges_to_the_precision_solver(g):
     """2+1, equal masses, against ``three-body``: the error shrinks along the cutoffs 8, 16, 24 and is
