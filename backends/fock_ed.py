@@ -12,6 +12,11 @@ phi_a phi_b chi_c chi_d exactly (Gauss-Hermite for oscillator orbitals), and it 
 interaction U sum_i n_{i,up} n_{i,down} (U = g/a) with points = sites, w_q = a and
 phi_a(x_q) = delta_aq / sqrt(a).
 
+Any other up-down two-body operator (e.g. an effective interaction tensor V[a, b, c, d], up c -> a,
+down d -> b) enters as interaction factors (``InteractionFactors``): V = sum_k O_up(A_k) O_down(B_k)
+with orbital matrices A_k, B_k (by SVD of V reshaped to (ac), (bd)); the same kernels apply
+g sum_k O_up(A_k) Psi O_down(B_k)^T, the quadrature form being the case A_q = w_q phi(x_q) phi(x_q)^T.
+
 Building blocks (all vectorised over configurations; loops run at most over orbital pairs,
 quadrature points or basis blocks):
 
@@ -24,7 +29,8 @@ quadrature points or basis blocks):
   configurations grouped by energy and down configurations sorted by energy is such a union
   ("staircase"); so is one parity sector when orbitals have definite parity.
 - ``ProductHamiltonian``: the matrix-free H acting on the padded coefficient matrix Psi[i_up, i_down]:
-  H Psi = h_up Psi + Psi h_down^T + g sum_q w_q D_up(q) Psi D_down(q)^T (masked to the basis),
+  H Psi = h_up Psi + Psi h_down^T + g sum_q w_q D_up(q) Psi D_down(q)^T (masked to the basis), or
+  with ``InteractionFactors`` g sum_k O_up(A_k) Psi O_down(B_k)^T,
   with a diagonal fast path when every D(q) is diagonal (lattice) and parity folding of the points
   q, -q when orbitals have definite parity. ``as_linear_operator``, ``to_dense``.
 - ``parity_isometry``: the sector +-1 of a parity given as an orbital map with phases, for bases
@@ -293,6 +299,81 @@ class ContactFactorization:
     parity_down: np.ndarray | None = None
 
 
+def _one_body(space: FockSpace, hops: Hops, matrix: np.ndarray) -> sp.csr_matrix:
+    """sum_ab matrix[a, b] c+_a c_b from the space's precomputed hops (zero entries dropped)."""
+    data = hops.sign * np.asarray(matrix)[hops.a, hops.b]
+    keep = data != 0
+    return sp.csr_matrix((data[keep], (hops.target[keep], hops.source[keep])), shape=(space.dim, space.dim))
+
+
+@dataclass(frozen=True)
+class InteractionFactors:
+    """A general up-down two-body operator as a sum of products of one-body operators,
+
+        V = sum_k O_up(A_k) O_down(B_k),   O_s(A) = sum_ac A[a, c] c+_{s,a} c_{s,c},
+
+    i.e. the tensor V[a, b, c, d] = sum_k A_k[a, c] B_k[b, d] (up c -> a, down d -> b). The engine then
+    applies g sum_k O_up(A_k) Psi O_down(B_k)^T. ``from_tensor`` factorizes a tensor by SVD.
+    """
+
+    up: tuple
+    down: tuple
+
+    @classmethod
+    def single_hops(cls, tensor: np.ndarray, tolerance: float = 1e-14) -> InteractionFactors:
+        """A_k = the single hop c+_a c_c (one unit entry), B_k = V[a, :, c, :], for every up pair (a, c) with an
+        entry above ``tolerance`` x the largest: exact up to those entries, and cheap in the engine, which
+        then computes only the scratch rows the hop reads (``_select_scratch_rows``)."""
+        tensor = np.asarray(tensor, dtype=float)
+        m_u = tensor.shape[0]
+        largest = np.abs(tensor).max() if tensor.size else 0.0
+        ups, downs = [], []
+        for a in range(m_u):
+            for c in range(m_u):
+                block = tensor[a, :, c, :]
+                if largest and np.abs(block).max() > tolerance * largest:
+                    hop = np.zeros((m_u, m_u))
+                    hop[a, c] = 1.0
+                    ups.append(hop)
+                    downs.append(block.copy())
+        return cls(tuple(ups), tuple(downs))
+
+    @classmethod
+    def from_tensor(
+        cls, tensor: np.ndarray, parity_up: np.ndarray | None = None, parity_down: np.ndarray | None = None,
+        tolerance: float = 1e-14,
+    ) -> InteractionFactors:
+        """SVD of X[(a, c), (b, d)] = V[a, b, c, d]; singular values below ``tolerance`` x the largest are
+        dropped (the operator-norm error of the dropped part is at most that bound times the number
+        dropped). With orbital parities given (V conserving parity: (-1)^(a+c) = (-1)^(b+d), up to entries
+        below the same bound, which are dropped), the even and odd blocks are factorized apart so that every factor has definite parity (sparser operators)."""
+        tensor = np.asarray(tensor, dtype=float)
+        m_u, m_d = tensor.shape[0], tensor.shape[1]
+        x = tensor.transpose(0, 2, 1, 3).reshape(m_u * m_u, m_d * m_d)
+        largest = np.abs(x).max() if x.size else 0.0
+        if parity_up is None or parity_down is None:
+            blocks = [(np.ones(m_u * m_u, bool), np.ones(m_d * m_d, bool))]
+        else:
+            pu = np.outer(parity_up, parity_up).ravel()
+            pd = np.outer(parity_down, parity_down).ravel()
+            if np.any(np.abs(x[np.not_equal.outer(pu, pd)]) > tolerance * largest):
+                raise ValueError("the tensor does not conserve the given parities")
+            blocks = [(pu == s, pd == s) for s in (+1, -1)]
+        ups, downs = [], []
+        for rows, cols in blocks:
+            if not largest:
+                break
+            u, sigma, vt = np.linalg.svd(x[np.ix_(rows, cols)], full_matrices=False)
+            for k in np.nonzero(sigma > tolerance * largest)[0]:
+                a = np.zeros(m_u * m_u)
+                a[rows] = u[:, k] * sigma[k]
+                b = np.zeros(m_d * m_d)
+                b[cols] = vt[k]
+                ups.append(a.reshape(m_u, m_u))
+                downs.append(b.reshape(m_d, m_d))
+        return cls(tuple(ups), tuple(downs))
+
+
 def _density_operator(space: FockSpace, values: np.ndarray, pair_parity: np.ndarray | None, sector: int):
     """D(q) = sum_ab phi_a(x_q) phi_b(x_q) c+_a c_b for one point (values = phi(x_q), length M),
     keeping only orbital pairs whose parity product equals ``sector`` when ``pair_parity`` is given.
@@ -328,7 +409,7 @@ class ProductHamiltonian:
         h_up: np.ndarray,
         h_down: np.ndarray,
         g: float,
-        contact: ContactFactorization | None,
+        contact: ContactFactorization | InteractionFactors | None,
         terms_per_chunk: int | None = None,
     ):
         self.basis = basis
@@ -344,7 +425,9 @@ class ProductHamiltonian:
             self._h_down_t = basis.down.one_body(h_down).T.tocsr()
         self._interaction_diag = None
         self._chunks: list = []
-        if contact is not None and self.g != 0.0:
+        if isinstance(contact, InteractionFactors) and self.g != 0.0:
+            self._prepare_factors(contact, terms_per_chunk)
+        elif contact is not None and self.g != 0.0:
             self._prepare_contact(contact, terms_per_chunk)
         mask = np.zeros(n_u * n_d, bool)
         mask[basis.flat] = True
@@ -378,20 +461,37 @@ class ProductHamiltonian:
                     terms.append((w[q], vu[q], vd[q], +1))
         else:
             terms = [(w[q], vu[q], vd[q], 0) for q in range(len(x))]
+
+        def operators(weight, ru, rd, sector):
+            pu = c.parity_up if sector else None
+            pd = c.parity_down if sector else None
+            return (
+                weight * _density_operator(self.basis.up, ru, pu, sector),
+                _density_operator(self.basis.down, rd, pd, sector),
+            )
+
+        self._prepare_terms([lambda t=t: operators(*t) for t in terms], per_chunk)
+
+    def _prepare_factors(self, f: InteractionFactors, per_chunk: int) -> None:
+        """Terms O_up(A_k) (x) O_down(B_k), each a one-body operator of its species (``FockSpace.one_body``)."""
+        up, down = self.basis.up, self.basis.down
+        hops_up, hops_down = up.hops(), down.hops()
+        self._prepare_terms(
+            [lambda a=a, b=b: (_one_body(up, hops_up, a), _one_body(down, hops_down, b)) for a, b in zip(f.up, f.down)],
+            per_chunk,
+        )
+
+    def _prepare_terms(self, terms: list, per_chunk: int | None) -> None:
+        """Stack the terms' operators chunk by chunk for the kernels; ``terms`` are callables returning
+        (up operator, down operator), built only when their chunk is (bounded memory)."""
         n_u, n_d = self.basis.shape
         if per_chunk is None:
             per_chunk = max(1, min(len(terms), int(SCRATCH_ELEMENTS // max(1, n_u * n_d))))
         for start in range(0, len(terms), per_chunk):
-            chunk = terms[start : start + per_chunk]
-            ups, downs = [], []
-            for weight, ru, rd, sector in chunk:
-                pu = c.parity_up if sector else None
-                pd = c.parity_down if sector else None
-                ups.append(weight * _density_operator(self.basis.up, ru, pu, sector))
-                downs.append(_density_operator(self.basis.down, rd, pd, sector))
-            k = len(chunk)
-            down_stack = sp.vstack(downs).tocsc()  # (K n_d) x n_d: column j holds rows k*n_d + j'
-            up_stack = sp.hstack(ups).tocsr()  # n_u x (K n_u): row i holds columns k*n_u + i'
+            pairs = [term() for term in terms[start : start + per_chunk]]
+            k = len(pairs)
+            down_stack = sp.vstack([d for _, d in pairs]).tocsc()  # (K n_d) x n_d: column j holds rows k*n_d + j'
+            up_stack = sp.hstack([u for u, _ in pairs]).tocsr()  # n_u x (K n_u): row i holds columns k*n_u + i'
             for m in (down_stack, up_stack):
                 m.sum_duplicates()
             # renumber up columns to i'*K + k: the scratch T[i', k*n_d + j] is then read row by row
@@ -399,7 +499,7 @@ class ProductHamiltonian:
                 (up_stack.data, (up_stack.indices % n_u) * k + up_stack.indices // n_u, up_stack.indptr),
                 shape=up_stack.shape,
             )
-            self._chunks.append((len(chunk), down_stack, up_stack))
+            self._chunks.append(_select_scratch_rows(k, n_u, n_d, down_stack, up_stack))
         rows_c0 = np.zeros(n_u, np.int64)
         rows_c1 = np.zeros(n_u, np.int64)
         for r0, r1, c0, c1 in self.basis.rectangles:
@@ -425,12 +525,16 @@ class ProductHamiltonian:
             c0, c1 = self._row_columns
             work = np.ascontiguousarray(psi.transpose(2, 0, 1), dtype=float)  # (nv, n_u, n_d)
             result = np.zeros_like(work)
-            for k, down_stack, up_stack in self._chunks:
-                t = np.zeros((nv, n_u, k * n_d))
-                step_down(work, c0, c1, down_stack.indptr, down_stack.indices, down_stack.data, t)
-                step_up(
-                    t.reshape(nv, n_u * k, n_d), c0, c1, up_stack.indptr, up_stack.indices, up_stack.data, self.g, result
-                )
+            for k, down_stack, up_stack, selected in self._chunks:
+                if selected is None:
+                    t = np.zeros((nv, n_u, k * n_d))
+                    step_down(work, c0, c1, down_stack.indptr, down_stack.indices, down_stack.data, t)
+                    t = t.reshape(nv, n_u * k, n_d)
+                else:
+                    row_ptr, row_term, term_ptr, rows = selected
+                    t = np.zeros((nv, len(row_term), n_d))
+                    _selected_kernel()(work, c0, c1, row_ptr, row_term, term_ptr, rows, down_stack.data, t)
+                step_up(t, c0, c1, up_stack.indptr, up_stack.indices, up_stack.data, self.g, result)
             out += result.transpose(1, 2, 0)
         out[~self._mask] = 0.0
         return out
@@ -442,7 +546,7 @@ class ProductHamiltonian:
             vectors = vectors[:, None]
         dim, nv = vectors.shape
         n_u, n_d = self.basis.shape
-        terms = max((k for k, _, _ in self._chunks), default=1)
+        terms = max((k for k, _, _, _ in self._chunks), default=1)
         batch = max(1, int(SCRATCH_ELEMENTS // max(1, terms * n_u * n_d)))
         out = np.empty((dim, nv), dtype=np.result_type(vectors, float))
         for s in range(0, nv, batch):
@@ -467,7 +571,7 @@ class ProductHamiltonian:
         nonzeros; used to compare throughput with a plain scipy CSR matvec)."""
         c0, c1 = self._row_columns if self._chunks else (None, None)
         total = 0
-        for _, down_stack, up_stack in self._chunks:
+        for _, down_stack, up_stack, _ in self._chunks:
             per_col = np.diff(down_stack.indptr)
             cum = np.concatenate([[0], np.cumsum(per_col)])
             total += int(np.sum(cum[c1] - cum[c0]))
@@ -524,6 +628,61 @@ def _kernels():
 
         _KERNELS = (step_down, step_up)
     return _KERNELS
+
+
+def _select_scratch_rows(k: int, n_u: int, n_d: int, down_stack: sp.csc_matrix, up_stack: sp.csr_matrix):
+    """(k, down_stack, up_stack, selection) of one chunk.
+
+    The scratch row T[i', k] = Psi[i', :] D_k^T is needed only where some up operator U_k reads
+    configuration i' (column i' K + k of ``up_stack``). When fewer than half of them are (sparse up
+    factors, e.g. single hops c+_a c_c), only those rows are stored and computed: ``up_stack`` columns
+    are renumbered to the compact row r, and the selection holds, per i', its rows r (row_ptr) with
+    their term k (row_term), and per down column j the start of each term's entries (term_ptr[j, k]) and the down row j' of every entry.
+    """
+    needed = np.unique(up_stack.indices)
+    if len(needed) >= 0.5 * n_u * k:
+        return k, down_stack, up_stack, None
+    up_stack = sp.csr_matrix(
+        (up_stack.data, np.searchsorted(needed, up_stack.indices), up_stack.indptr), shape=(n_u, len(needed))
+    )
+    row_ptr = np.searchsorted(needed // k, np.arange(n_u + 1)).astype(np.int64)
+    row_term = (needed % k).astype(np.int64)
+    down_stack.sort_indices()
+    column = np.repeat(np.arange(n_d), np.diff(down_stack.indptr))
+    counts = np.zeros((n_d, k), np.int64)
+    np.add.at(counts, (column, down_stack.indices // n_d), 1)
+    term_ptr = np.zeros((n_d, k + 1), np.int64)
+    term_ptr[:, 0] = down_stack.indptr[:-1]
+    term_ptr[:, 1:] = down_stack.indptr[:-1, None] + np.cumsum(counts, axis=1)
+    return k, down_stack, up_stack, (row_ptr, row_term, term_ptr, (down_stack.indices % n_d).astype(np.int64))
+
+
+_SELECTED_KERNEL = None
+
+
+def _selected_kernel():
+    """step_down on selected scratch rows: T[v, r, j'] = sum_{j in cols(i')} D_k[j', j] psi[v, i', j] for the
+    rows r of configuration i' (term k = row_term[r]); D_k's entries in column j are
+    term_ptr[j, k] .. term_ptr[j, k + 1] of the stacked CSC arrays (row j' = index mod n_d)."""
+    global _SELECTED_KERNEL
+    if _SELECTED_KERNEL is None:
+        import numba
+
+        @numba.njit(cache=True)
+        def step_down_selected(psi, c0, c1, row_ptr, row_term, term_ptr, rows, data, t):
+            for v in range(psi.shape[0]):
+                for i in range(psi.shape[1]):
+                    for r in range(row_ptr[i], row_ptr[i + 1]):
+                        k = row_term[r]
+                        for j in range(c0[i], c1[i]):
+                            x = psi[v, i, j]
+                            if x == 0.0:
+                                continue
+                            for p in range(term_ptr[j, k], term_ptr[j, k + 1]):
+                                t[v, r, rows[p]] += data[p] * x
+
+        _SELECTED_KERNEL = step_down_selected
+    return _SELECTED_KERNEL
 
 
 def _is_diagonal(matrix: np.ndarray) -> bool:

@@ -24,6 +24,67 @@ replaced by g_eff(cutoff) such that the 1+1 problem in the same truncated basis 
 ground energy (Busch et al., the ``two-body`` backend's root). Needs equal trap frequencies.
 <sum delta> is then reported as dE/dg = <delta>_trunc dg_eff/dg with dg_eff/dg from the 1+1 problem.
 
+Interaction choice (``interaction``): 'bare' (g delta), 'renormalized' (the running g_eff above) or
+'effective'; 'auto' (default) reads the older flag ``renormalized`` (true: running coupling), so earlier
+parameter sets mean what they meant. The effective interaction (``effective_interaction``: Okubo /
+Lee-Suzuki transformation of the exact two-body relative problem, built per centre-of-mass quantum N of
+the pair, for any masses through generalized Talmi-Moshinsky brackets; Kvaal et al., Phys. Rev. B 76,
+085421 (2007); Rotureau, Eur. Phys. J. D 67, 153 (2013); Brauneis et al., arXiv:2408.10052 (2024)) replaces
+g delta by a pair tensor V_eff[a, b; c, d] applied through the engine's interaction factors.
+
+Two-body cutoff: Lambda = cutoff (in quanta), the excitation the basis allows, so a pair with N
+centre-of-mass quanta gets the relative space n <= cutoff - N and 1+1 is exact at every cutoff. A pair
+can hold up to cutoff + N_up + N_down - 2 quanta when its spectators sit in their lowest orbitals; those
+pair states above Lambda get no interaction. Measured alternatives (ground-state error at cutoff 24;
+2+2 equal masses, g = 2, against 5.53938, the extrapolation of the ladders below; 2+1 against
+``three-body``): Lambda = cutoff + N_up + N_down - 2 (every pair state covered) 2.6e-3 for 2+2
+against 7.2e-4, about equal for 2+1 (1.1e-4 against 1.0e-4 at equal masses; -3.3e-4 against -6.1e-4
+for mass ratio 20/3 at g = 2); Lambda = cutoff with the bare contact above it -3.7e-3 (2+2); Lambda =
+cutoff + N_up + N_down 2.4e-3 (2+1, equal masses). Pairs whose spectators are excited see the same
+V_eff (a two-body operator cannot know them): the remaining error is many-body.
+
+Needs a common trap frequency, the energy truncation and the trap orbitals (``basis_lengths = 'auto'``
+means them here); anything else is refused with the reason, and so is the regime where a
+heavy-heavy-light trimer can bind (g < 0, a pair species heavier than its partner): the trap orbitals
+cannot hold it (measured 2+1, mass ratio 20/3: -4.5e-3 off at cutoff 32 for g = -1; 1.76 off and
+outside twice its bar at g = -3). <sum delta> = dE/dg = <dV_eff/dg> (Hellmann-Feynman in the truncated
+space; dV_eff/dg by a central difference of the tensor, truncation error ~h^2, h = 1e-4 max(1, |g|)).
+Densities and correlations are those of the truncated eigenvectors, not transformed back (their error
+is not stated separately).
+
+Measured ground-state error at single cutoffs c (``bench/benchmarks/bench_effective_interaction.py``,
+one core; 2+1 against ``three-body``, 2+2 against 5.53938, the extrapolation of these ladders, known to
+~2e-4; m = m_up/m_down, the pair's mass ratio; p fitted to |error| ~ c^-p over c = 20-32, for 2+2 from
+the successive differences; '-' where the error changes sign; CPU s of the single solve at c = 32;
+2+1 at m = 20/3, g = -1: bare and running in optimized orbitals, effective in the trap's, now refused):
+
+    case         g   interaction   c = 16    c = 24    c = 32     p    CPU s
+    2+1  m=1     2   bare         +9.5e-02  +7.6e-02  +6.5e-02  0.53    4.8
+                     renormalized +8.8e-04  +4.4e-04  +2.8e-04  1.64    3.8
+                     effective    +2.5e-04  +1.0e-04  +5.7e-05  2.08    6.2
+    2+1  m=1    -1   bare         +6.1e-02  +5.1e-02  +4.5e-02  0.44    6.4
+                     renormalized -4.7e-04  -2.3e-04  -1.4e-04  1.69    7.7
+                     effective    -2.0e-04  -8.0e-05  -4.3e-05  2.20    5.5
+    2+1  m=20/3  2   bare         +7.9e-02  +6.7e-02  +5.8e-02  0.47    4.8
+                     renormalized -2.0e-03  +4.4e-04  +6.9e-04     -    5.5
+                     effective    -4.5e-03  -6.1e-04  +1.7e-04     -    5.3
+    2+1  m=20/3 -1   bare         +8.1e-02  +6.8e-02  +6.0e-02  0.44   11.6
+                     renormalized -1.7e-04  +1.9e-05  +2.2e-05     -    9.1
+                     effective    -2.2e-02  -9.4e-03  -4.5e-03  2.43    3.3
+    2+2  m=1     2   bare         +1.9e-01  +1.5e-01  +1.3e-01  0.78   30.2
+                     renormalized +3.8e-03  +1.9e-03  +1.1e-03  1.94   34.2
+                     effective    +1.6e-03  +7.2e-04  +4.1e-04  2.11   39.7
+
+The effective ladder uses the running coupling's model (``cutoff_model``); on four-cutoff ladders of
+the 2+1 rows above all 16 extrapolations lay within twice their bars (median bar 4x the true error);
+with the default ladder on 2+1 over mass ratios 0.15-20/3 and g = -3 ... 20 (trimer regimes refused),
+60/60 levels within twice their bars, median bar 6x the error, median ground-state error 1.3e-5
+(running coupling on the same problems: 9.9e-5).
+Single runs outside the table (no reference below 1e-3): 3+3, g = 2: effective 11.98223, 11.99183,
+11.99220 at c = 12, 16, 20 (rising, then flat), running 12.00493, 12.00169, 11.99847 (falling); 2+2 with
+m_up/m_down = 3/20, g = 2: effective 5.25369, 5.25782 at c = 16, 24, running 5.25607, 5.25906 (both
+rising).
+
 Convergence: ``ladder`` cutoffs (cutoff, cutoff - step, ...) run through the shared convergence
 ladder (``backends/ladder.py``, which states how every error bar is formed): each level is followed
 across them by (parity sector, rank in the sector) and, with >= 3 cutoffs, extrapolated with
@@ -157,17 +218,22 @@ def sector_basis(
     return SectorBasis(fock_ed.ProductBasis(up, down, rect_array), (m_u, m_d), lengths, max_degree)
 
 
-def hamiltonian(problem: Problem, sector: SectorBasis, g: float) -> fock_ed.ProductHamiltonian:
+def hamiltonian(
+    problem: Problem, sector: SectorBasis, g: float, factors: fock_ed.InteractionFactors | None = None
+) -> fock_ed.ProductHamiltonian:
     """H = sum_s sum_ab (h_s)_ab c+_a c_b + g sum_q w_q rho_up(x_q) rho_down(x_q) on ``sector``;
-    h_s = omega_s (n + 1/2) in the trap's orbitals, ``oscillator_scaling.one_body_matrix`` otherwise."""
+    h_s = omega_s (n + 1/2) in the trap's orbitals, ``oscillator_scaling.one_body_matrix`` otherwise.
+    With ``factors`` (an effective interaction tensor, ``effective_factors``) the interaction is
+    g sum_k O_up(A_k) O_down(B_k) instead of the contact."""
     m_u, m_d = sector.n_orbitals
     (b_u, b_d) = sector.lengths
-    quad = ob.contact_quadrature(m_u, b_u, m_d, b_d, sector.max_degree)
-    contact = fock_ed.ContactFactorization(
-        quad.points, quad.weights, quad.values_up, quad.values_down, ob.orbital_parities(m_u), ob.orbital_parities(m_d)
-    )
+    if factors is None:
+        quad = ob.contact_quadrature(m_u, b_u, m_d, b_d, sector.max_degree)
+        factors = fock_ed.ContactFactorization(
+            quad.points, quad.weights, quad.values_up, quad.values_down, ob.orbital_parities(m_u), ob.orbital_parities(m_d)
+        )
     return fock_ed.ProductHamiltonian(
-        sector.basis, one_body_matrix(problem.up, m_u, b_u), one_body_matrix(problem.down, m_d, b_d), g, contact
+        sector.basis, one_body_matrix(problem.up, m_u, b_u), one_body_matrix(problem.down, m_d, b_d), g, factors
     )
 
 
@@ -268,6 +334,66 @@ def effective_coupling(
     return float(x), exact_slope / slope
 
 
+# ----------------------------------------------------------------------------- effective interaction
+
+EFFECTIVE_DERIVATIVE_STEP = 1e-4  # relative step of the central difference dV_eff/dg (see effective_derivative_factors)
+
+
+def effective_refusal(problem: Problem, kind: str, length_choice: str) -> str | None:
+    """Why the centre-of-mass-aware effective interaction cannot be built here, or None.
+
+    It needs one trap frequency (the centre of mass separates), the energy truncation (a pair's quanta
+    are then bounded, so its relative space per centre-of-mass quantum is defined) and each species in
+    its natural orbitals b_s = 1/sqrt(m_s omega) (the Talmi-Moshinsky rotation holds only there). Where a
+    heavy-heavy-light trimer can bind (``heavy_light_trimer_possible``) those orbitals fail: refused.
+    """
+    if not problem.equal_frequencies:
+        return "the effective interaction needs equal trap frequencies (omega_up = omega_down)"
+    if kind != "energy":
+        return "the effective interaction needs truncation = 'energy' (pair quanta bounded per centre-of-mass quantum)"
+    if length_choice == "optimize":
+        return "the effective interaction needs each species' trap orbitals: use basis_lengths = 'trap' or 'auto'"
+    if heavy_light_trimer_possible(problem):
+        return (
+            "a heavy-heavy-light trimer may bind here and the effective interaction needs the trap orbitals, which"
+            " cannot hold it (2+1, mass ratio 20/3, g = -3: 1.76 off with a bar of 0.73); use interaction ="
+            " 'renormalized' with basis_lengths = 'auto'"
+        )
+    return None
+
+
+@lru_cache(maxsize=8)
+def _effective_tensor_factors(g, mass_up, mass_down, omega, pair_quanta, n_up, n_down):
+    """V_eff as engine factors; a common omega scales as E(g, omega) = omega E(g / sqrt(omega), 1)."""
+    from .effective_interaction import pair_interaction_tensor
+
+    try:
+        tensor = omega * pair_interaction_tensor(g / math.sqrt(omega), mass_up, mass_down, pair_quanta, n_up, n_down)
+    except ArithmeticError as failure:
+        raise SolverError(f"oscillator-ed: the effective interaction could not be built ({failure})") from None
+    return fock_ed.InteractionFactors.single_hops(tensor)
+
+
+def effective_factors(problem: Problem, truncation: Truncation, g: float) -> fock_ed.InteractionFactors:
+    """V_eff(g) (``effective_interaction``) as engine factors on the trap orbitals of ``truncation``, with
+    the pair cutoff Lambda = the many-body cutoff in quanta (see the module docstring for the choice)."""
+    m_u, m_d = orbital_counts(problem, truncation)
+    quanta = int(math.floor(truncation.cutoff / problem.up.omega + 1e-9))
+    return _effective_tensor_factors(float(g), problem.up.mass, problem.down.mass, problem.up.omega, quanta, m_u, m_d)
+
+
+def effective_derivative_factors(problem: Problem, truncation: Truncation, g: float) -> fock_ed.InteractionFactors:
+    """dV_eff/dg as the central difference (V_eff(g + h) - V_eff(g - h)) / 2h, h = 1e-4 max(1, |g|):
+    truncation error ~ h^2 |V'''| / 6 (relative ~1e-9 for V_eff smooth on the scale of g), rounding
+    ~ 1e-16 / h ~ 1e-12."""
+    step = EFFECTIVE_DERIVATIVE_STEP * max(1.0, abs(g))
+    plus, minus = effective_factors(problem, truncation, g + step), effective_factors(problem, truncation, g - step)
+    scale = 1 / (2 * step)
+    return fock_ed.InteractionFactors(
+        tuple(scale * a for a in plus.up) + tuple(-scale * a for a in minus.up), plus.down + minus.down
+    )
+
+
 # ----------------------------------------------------------------------------- one cutoff
 
 
@@ -280,9 +406,10 @@ class Level:
 
 
 def solve_cutoff(
-    problem: Problem, truncation: Truncation, g_used: float, k: int, parities, tol: float, lengths=None
+    problem: Problem, truncation: Truncation, g_used: float, k: int, parities, tol: float, lengths=None, factors=None
 ):
-    """The k lowest levels in each requested parity sector, merged and sorted.
+    """The k lowest levels in each requested parity sector, merged and sorted (interaction: the contact
+    g_used delta, or g_used times the two-body operator ``factors``).
 
     (Seeding Lanczos with the previous cutoff's eigenvector was tried: no fewer matvecs for k >= 3.)
     """
@@ -292,7 +419,7 @@ def solve_cutoff(
         sector = sector_basis(problem, truncation, parity, lengths)
         if sector.basis.dim == 0:
             continue
-        ham = hamiltonian(problem, sector, g_used)
+        ham = hamiltonian(problem, sector, g_used, factors)
         values, vectors = fock_ed.lowest_eigenpairs(ham.as_linear_operator(), min(k, sector.basis.dim), tol=tol)
         diagnostics["dimension"][parity] = sector.basis.dim
         diagnostics["matvecs"][parity] = ham.matvec_count
@@ -370,7 +497,8 @@ def cutoff_model(renormalized: bool):
 
     Renormalized interaction: E(c) = E_inf + A c^(-p) with p fitted to the last three cutoffs and
     still drifting at reachable cutoffs (``extrapolation.DriftingPowerLaw``, which also handles an
-    energy that turns around: the renormalized interaction is not variational).
+    energy that turns around: the renormalized interaction is not variational). The effective
+    interaction (``renormalized`` true here too) is not variational either and uses the same model.
     """
     if renormalized:
         return GuardedPowerLaw()
@@ -453,7 +581,16 @@ class OscillatorEDBackend(Backend):
             minimum=0,
             allow_none=True,
         ),
-        Parameter("renormalized", bool, True, "replace g by g_eff(cutoff) fixed by the exact 1+1 energy"),
+        Parameter("renormalized", bool, True, "replace g by g_eff(cutoff) fixed by the exact 1+1 energy (read when interaction = 'auto')"),
+        Parameter(
+            "interaction",
+            str,
+            "auto",
+            "two-body interaction: 'bare' (g delta), 'renormalized' (running g_eff(cutoff)), 'effective' (Okubo /"
+            " Lee-Suzuki, centre-of-mass aware, exact 1+1 spectrum in the basis; equal frequencies, energy"
+            " truncation, trap orbitals) or 'auto' (as the flag 'renormalized' says)",
+            choices=("auto", "bare", "renormalized", "effective"),
+        ),
         Parameter(
             "basis_lengths",
             str,
@@ -508,7 +645,20 @@ class OscillatorEDBackend(Backend):
         if cutoffs[0] < lowest:
             raise SpecError("param.cutoff", f"the ladder {cutoffs} goes below the smallest meaningful cutoff {lowest};"
                                             " raise cutoff or lower ladder/ladder_step")
+        if params["interaction"] == "effective":
+            refusal = effective_refusal(problem, params["truncation"], params["basis_lengths"])
+            if refusal:
+                return Support.no(refusal)
         return Support.yes()
+
+    @staticmethod
+    def interaction_kind(problem: Problem, params: dict[str, Any]) -> str:
+        """'bare', 'renormalized' or 'effective': the ``interaction`` parameter, with 'auto' read from the
+        flag ``renormalized`` (its meaning before the parameter existed); g = 0 is always bare."""
+        kind = params["interaction"]
+        if kind == "auto":
+            kind = "renormalized" if params["renormalized"] else "bare"
+        return "bare" if problem.g[0] == 0.0 else kind
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         """Solve with the BLAS thread count the caller set (trapbench's executor: ``--blas-threads``, default 1)."""
@@ -517,11 +667,12 @@ class OscillatorEDBackend(Backend):
     def _compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         kind = params["truncation"]
         cutoffs = self.cutoff_ladder(problem, params)
-        renormalized = params["renormalized"] and problem.g[0] != 0.0
+        interaction = self.interaction_kind(problem, params)
         warnings = []
-        if renormalized and not problem.equal_frequencies:
-            renormalized = False
+        if interaction == "renormalized" and not problem.equal_frequencies:
+            interaction = "bare"
             warnings.append("renormalized interaction needs equal trap frequencies; the bare g was used")
+        effective = interaction == "effective"
         g = problem.coupling
         wanted = problem.targets.states
         k = wanted + params["extra_states"]
@@ -533,12 +684,20 @@ class OscillatorEDBackend(Backend):
                 " basis_lengths = 'auto' chooses narrower orbitals"
             )
         search_cutoff = min(cutoffs[0], LENGTH_SEARCH_CUTOFF)
-        lengths, length_search = basis_lengths(problem, params["basis_lengths"], kind, search_cutoff, parities)
+        # the effective interaction is built in the trap orbitals ('auto' means them here; it binds pairs itself)
+        length_choice = "trap" if effective else params["basis_lengths"]
+        lengths, length_search = basis_lengths(problem, length_choice, kind, search_cutoff, parities)
 
         def solve_rung(c: int, final: bool) -> Rung:
             trunc = Truncation(kind, c)
-            g_used, slope = effective_coupling(problem, trunc, g, lengths) if renormalized else (g, 1.0)
-            levels, diag = solve_cutoff(problem, trunc, g_used, k, parities, params["tolerance"], lengths)
+            factors, derivative = None, None
+            if effective:
+                factors = effective_factors(problem, trunc, g)
+                derivative = lambda trunc=trunc: effective_derivative_factors(problem, trunc, g)  # noqa: E731
+            g_used, slope = effective_coupling(problem, trunc, g, lengths) if interaction == "renormalized" else (g, 1.0)
+            levels, diag = solve_cutoff(
+                problem, trunc, 1.0 if effective else g_used, k, parities, params["tolerance"], lengths, factors
+            )
             diag["g_used"] = g_used
             # degeneracy: size of the cluster (spacings < tolerance) among every level of this cutoff
             clusters = fock_ed.degeneracies([lv.energy for lv in levels], params["degeneracy_tolerance"])
@@ -547,7 +706,9 @@ class OscillatorEDBackend(Backend):
                 found[key] = RungLevel(
                     energy=lv.energy,
                     labels={"parity": lv.parity, "degeneracy": cluster, "com": None},
-                    scalars=lambda lv=lv: dict(zip(("trap_energy", "delta"), self._expectations(problem, lv, g_used, slope))),
+                    scalars=lambda lv=lv: dict(
+                        zip(("trap_energy", "delta"), self._expectations(problem, lv, g_used, slope, derivative))
+                    ),
                     payload=lv,
                 )
             return Rung(c, found, diag)
@@ -559,7 +720,7 @@ class OscillatorEDBackend(Backend):
         ladder = run_ladder(
             cutoffs,
             solve_rung,
-            cutoff_model(renormalized),
+            cutoff_model(interaction != "bare"),
             keep=wanted,
             scalar_states=params["observable_states"],
             floor=max(params["tolerance"], 1e-12),
@@ -597,7 +758,7 @@ class OscillatorEDBackend(Backend):
         if count < wanted:
             warnings.append(f"the basis holds only {count} states in the requested sector(s)")
         diagnostics = {
-            "interaction": "renormalized" if renormalized else "bare",
+            "interaction": interaction,
             "truncation": kind,
             "cutoffs": cutoffs,
             **ladder.diagnostics(),
@@ -624,19 +785,26 @@ class OscillatorEDBackend(Backend):
 
     # ------------------------------------------------------------------ observables
     @staticmethod
-    def _expectations(problem: Problem, level: Level, g_used: float, slope: float) -> tuple[float, float]:
+    def _expectations(problem: Problem, level: Level, g_used: float, slope: float, derivative=None) -> tuple[float, float]:
         """(<V_trap>, dE/dg) of one level at one cutoff.
 
         <sum delta> in the basis is <psi|H(g=1) - H(g=0)|psi> (one matvec instead of the pair tensor);
-        dE/dg = <sum delta>_trunc dg_eff/dg for the renormalized energy (slope = 1 for bare g).
+        dE/dg = <sum delta>_trunc dg_eff/dg for the renormalized energy (slope = 1 for bare g). With the
+        effective interaction (``derivative`` returns the factors of dV_eff/dg) dE/dg = <psi|dV_eff/dg|psi>
+        (Hellmann-Feynman in the truncated space).
         """
         m_u, m_d = level.sector.n_orbitals
         rho_u, rho_d = fock_ed.one_body_density_matrices(level.sector.basis, level.vector)
         vector = level.vector
-        delta_trunc = float(
-            vector @ hamiltonian(problem, level.sector, 1.0).matvec(vector)
-            - vector @ hamiltonian(problem, level.sector, 0.0).matvec(vector)
-        )
+        if derivative is None:
+            delta_trunc = float(
+                vector @ hamiltonian(problem, level.sector, 1.0).matvec(vector)
+                - vector @ hamiltonian(problem, level.sector, 0.0).matvec(vector)
+            )
+        else:
+            zero_u, zero_d = np.zeros((m_u, m_u)), np.zeros((m_d, m_d))
+            dv = fock_ed.ProductHamiltonian(level.sector.basis, zero_u, zero_d, 1.0, derivative())
+            delta_trunc = float(vector @ dv.matvec(vector))
         b_u, b_d = level.sector.lengths
         trap = fock_ed.one_body_expectation(rho_u, trap_potential_matrix(problem.up, m_u, b_u)) + fock_ed.one_body_expectation(
             rho_d, trap_potential_matrix(problem.down, m_d, b_d)
