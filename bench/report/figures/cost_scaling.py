@@ -14,7 +14,7 @@ def select(table: pd.DataFrame) -> pd.DataFrame:
 
 
 def draw(reached: pd.DataFrame, accuracy: float):
-    figure, (left, right) = new_figure(10, 4.2, 2)
+    figure, (left, right) = new_figure(10, 5.0, 2)
     for backend, group in reached.groupby("backend"):
         group = group.sort_values("n")
         verified = group[group["cpu_s"].notna()]
@@ -32,7 +32,8 @@ def draw(reached: pd.DataFrame, accuracy: float):
         axes.set_xlabel(r"particle number $N = N_\uparrow + N_\downarrow$")
         axes.xaxis.get_major_locator().set_params(integer=True)
         axes.grid(True, which="both", alpha=0.3)
-    left.legend(fontsize="small")
+    handles, labels = left.get_legend_handles_labels()  # below the panels: the curves stay uncovered
+    figure.legend(handles, labels, loc="outside lower center", ncol=4, fontsize="small")
     figure.suptitle(f"Cost of reaching relative error {accuracy:.0e} against particle number")
     return figure
 
