@@ -192,13 +192,17 @@ class FockSpace:
         self._hops[key] = result
         return result
 
-    def one_body(self, matrix: np.ndarray) -> sp.csr_matrix:
-        """sum_ab matrix[a, b] c+_a c_b as a CSR matrix on this space (pairs with zero entries skipped)."""
+    def one_body(self, matrix: np.ndarray, hops: Hops | None = None) -> sp.csr_matrix:
+        """sum_ab matrix[a, b] c+_a c_b as a CSR matrix on this space (pairs with zero entries skipped).
+
+        ``hops``: every hop of the space (``hops()``), given when many operators are built on it, so that
+        no per-pattern hop list is computed and cached for each."""
         matrix = np.asarray(matrix)
-        pairs = np.argwhere(matrix != 0)
-        hops = self.hops(pairs)
+        if hops is None:
+            hops = self.hops(np.argwhere(matrix != 0))
         data = hops.sign * matrix[hops.a, hops.b]
-        return sp.csr_matrix((data, (hops.target, hops.source)), shape=(self.dim, self.dim))
+        keep = data != 0
+        return sp.csr_matrix((data[keep], (hops.target[keep], hops.source[keep])), shape=(self.dim, self.dim))
 
     def transform(self, orbital_map: Sequence[int], orbital_phase: Sequence[float]) -> tuple[np.ndarray, np.ndarray]:
         """U c+_a U^-1 = phase[a] c+_{map[a]}: returns (target index, sign) for every configuration.
@@ -297,13 +301,6 @@ class ContactFactorization:
     values_down: np.ndarray
     parity_up: np.ndarray | None = None
     parity_down: np.ndarray | None = None
-
-
-def _one_body(space: FockSpace, hops: Hops, matrix: np.ndarray) -> sp.csr_matrix:
-    """sum_ab matrix[a, b] c+_a c_b from the space's precomputed hops (zero entries dropped)."""
-    data = hops.sign * np.asarray(matrix)[hops.a, hops.b]
-    keep = data != 0
-    return sp.csr_matrix((data[keep], (hops.target[keep], hops.source[keep])), shape=(space.dim, space.dim))
 
 
 @dataclass(frozen=True)
@@ -473,11 +470,12 @@ class ProductHamiltonian:
         self._prepare_terms([lambda t=t: operators(*t) for t in terms], per_chunk)
 
     def _prepare_factors(self, f: InteractionFactors, per_chunk: int) -> None:
-        """Terms O_up(A_k) (x) O_down(B_k), each a one-body operator of its species (``FockSpace.one_body``)."""
+        """Terms O_up(A_k) (x) O_down(B_k), each a one-body operator of its species (``FockSpace.one_body`` on
+        the space's full hop list)."""
         up, down = self.basis.up, self.basis.down
         hops_up, hops_down = up.hops(), down.hops()
         self._prepare_terms(
-            [lambda a=a, b=b: (_one_body(up, hops_up, a), _one_body(down, hops_down, b)) for a, b in zip(f.up, f.down)],
+            [lambda a=a, b=b: (up.one_body(a, hops_up), down.one_body(b, hops_down)) for a, b in zip(f.up, f.down)],
             per_chunk,
         )
 
@@ -521,7 +519,7 @@ class ProductHamiltonian:
         if self._interaction_diag is not None:
             out += self._interaction_diag[:, :, None] * psi
         if self._chunks:
-            step_down, step_up = _kernels()
+            step_down, step_up, step_down_selected = _kernels()
             c0, c1 = self._row_columns
             work = np.ascontiguousarray(psi.transpose(2, 0, 1), dtype=float)  # (nv, n_u, n_d)
             result = np.zeros_like(work)
@@ -533,7 +531,7 @@ class ProductHamiltonian:
                 else:
                     row_ptr, row_term, term_ptr, rows = selected
                     t = np.zeros((nv, len(row_term), n_d))
-                    _selected_kernel()(work, c0, c1, row_ptr, row_term, term_ptr, rows, down_stack.data, t)
+                    step_down_selected(work, c0, c1, row_ptr, row_term, term_ptr, rows, down_stack.data, t)
                 step_up(t, c0, c1, up_stack.indptr, up_stack.indices, up_stack.data, self.g, result)
             out += result.transpose(1, 2, 0)
         out[~self._mask] = 0.0
@@ -596,6 +594,10 @@ def _kernels():
     step_down: T[v, i, k n_d + j'] = sum_{j in cols(i)} D_k[j', j] psi[v, i, j]  (D stacked, CSC)
     step_up:   out[v, i, j] += g sum_{(k, i')} (w_k U_k)[i, i'] T[v, i' K + k, j], j in cols(i)  (CSR,
                columns renumbered i' K + k)
+    step_down_selected: step_down on selected scratch rows only (``_select_scratch_rows``):
+               T[v, r, j'] = sum_{j in cols(i')} D_k[j', j] psi[v, i', j] for the rows r of configuration
+               i' (term k = row_term[r]); D_k's entries in column j are term_ptr[j, k] .. term_ptr[j, k + 1]
+               of the stacked CSC arrays (row j' = index mod n_d).
     Work = nonzeros x columns kept; each configuration's scratch row T[i] stays in cache.
     """
     global _KERNELS
@@ -626,7 +628,20 @@ def _kernels():
                         for j in range(a, b):
                             out[v, i, j] += val * t[v, col, j]
 
-        _KERNELS = (step_down, step_up)
+        @numba.njit(cache=True)
+        def step_down_selected(psi, c0, c1, row_ptr, row_term, term_ptr, rows, data, t):
+            for v in range(psi.shape[0]):
+                for i in range(psi.shape[1]):
+                    for r in range(row_ptr[i], row_ptr[i + 1]):
+                        k = row_term[r]
+                        for j in range(c0[i], c1[i]):
+                            x = psi[v, i, j]
+                            if x == 0.0:
+                                continue
+                            for p in range(term_ptr[j, k], term_ptr[j, k + 1]):
+                                t[v, r, rows[p]] += data[p] * x
+
+        _KERNELS = (step_down, step_up, step_down_selected)
     return _KERNELS
 
 
@@ -655,34 +670,6 @@ def _select_scratch_rows(k: int, n_u: int, n_d: int, down_stack: sp.csc_matrix, 
     term_ptr[:, 0] = down_stack.indptr[:-1]
     term_ptr[:, 1:] = down_stack.indptr[:-1, None] + np.cumsum(counts, axis=1)
     return k, down_stack, up_stack, (row_ptr, row_term, term_ptr, (down_stack.indices % n_d).astype(np.int64))
-
-
-_SELECTED_KERNEL = None
-
-
-def _selected_kernel():
-    """step_down on selected scratch rows: T[v, r, j'] = sum_{j in cols(i')} D_k[j', j] psi[v, i', j] for the
-    rows r of configuration i' (term k = row_term[r]); D_k's entries in column j are
-    term_ptr[j, k] .. term_ptr[j, k + 1] of the stacked CSC arrays (row j' = index mod n_d)."""
-    global _SELECTED_KERNEL
-    if _SELECTED_KERNEL is None:
-        import numba
-
-        @numba.njit(cache=True)
-        def step_down_selected(psi, c0, c1, row_ptr, row_term, term_ptr, rows, data, t):
-            for v in range(psi.shape[0]):
-                for i in range(psi.shape[1]):
-                    for r in range(row_ptr[i], row_ptr[i + 1]):
-                        k = row_term[r]
-                        for j in range(c0[i], c1[i]):
-                            x = psi[v, i, j]
-                            if x == 0.0:
-                                continue
-                            for p in range(term_ptr[j, k], term_ptr[j, k + 1]):
-                                t[v, r, rows[p]] += data[p] * x
-
-        _SELECTED_KERNEL = step_down_selected
-    return _SELECTED_KERNEL
 
 
 def _is_diagonal(matrix: np.ndarray) -> bool:
