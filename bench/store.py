@@ -28,7 +28,8 @@ smaller limit than the one now given. Ok and unsupported results are kept.
 
 One sweep writes a store at a time: ``Store.writer_lock`` holds an exclusive ``flock`` on the file
 ``<store>.lock`` for the sweep's duration (the operating system releases it when the process dies,
-however it dies), and a second sweep is refused with the first one's host and process id. Runs left
+however it dies), and a second sweep is refused with the first one's host and process id (after
+waiting ``WRITER_PATIENCE_S``, since a reader takes the lock for a moment, see below). Runs left
 "running" by a process killed without cleanup are marked ``interrupted`` whenever the store is opened
 while no sweep holds the lock. (``flock`` is reliable on local file systems; on a network file
 system keep one coordinator per store.)
@@ -48,6 +49,7 @@ import json
 import os
 import platform
 import sqlite3
+import time
 from pathlib import Path
 from typing import Any
 
@@ -107,6 +109,10 @@ class DamagedStore(SpecError):
     def __init__(self, path: Path, detail: str):
         super().__init__(str(path), f"not a readable trapbench results store ({detail}); restore it from a backup,"
                                     " delete it to start afresh, or give another --store")
+
+
+WRITER_PATIENCE_S = 3.0
+"""How long a sweep waits for the writer lock before it concludes another sweep holds it (seconds)."""
 
 
 class StoreBusy(SpecError):
@@ -169,16 +175,26 @@ class Store:
 
     # ------------------------------------------------------------------ writer lock
     @contextlib.contextmanager
-    def writer_lock(self):
-        """Hold the store's exclusive writer lock (StoreBusy when another process has it); see the module docstring."""
+    def writer_lock(self, patience_s: float = 0.0):
+        """Hold the store's exclusive writer lock; see the module docstring.
+
+        Raises StoreBusy when another process still holds it after ``patience_s`` seconds. A reader
+        opening the store holds the lock for one UPDATE (marking orphaned runs), so a sweep waits a
+        moment (``WRITER_PATIENCE_S``) instead of mistaking such a reader for a second sweep.
+        """
         lock_path = self.path.with_name(self.path.name + ".lock")
         handle = open(lock_path, "a+", encoding="utf-8")
         try:
-            try:
-                fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
-            except BlockingIOError:
-                handle.seek(0)
-                raise StoreBusy(self.path, handle.read().strip()) from None
+            deadline = time.monotonic() + patience_s
+            while True:
+                try:
+                    fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                    break
+                except BlockingIOError:
+                    if time.monotonic() >= deadline:
+                        handle.seek(0)
+                        raise StoreBusy(self.path, handle.read().strip()) from None
+                    time.sleep(0.05)
             handle.seek(0)
             handle.truncate()
             handle.write(f"pid {os.getpid()} on {platform.node()} since {_now()}")

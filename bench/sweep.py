@@ -25,7 +25,7 @@ from pathlib import Path
 
 from .executor import OK, Limits, Outcome, execute
 from .runner import backend_modules, context
-from .store import Store
+from .store import WRITER_PATIENCE_S, Store
 from .suite import Suite, Task
 
 
@@ -122,7 +122,7 @@ def run_sweep(suite: Suite, options: SweepOptions) -> SweepReport:
 
     tasks = limited_tasks(suite, options)
     versions = {name: _version(name) for name in {t.backend for t in tasks}}
-    with Store.open(options.store_path) as store, store.writer_lock():
+    with Store.open(options.store_path) as store, store.writer_lock(WRITER_PATIENCE_S):
         reasons = {t.key: store.why_run(t, options.rerun, versions[t.backend], options.keep_failures) for t in tasks}
         pending = [t for t in tasks if reasons[t.key] is not None]
         run_id = store.begin_run(suite.name, options.command, len(tasks))

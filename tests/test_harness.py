@@ -350,10 +350,11 @@ def test_killed_coordinator_resumes_without_recomputing(toy_path, tmp_path):
     env = {**os.environ, "PYTHONPATH": os.pathsep.join([str(toy_path), os.environ.get("PYTHONPATH", "")])}
     coordinator = subprocess.Popen(command, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     deadline = time.monotonic() + 60
-    while time.monotonic() < deadline:
+    while time.monotonic() < deadline and coordinator.poll() is None:
         time.sleep(0.1)
         if store_path.exists() and len(stored_rows(store_path)) >= 4:
             break
+    assert coordinator.poll() is None, coordinator.stderr.read().decode()
     coordinator.send_signal(signal.SIGKILL)
     coordinator.wait()
     before = stored_rows(store_path)

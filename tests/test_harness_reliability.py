@@ -251,6 +251,27 @@ def test_a_second_sweep_on_a_busy_store_is_refused_and_a_killed_run_is_marked(to
         assert list(store.runs_frame()["status"]) == ["interrupted"]
 
 
+def test_a_reader_holding_the_lock_for_a_moment_does_not_refuse_a_sweep(toy_path, tmp_path):
+    """A reader opening the store takes the writer lock for one UPDATE; a sweep starting then must wait, not fail."""
+    suite_path = ladder_suite(tmp_path, rungs=2, work=0)
+    store_path = tmp_path / "reader.sqlite"
+    Store.open(store_path).close()
+    holding, released = threading.Event(), threading.Event()
+
+    def brief_reader() -> None:
+        with Store.open(store_path) as store, store.writer_lock():
+            holding.set()
+            time.sleep(0.5)
+        released.set()
+
+    reader = threading.Thread(target=brief_reader)
+    reader.start()
+    holding.wait(10)
+    report = run_sweep(load_suite(suite_path), SweepOptions(store_path=store_path, progress=False))
+    reader.join()
+    assert released.is_set() and report.ran == 4 and len(stored_rows(store_path)) == 4
+
+
 # ----------------------------------------------------------------------------- damaged inputs (items 5, 6)
 
 
