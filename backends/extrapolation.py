@@ -243,11 +243,13 @@ class PolynomialModel:
     ``exponent`` = 1 for a lattice spacing (h = a -> 0); -1/2 for an oscillator cutoff c with a bare
     contact interaction (h = c^(-1/2) -> 0 as c -> infinity). With fewer than 1 + len(powers) points
     the highest powers are dropped (two spacings: Richardson extrapolation in the first power).
+    ``two_rung_power``: see ``backends/ladder.py`` (the bar of a ladder shorter than ``minimum_points``).
     """
 
     powers: tuple[float, ...] = (2.0, 4.0)
     exponent: float = 1.0
     minimum_points: int = 2
+    two_rung_power: float | None = None
 
     def __call__(self, steps: Sequence[float], values: Sequence[float]) -> Extrapolation:
         h = np.asarray(steps, dtype=float) ** self.exponent

@@ -24,8 +24,11 @@ How an error bar is formed (the one place where this is stated, for energies and
 - limit error: with at least ``model.minimum_points`` rungs, the error bar of the model's
   extrapolation (documented with each model: fit error, sensitivity to dropping a rung or a term,
   a fraction of the last correction); with fewer rungs but at least two, no extrapolation is made:
-  the value is the last rung's and the limit error is its change from the rung before; with one
-  rung there is no error bar at all (None), because nothing measures the distance to the limit;
+  the value is the last rung's and the limit error is its change from the rung before -- or, when
+  the model declares ``two_rung_power`` p (its slowest plausible convergence, error ~ resolution^p),
+  the remainder that change implies, |change| / (r^p - 1) with r the ratio of the two steps (a change
+  alone under-covers whenever r^p < 2); with one rung there is no error bar at all (None), because
+  nothing measures the distance to the limit;
 - solver error: the largest error the rung solver reported for that quantity along the ladder
   (e.g. an eigenvector residual norm, a DMRG truncation extrapolation); added, not combined in
   quadrature, because the two are not independent random errors;
@@ -138,7 +141,12 @@ def limit(model: Model, steps: Sequence[float], values: Sequence[float]) -> tupl
         fit = model(steps, values)
         return fit.value, fit.error, fit.as_dict()
     if len(values) >= 2:
-        return float(values[-1]), abs(float(values[-1]) - float(values[-2])), None
+        change = abs(float(values[-1]) - float(values[-2]))
+        power = getattr(model, "two_rung_power", None)
+        if power:
+            ratio = max(steps[-1], steps[-2]) / min(steps[-1], steps[-2])
+            change /= ratio**power - 1.0
+        return float(values[-1]), change, None
     return float(values[-1]), None, None
 
 

@@ -494,15 +494,18 @@ def cutoff_model(renormalized: bool):
     Bare contact interaction: the error decays as c^(-1/2) (the delta function's oscillator-basis
     expansion; measured p = 0.50-0.53 for 1+1 at g = 0.5..10, see tests), so the model is
     E(c) = E_inf + a c^(-1/2) + b c^(-1), a polynomial in h = c^(-1/2).
+    A two-cutoff ladder gets the remainder a c^(-1/2) law implies (``two_rung_power`` 1/2).
 
     Renormalized interaction: E(c) = E_inf + A c^(-p) with p fitted to the last three cutoffs and
     still drifting at reachable cutoffs (``extrapolation.DriftingPowerLaw``, which also handles an
     energy that turns around: the renormalized interaction is not variational). The effective
     interaction (``renormalized`` true here too) is not variational either and uses the same model.
+    A two-cutoff ladder cannot fit p; its bar is the remainder of the slowest exponent measured on
+    the reachable cutoffs, p = 2/3 (``two_rung_power``; 2+2 at c = 8-16, ``DriftingPowerLaw``).
     """
     if renormalized:
         return GuardedPowerLaw()
-    return PolynomialModel(powers=(1.0, 2.0), exponent=-0.5, minimum_points=3)
+    return PolynomialModel(powers=(1.0, 2.0), exponent=-0.5, minimum_points=3, two_rung_power=0.5)
 
 
 @dataclass(frozen=True)
@@ -520,6 +523,7 @@ class GuardedPowerLaw:
 
     minimum_points: int = 3
     power_ceiling: float = 5.4  # 90 % of the exponent scan's upper end (6)
+    two_rung_power: float = 2.0 / 3.0  # see cutoff_model
 
     def __call__(self, steps, values) -> Extrapolation:
         fit = DriftingPowerLaw()(steps, values)
@@ -558,7 +562,7 @@ def derived_scalar_errors(problem: Problem, energy_error, trap_error, delta_erro
 
 class OscillatorEDBackend(Backend):
     name = "oscillator-ed"
-    version = "2"
+    version = "3"
     summary = (
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"

@@ -203,6 +203,17 @@ def test_short_ladders_give_a_difference_or_no_error_bar():
     assert one.energy_errors is None and one.error_estimate is None and one.scalar_errors == {}
 
 
+def test_a_two_rung_bar_is_the_remainder_of_the_declared_slowest_law():
+    # the odd level is 1.1 - 3 h^2: with two_rung_power 2 the change 3 (0.16 - 0.04) over r^2 - 1 = 3 is
+    # exactly the remaining 3 * 0.04, where the change alone would claim 0.36 (a law E ~ h^2: common practice)
+    model = PolynomialModel(powers=(1.0, 2.0), minimum_points=3, two_rung_power=2.0)
+    two = run_ladder([0.4, 0.2], crossing_solver(), model, keep=1)
+    assert two.energy_errors[0] == pytest.approx(3 * 0.04 + 1e-9)
+    # a slower declared law widens the bar: r^(1/2) - 1 = 0.414 for the same change
+    slow = run_ladder([0.4, 0.2], crossing_solver(), PolynomialModel(minimum_points=3, two_rung_power=0.5), keep=1)
+    assert slow.energy_errors[0] == pytest.approx(3 * 0.12 / (2**0.5 - 1) + 1e-9)
+
+
 def test_a_level_missing_on_one_rung_is_not_reported():
     def solve(h, final):
         found = {("s", 0): RungLevel(1.0 + h**2)}
