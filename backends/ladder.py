@@ -36,6 +36,10 @@ How an error bar is formed (the one place where this is stated, for energies and
   relative).
 
 ``error_estimate`` of a result is the largest error bar of its reported energies.
+
+Observables on a grid (densities, correlation maps) are the last rung's, not extrapolated; their
+error bar (``grid_error``) is the largest change over the grid from the rung before, turned into a
+remainder by the same two-rung rule.
 """
 
 from __future__ import annotations
@@ -43,6 +47,8 @@ from __future__ import annotations
 from collections.abc import Callable, Hashable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
+
+import numpy as np
 
 from .extrapolation import Extrapolation
 
@@ -135,18 +141,33 @@ def rank_keys(sectors: Sequence[Hashable]) -> list[tuple[Hashable, int]]:
     return keys
 
 
+def last_change_bar(model: Model, steps: Sequence[float], change: float) -> float:
+    """The limit error a change between the last two rungs implies (module docstring: two rungs)."""
+    power = getattr(model, "two_rung_power", None)
+    if not power:
+        return change
+    ratio = max(steps[-1], steps[-2]) / min(steps[-1], steps[-2])
+    return change / (ratio**power - 1.0)
+
+
+def grid_error(model: Model, steps: Sequence[float], final: np.ndarray, previous: np.ndarray) -> float:
+    """Error bar of an observable on a grid (same grid on both rungs): the largest change over the grid
+    between the last two rungs, turned into a remainder like a two-rung energy (``last_change_bar``).
+
+    Not extrapolated: the reported observable is the last rung's, so its distance to the limit is what
+    the bar must hold. Where the model declares no ``two_rung_power`` the bar is the change itself.
+    """
+    change = float(np.max(np.abs(np.asarray(final) - np.asarray(previous)))) if np.size(final) else 0.0
+    return last_change_bar(model, steps, change)
+
+
 def limit(model: Model, steps: Sequence[float], values: Sequence[float]) -> tuple[float, float | None, dict | None]:
     """(value, limit error, fit) of one quantity along the ladder (module docstring: the limit error)."""
     if len(values) >= getattr(model, "minimum_points", 2):
         fit = model(steps, values)
         return fit.value, fit.error, fit.as_dict()
     if len(values) >= 2:
-        change = abs(float(values[-1]) - float(values[-2]))
-        power = getattr(model, "two_rung_power", None)
-        if power:
-            ratio = max(steps[-1], steps[-2]) / min(steps[-1], steps[-2])
-            change /= ratio**power - 1.0
-        return float(values[-1]), change, None
+        return float(values[-1]), last_change_bar(model, steps, abs(float(values[-1]) - float(values[-2]))), None
     return float(values[-1]), None, None
 
 

@@ -53,7 +53,10 @@ class Observable:
     """An array on named grids, e.g. a density n_up(x) or a map C(p_up, p_down).
 
     ``axes`` maps each axis name to its grid, in the order of the array's dimensions;
-    ``normalization`` states what the values integrate to; ``state`` is the index of the level.
+    ``normalization`` states what the values integrate to; ``state`` is the index of the level;
+    ``error`` bounds the largest deviation from the exact values over the grid, max |values - exact|,
+    in ``units`` (None where the backend does not estimate it; how it is formed is the backend's
+    docstring, e.g. ``backends/ladder.py`` for a convergence ladder).
     """
 
     values: np.ndarray
@@ -61,6 +64,7 @@ class Observable:
     units: str
     normalization: str
     state: int = 0
+    error: float | None = None
 
     def to_json_dict(self) -> dict:
         return {
@@ -69,6 +73,7 @@ class Observable:
             "units": self.units,
             "normalization": self.normalization,
             "state": self.state,
+            "error": self.error,
         }
 
     @classmethod
@@ -79,6 +84,7 @@ class Observable:
             units=data["units"],
             normalization=data["normalization"],
             state=data["state"],
+            error=data.get("error"),
         )
 
 

@@ -20,7 +20,7 @@ Contract checks (``CONTRACT_CHECKS``; the protocol of ``backends/base.py``, comm
 - ``state-count``: as many ascending energies as asked for (1 and 3);
 - ``parity-sector``: every state of an even (odd) sector request is labelled +1 (-1);
 - ``observables``: every declared observable is returned under the shared names of ``backends/result.py``,
-  finite, on its grids, and every scalar name is registered;
+  finite, on its grids, with a finite non-negative error bar where one is given, and every scalar name is registered;
 - ``error-bars``: a backend that declares error bars reports one finite, non-negative bar per energy.
 
 Physics checks: those of ``bench.validation.CHECKS`` (exact properties of the Hamiltonian, each stated there
@@ -198,6 +198,8 @@ def check_observables(backend: Any, params: dict[str, Any], problem: Problem) ->
         shape = tuple(len(axis) for axis in observable.axes.values())
         if values.shape != shape:
             return _verdict(name, problem, "fail", f"observable {key} has shape {values.shape}, its axes {shape}")
+        if observable.error is not None and not (math.isfinite(observable.error) and observable.error >= 0):
+            return _verdict(name, problem, "fail", f"observable {key} has error bar {observable.error!r}")
     bad = [k for k, v in result.scalars.items() if not math.isfinite(v)]
     if bad:
         return _verdict(name, problem, "fail", f"non-finite scalars {bad}")

@@ -16,7 +16,8 @@ from trapbench.problems import Problem
 def test_json_round_trip_is_lossless():
     problem = Problem.create(1, 1, 2.0, mass_down=40 / 6, states=3, observables=["density", "momentum"], grid_points=64)
     result = get("two-body").solve(problem)
-    result.observables["complex_check"] = Observable(np.array([1 + 2j, 3.5 - 1e-300j]), {"k": np.array([0.1, 0.2])}, "-", "-")
+    result.observables["complex_check"] = Observable(np.array([1 + 2j, 3.5 - 1e-300j]), {"k": np.array([0.1, 0.2])}, "-", "-",
+                                                     error=1.25e-7)
     again = Result.from_json(result.to_json())
     assert again.energies == result.energies and again.states == result.states
     assert again.provenance == result.provenance and again.params == result.params
@@ -24,6 +25,13 @@ def test_json_round_trip_is_lossless():
         assert np.array_equal(again.observables[name].values, observable.values)
         assert again.observables[name].values.dtype == observable.values.dtype
         assert all(np.array_equal(again.observables[name].axes[k], v) for k, v in observable.axes.items())
+        assert again.observables[name].error == observable.error
+    assert again.observables["complex_check"].error == 1.25e-7
+    # a result stored before observables carried an error bar reads as "not estimated"
+    legacy = json.loads(result.to_json())
+    for data in legacy["observables"].values():
+        del data["error"]
+    assert Result.from_json(json.dumps(legacy)).observables["complex_check"].error is None
     frame = result.to_dataframe()
     assert list(frame["energy"]) == result.energies and set(frame["backend"]) == {"two-body"}
     assert frame["mass_down"].iloc[0] == pytest.approx(40 / 6)
