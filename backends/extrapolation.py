@@ -344,19 +344,23 @@ class GeometricTail:
     rounding: float = 1e-12
     minimum_points: int = 3
 
+    @staticmethod
+    def bound(last: float, previous: float, floor: float) -> tuple[float, str | None]:
+        """(error bar, warning or None) from the last two changes (class docstring); also serves distances
+        between successive rungs' grids (sup norms), e.g. a density along a p-ladder."""
+        if last <= floor or last <= 0.5 * previous:
+            return last, None
+        ratio = last / previous
+        error = 2 * last / (1 - ratio) if ratio < 1 else 10 * max(last, previous)
+        return error, f"the ladder did not converge geometrically (ratio {ratio:.2f} of its last two changes); its error bar is widened"
+
     def __call__(self, steps: Sequence[float], values: Sequence[float]) -> Extrapolation:
         y = np.asarray(values, dtype=float)
         if len(y) < 3:
             raise ValueError(f"a geometric tail needs 3 rungs to measure its ratio, got {len(y)}")
         floor = self.rounding * max(1.0, abs(y[-1]))
         last, previous = abs(y[-1] - y[-2]), abs(y[-2] - y[-3])
-        warning = None
-        if last <= floor or last <= 0.5 * previous:
-            error = last
-        else:
-            ratio = last / previous
-            error = 2 * last / (1 - ratio) if ratio < 1 else 10 * max(last, previous)
-            warning = f"the ladder did not converge geometrically (ratio {ratio:.2f} of its last two changes); its error bar is widened"
+        error, warning = self.bound(last, previous, floor)
         return Extrapolation(
             value=float(y[-1]),
             error=float(max(error, floor)),

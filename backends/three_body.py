@@ -32,7 +32,8 @@ dE/dg, ``contact`` = (2 mu)^2 g^2 <sum delta>, ``trap_energy`` = <sum V_trap> = 
 + <rho^2>/2) and ``kinetic_energy`` = E - trap_energy - g delta. The virial theorem
 E = 2 <V_trap> + (g/2) <sum delta> holds for the exact states; its residual is in diagnostics.
 Observables: ``density`` (density_up, density_down of the first reported state, normalized to N_s) by
-quadrature of |psi|^2 over the plane (see ``densities``); the others are refused.
+quadrature of |psi|^2 over the plane (see ``densities``), with an error bar from the same geometric-tail
+rule applied to the largest change over the grid between the last three orders; the others are refused.
 """
 
 from __future__ import annotations
@@ -70,6 +71,7 @@ class RelativeLevel:
     plane: QuarterPlane  # finest discretization and its solution, for observables
     solution: RelativeSolution
     index: int
+    earlier: tuple = ()  # (plane, solution, index) of the two rungs before, for the observables' error bars
 
 
 def outer_radius(energy: float) -> float:
@@ -82,7 +84,7 @@ def outer_radius(energy: float) -> float:
 
 class ThreeBodyBackend(Backend):
     name = "three-body"
-    version = "1"
+    version = "2"
     summary = (
         "2+1 / 1+2 in a common harmonic trap: Galerkin spectral elements in the mass-scaled Jacobi plane"
         " (contact rays on element boundaries), p-ladder error bars; any masses, any g"
@@ -209,6 +211,7 @@ class ThreeBodyBackend(Backend):
                         plane=plane,
                         solution=solution,
                         index=index,
+                        earlier=tuple(rung.levels[key].payload for rung in ladder.rungs[-3:-1]),
                     )
                 )
         info = {
@@ -307,29 +310,41 @@ class ThreeBodyBackend(Backend):
         com = np.sqrt(masses / total)
         e_y = np.array([1.0, -1.0, 0.0]) / math.sqrt(2)  # normal of x_1 = x_2 (equal pair masses)
         e_x = np.cross(e_y, com)  # in the plane, along the pair's line
-        rho, phi, weights = level.plane.density_on_grid(level.solution.vectors[level.index])
-        rx, ry, w = (rho * np.cos(phi)).ravel(), (rho * np.sin(phi)).ravel(), weights.ravel() / 4
-        images_x = np.concatenate([rx, rx, -rx, -rx])
-        images_y = np.concatenate([ry, -ry, ry, -ry])
-        images_w = np.concatenate([w, w, w, w])
         x_max, _ = problem.extent()
         x = np.linspace(-x_max, x_max, problem.targets.grid_points)
         scaled = x * math.sqrt(omega)
 
-        def particle_density(i: int) -> np.ndarray:
-            shift = (images_x * e_x[i] + images_y * e_y[i]) / math.sqrt(masses[i])
-            density = np.zeros_like(scaled)
-            for start in range(0, shift.size, DENSITY_CHUNK):
-                block = slice(start, start + DENSITY_CHUNK)
-                kernel = hermite_function(n_cm, math.sqrt(total) * (scaled[:, None] - shift[None, block])) ** 2
-                density += math.sqrt(total) * kernel @ images_w[block]
-            return math.sqrt(omega) * density
+        def pair_and_odd(plane: QuarterPlane, solution: RelativeSolution, index: int) -> tuple[np.ndarray, np.ndarray]:
+            rho, phi, weights = plane.density_on_grid(solution.vectors[index])
+            rx, ry, w = (rho * np.cos(phi)).ravel(), (rho * np.sin(phi)).ravel(), weights.ravel() / 4
+            images_x = np.concatenate([rx, rx, -rx, -rx])
+            images_y = np.concatenate([ry, -ry, ry, -ry])
+            images_w = np.concatenate([w, w, w, w])
 
+            def particle_density(i: int) -> np.ndarray:
+                shift = (images_x * e_x[i] + images_y * e_y[i]) / math.sqrt(masses[i])
+                density = np.zeros_like(scaled)
+                for start in range(0, shift.size, DENSITY_CHUNK):
+                    block = slice(start, start + DENSITY_CHUNK)
+                    kernel = hermite_function(n_cm, math.sqrt(total) * (scaled[:, None] - shift[None, block])) ** 2
+                    density += math.sqrt(total) * kernel @ images_w[block]
+                return math.sqrt(omega) * density
+
+            return particle_density(0) + particle_density(1), particle_density(2)
+
+        finest = pair_and_odd(level.plane, level.solution, level.index)
+        errors: list[float | None] = [None, None]
+        if len(level.earlier) == 2:  # the geometric-tail rule of the energies, on sup-norm distances
+            first, second = (pair_and_odd(*payload) for payload in level.earlier)
+            for s in range(2):
+                last, previous = np.max(np.abs(finest[s] - second[s])), np.max(np.abs(second[s] - first[s]))
+                floor = ROUNDING_FLOOR * max(1.0, float(np.max(np.abs(finest[s]))))
+                errors[s] = float(max(GeometricTail.bound(float(last), float(previous), floor)[0], floor))
         return {
             f"density_{pair_label}": Observable(
-                particle_density(0) + particle_density(1), {"x": x}, "1/length", f"integral dx = 2 (the {pair_label} pair)"
+                finest[0], {"x": x}, "1/length", f"integral dx = 2 (the {pair_label} pair)", error=errors[0]
             ),
             f"density_{odd_label}": Observable(
-                particle_density(2), {"x": x}, "1/length", f"integral dx = 1 (one {odd_label} particle)"
+                finest[1], {"x": x}, "1/length", f"integral dx = 1 (one {odd_label} particle)", error=errors[1]
             ),
         }
