@@ -100,7 +100,7 @@ Scalars (``result.SCALAR_NAMES``) and observables (``result.OBSERVABLE_NAMES``) 
 the largest cutoff's eigenvectors for the ``observable_states`` lowest states (suffix @k for k > 0);
 momenta use phi~_n(p) = (-i)^n phi_n(p; 1/b_s), normalized to int n_s(p) dp = N_s. Each grid's
 ``error`` is its largest change from the cutoff before, turned into a remainder by the two-cutoff rule
-(``ladder.grid_error``). Measured on 2+1 against ``three-body`` densities (mass ratios 1, 2, 20/3): the
+(``ladder.grid_error``). Measured on 2+1 against ``three-body`` densities (mass ratios 0.15-20/3): the
 density error falls like c^-1.5 ... c^-1.9, faster than the c^-2/3 the rule assumes, so the bars are
 wide (numbers in tests/test_oscillator_ed.py). The Gaussian
 tails of a finite oscillator basis cannot show the C/k^4 contact tail: the ``contact`` scalar comes
