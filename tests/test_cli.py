@@ -42,6 +42,15 @@ def test_negative_scan_values_parse(capsys):
     assert "0.4703549363" in out  # Busch et al. (1998) root at g = -1 (mpmath; ODE shooting in test_two_body.py)
 
 
+def test_solve_table_names_each_observable_with_its_error_bar(capsys):
+    assert main(["solve", "--up", "2", "--down", "1", "--g", "2", "-b", "three-body", "--observables", "density"]) == 0
+    lines = [line.strip() for line in capsys.readouterr().out.splitlines()]
+    rows = {line.split(":")[0]: line for line in lines if line.startswith("density_")}
+    assert set(rows) == {"density_up", "density_down"}
+    for row in rows.values():  # three-body's grids carry a bar (its p-ladder), printed with the units
+        assert " x points, error " in row and "1/length" in row and "not estimated" not in row
+
+
 def test_backends_lists_and_explains(capsys):
     assert main(["backends", "--up", "2", "--down", "1", "--g", "1"]) == 0
     out = capsys.readouterr().out

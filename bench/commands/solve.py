@@ -102,6 +102,10 @@ def _print_table(problem, results, verbose: bool = False) -> None:
         energies = "  ".join(f"{e:.10f}" for e in r.energies[:4]) + (" ..." if len(r.energies) > 4 else "")
         error = "-" if r.error_estimate is None else f"{r.error_estimate:.1e}"
         print(f"{r.backend:16s} {r.g:9.4g}  {energies:48s} {error:>10s} {r.wall_time_s:8.3f}")
+        for name, observable in r.observables.items():
+            grid = " x ".join(f"{len(values)} {axis}" for axis, values in observable.axes.items())
+            bar = "not estimated" if observable.error is None else f"{observable.error:.1e} {observable.units}"
+            print(f"{'':28s}{name}: {grid} points, error {bar} (values: --json or --output)")
         for warning in r.warnings:
             print(f"{'':28s}note: {warning}")
         if verbose:
