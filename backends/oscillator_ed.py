@@ -753,7 +753,7 @@ class OscillatorEDBackend(Backend):
             obs, sca, vir = self._state_observables(problem, chosen[index], energy, trap_delta)
             if obs and len(ladder.rungs) >= 2:  # the grids' error bars: their change from the cutoff before
                 before = ladder.rungs[-2].levels[ladder.keys[index]].payload
-                previous, _, _ = self._state_observables(problem, before, energy, trap_delta)
+                previous, _ = self._grids(problem, before)
                 steps = [rung.step for rung in ladder.rungs]
                 for name, observable in obs.items():
                     observable.error = grid_error(model, steps, observable.values, previous[name].values)
@@ -834,12 +834,7 @@ class OscillatorEDBackend(Backend):
         that the virial residual E - 2<V> - (g/2) dE/dg (virial theorem) tests converged quantities and
         the kinetic energy is E - <V> - g dE/dg; grids come from the largest cutoff's eigenvector.
         """
-        basis = level.sector.basis
-        m_u, m_d = level.sector.n_orbitals
-        rho_u, rho_d = fock_ed.one_body_density_matrices(basis, level.vector)
-        vector = level.vector
-        wanted = set(problem.targets.observables)
-        gamma = fock_ed.pair_tensor(basis, vector) if wanted & {"pair_position", "pair_momentum", "noise"} else None
+        observables, (rho_u, rho_d, gamma) = self._grids(problem, level)
         trap, delta = (float(v) for v in trap_delta)
         g = problem.coupling
         mu = problem.reduced_mass()
@@ -850,6 +845,18 @@ class OscillatorEDBackend(Backend):
             "contact": (2 * mu) ** 2 * g**2 * delta,
         }
         virial = energy - 2 * trap - 0.5 * g * delta
+        if "noise" in problem.targets.observables:
+            scalars["noise_integral"] = self.noise_integral(gamma, rho_u, rho_d, level.sector.n_orbitals, level.sector.lengths)
+        return observables, scalars, virial
+
+    @staticmethod
+    def _grids(problem: Problem, level: Level) -> tuple[dict[str, Observable], tuple]:
+        """The requested observables on grids of one state, and (rho_up, rho_down, pair tensor or None) behind them."""
+        basis = level.sector.basis
+        m_u, m_d = level.sector.n_orbitals
+        rho_u, rho_d = fock_ed.one_body_density_matrices(basis, level.vector)
+        wanted = set(problem.targets.observables)
+        gamma = fock_ed.pair_tensor(basis, level.vector) if wanted & {"pair_position", "pair_momentum", "noise"} else None
         observables: dict[str, Observable] = {}
         x_max, p_max = problem.extent()
         x = np.linspace(-x_max, x_max, problem.targets.grid_points)
@@ -888,8 +895,7 @@ class OscillatorEDBackend(Backend):
                 fock_ed.noise_on_grid(gamma, rho_u, rho_d, mom_u, mom_d), {"p_up": p, "p_down": p}, "1/momentum^2",
                 "integral = 0",
             )
-            scalars["noise_integral"] = self.noise_integral(gamma, rho_u, rho_d, (m_u, m_d), level.sector.lengths)
-        return observables, scalars, virial
+        return observables, (rho_u, rho_d, gamma)
 
     @staticmethod
     def noise_integral(gamma, rho_u, rho_d, n_orbitals, lengths) -> float:

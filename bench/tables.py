@@ -232,7 +232,7 @@ def cost_vs_particle_number_table(frame: pd.DataFrame, accuracy: float = COST_VS
     ok["verdict"] = judge_frame(ok, accuracy)
     rows = []
     for (backend, n), group in ok.groupby(["backend", "n"]):
-        costs, peaks, own_costs, own_peaks, reached, unverified, total = [], [], [], [], 0, 0, 0
+        cheapest, cheapest_own, reached, unverified, total = [], [], 0, 0, 0  # per problem: its cheapest run
         for _, problem_rows in group.groupby("problem_key"):
             total += 1
             good = problem_rows[problem_rows["verdict"] == REACHED]
@@ -242,19 +242,19 @@ def cost_vs_particle_number_table(frame: pd.DataFrame, accuracy: float = COST_VS
                 own = pd.to_numeric(open_rows["own_rel_error"], errors="coerce")
                 small_bar = open_rows[own.abs() <= accuracy]
                 if not small_bar.empty:
-                    pick = small_bar.loc[small_bar["cost_cpu_s"].idxmin()]
-                    own_costs.append(pick["cost_cpu_s"])
-                    own_peaks.append(pick["peak_mib"])
+                    cheapest_own.append(small_bar.loc[small_bar["cost_cpu_s"].idxmin()])
                 continue
             reached += 1
-            pick = good.loc[good["cost_cpu_s"].idxmin()]
-            costs.append(pick["cost_cpu_s"])
-            peaks.append(pick["peak_mib"])
+            cheapest.append(good.loc[good["cost_cpu_s"].idxmin()])
+
+        def largest(picks: list, column: str):
+            return max(pick[column] for pick in picks) if picks else None
+
         rows.append({"backend": backend, "n": int(n), "accuracy": accuracy, "problems_reached": f"{reached}/{total}",
                      "problems_unverified": f"{unverified}/{total}",
-                     "cpu_s": max(costs) if costs else None, "peak_mib": max(peaks) if peaks else None,
-                     "cpu_s_own_bar": max(own_costs) if own_costs else None,
-                     "peak_mib_own_bar": max(own_peaks) if own_peaks else None})
+                     "cpu_s": largest(cheapest, "cost_cpu_s"), "peak_mib": largest(cheapest, "peak_mib"),
+                     "cpu_s_own_bar": largest(cheapest_own, "cost_cpu_s"),
+                     "peak_mib_own_bar": largest(cheapest_own, "peak_mib")})
     return pd.DataFrame(rows, columns=COST_VS_N_COLUMNS)
 
 
