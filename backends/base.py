@@ -102,7 +102,12 @@ class Capabilities:
     - ``excited_states``: it computes more than the ground state;
     - ``observables``: the target observables (``problems.spec.OBSERVABLES``) it computes, at least for the
       lowest state;
-    - ``error_bars``: it reports an error bar per energy (``energy_errors``).
+    - ``error_bars``: it reports an error bar per energy (``energy_errors``);
+    - ``built_on``: the reference routes (``problems.references.ROUTES``) whose formula or code the method
+      itself uses: a value of such a route never grades it (another route to the same value may);
+    - ``calibrated_on``: the (N_up, N_down) whose exact energies the method takes as input (e.g. a coupling
+      fitted to the two-body spectrum): there its energies are exact by construction, and no energy
+      reference grades it at any finite g.
     """
 
     particle_counts: tuple[tuple[int, int], ...] | None = None
@@ -115,8 +120,17 @@ class Capabilities:
     excited_states: bool = True
     observables: tuple[str, ...] = ()
     error_bars: bool = False
+    built_on: tuple[str, ...] = ()
+    calibrated_on: tuple[tuple[int, int], ...] = ()
 
     def __post_init__(self) -> None:
+        from ..problems.references import ROUTES
+
+        unknown_routes = set(self.built_on) - set(ROUTES)
+        if unknown_routes:
+            raise ValueError(f"capabilities.built_on: unknown route(s) {sorted(unknown_routes)}; known: {', '.join(ROUTES)}")
+        if any(len(counts) != 2 or min(counts) < 0 for counts in self.calibrated_on):
+            raise ValueError(f"capabilities.calibrated_on: give (N_up, N_down) pairs of counts >= 0 (got {self.calibrated_on!r})")
         unknown = set(self.observables) - set(OBSERVABLES)
         if unknown:
             raise ValueError(f"capabilities.observables: unknown {sorted(unknown)}; known: {', '.join(OBSERVABLES)}")

@@ -576,6 +576,10 @@ class OscillatorEDBackend(Backend):
         max_particles=10,
         observables=("density", "momentum", "obdm", "pair_position", "pair_momentum", "noise", "contact", "trap_energy"),
         error_bars=True,
+        # the running coupling and the effective interaction are fitted to Busch's two-body spectrum, which
+        # they reproduce at 1+1 by construction (declared for every interaction choice, 'bare' included)
+        built_on=("busch-roots",),
+        calibrated_on=((1, 1),),
     )
     check_params = {"cutoff": 12, "ladder": 3}
     parameters = (

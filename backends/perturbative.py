@@ -70,7 +70,8 @@ class PerturbativeBackend(Backend):
     version = "1"
     summary = "Non-interacting levels + exact first-order shift in g (degenerate perturbation theory); small |g| only"
     parameters = ()
-    capabilities = Capabilities()  # energies only, in the harmonic trap
+    # energies only, in the harmonic trap; its zeroth and first orders are the towers and c1 references' formulas
+    capabilities = Capabilities(built_on=("oscillator-towers", "first-order"))
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         g = problem.coupling

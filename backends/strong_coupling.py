@@ -75,6 +75,7 @@ class StrongCouplingBackend(Backend):
         couplings="repulsive",
         observables=("density", "contact"),
         error_bars=True,
+        built_on=("fermionization",),  # E_inf is the fermionized tower (its K comes by a route of its own)
     )
 
     def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:

@@ -54,6 +54,7 @@ class TwoBodyBackend(Backend):
         unequal_frequencies=False,  # the centre of mass separates only with one trap frequency
         observables=("density", "momentum", "contact", "trap_energy"),
         error_bars=True,
+        built_on=("busch-roots",),  # graded by ODE shooting of the relative problem instead
     )
     parameters = (
         Parameter(

@@ -389,12 +389,14 @@ def graded_frame(frame: pd.DataFrame, tolerance=None) -> pd.DataFrame:
     results, for N >= 4 two method families that agree. A backend is graded only by other families' values.
     """
     from ..problems import dataset
-    from ..problems.references import Reference, references_for
+    from ..problems.references import Reference, is_calibrated_on, references_for
 
     best = dataset.best_values(frame[frame["status"] == "ok"].to_dict("records"))
 
     def references(problem, backend):
         refs = references_for(problem, for_backend=backend)
+        if is_calibrated_on(problem, backend):
+            return refs
         known = {r.state for r in refs if r.quantity == "energy"}
         key = dataset.problem_key(problem)
         for state, candidates in sorted(best.get(key, {}).items()) if key else ():
@@ -405,7 +407,7 @@ def graded_frame(frame: pd.DataFrame, tolerance=None) -> pd.DataFrame:
                 value, uncertainty, methods = graded
                 refs.append(Reference("energy", state, value, uncertainty,
                                       f"results of {', '.join(methods)} in the same store (agreement rule of the"
-                                      " reference dataset)", "computed", methods=methods))
+                                      " reference dataset)", "computed", methods=methods, route="dataset"))
         return refs
 
     parts = [attach_references(rows, lambda p, b=backend: references(p, b), tolerance)

@@ -216,3 +216,20 @@ def test_map_command_writes_a_table_that_advise_reads(tmp_path, capsys):
     assert advice.best.backend == "two-body" and advice.best.evidence == "measured"
     assert main(["map", "--store", str(tmp_path / "absent.sqlite")]) == 2
     assert "no store at" in capsys.readouterr().err
+
+
+def test_tables_grade_each_backend_only_by_references_it_is_not_built_on():
+    # the 1+1 ground state at g = 2 (Busch et al. (1998); here by ODE shooting, common practice):
+    # two-body is graded by ODE shooting, oscillator-ed (calibrated on 1+1) by nothing and lattice-ed by
+    # the exact root itself.
+    from trapbench.problems.exact.relative_shooting import ground_energy
+
+    e0 = ground_energy(2.0)
+    frame = attach_references(pd.concat([
+        runs(name, [(1.0, 1.0, 2.0, e0 + 1e-11, 1e-10, 1.0, {})], n_up=1, n_down=1)
+        for name in ("two-body", "oscillator-ed", "lattice-ed")], ignore_index=True))
+    graded = frame.set_index("backend")
+    assert graded.loc["two-body", "ref_kind"] == "derived" and "ODE shooting" in graded.loc["two-body", "ref_source"]
+    assert graded.loc["lattice-ed", "ref_kind"] == "exact" and "Busch" in graded.loc["lattice-ed", "ref_source"]
+    assert graded.loc["oscillator-ed", "error_basis"] == "own estimate" and pd.isna(graded.loc["oscillator-ed", "ref_value"])
+    assert graded.loc["lattice-ed", "abs_error"] == pytest.approx(1e-11, abs=1e-10)

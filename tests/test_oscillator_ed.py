@@ -2,7 +2,7 @@
 
 References: the ``two-body`` backend (Busch et al., Found. Phys. 28, 549 (1998), an independent
 root of the 1D Busch equation), itself checked here against ODE shooting of the relative problem
-(tests/relative_shooting.py); the ``perturbative`` backend and the first-order rationals c1 sqrt(2 pi)
+(trapbench.problems.exact.relative_shooting); the ``perturbative`` backend and the first-order rationals c1 sqrt(2 pi)
 (Gaussian integrals worked out by hand, no published source; re-derived by quadrature in
 test_references.py); non-interacting energies (textbook oscillator towers); the totally antisymmetric
 states (N spinless fermions, closed form); the centre-of-mass ladder (exact separation for a common
@@ -19,8 +19,6 @@ not fix (excited relative levels, N > 2) are the independent ones.
 from __future__ import annotations
 
 import math
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -34,8 +32,7 @@ from trapbench.backends.registry import get
 from trapbench.problems.errors import SpecError
 from trapbench.problems.spec import Problem
 
-sys.path.insert(0, str(Path(__file__).parent))
-from relative_shooting import ground_energy  # noqa: E402
+from trapbench.problems.exact.relative_shooting import ground_energy
 
 
 @pytest.fixture(autouse=True)

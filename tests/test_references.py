@@ -1,7 +1,7 @@
 """Reference values checked against routes that share no code with the formula under test.
 
 Sources, named beside each check: Busch's equation for 1+1 (T. Busch et al., Found. Phys. 28, 549
-(1998)) re-derived by ODE shooting of the relative problem (scipy's DOP853, tests/relative_shooting.py)
+(1998)) re-derived by ODE shooting of the relative problem (scipy's DOP853, trapbench.problems.exact.relative_shooting)
 and by scipy.special.gamma; expansions of that equation derived here; brute-force enumeration of
 oscillator configurations; first-order integrals by scipy.integrate.quad over scipy.special.eval_hermite;
 the spin chain (Volosniev et al., Nat. Commun. 5, 5300 (2014)) by the solver's 1D reduction against the
@@ -10,8 +10,6 @@ references' direct quadrature; oscillator-ed at large g for the hard-core wedges
 
 import itertools
 import math
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -35,8 +33,10 @@ from trapbench.problems.references import (
 )
 from trapbench.problems.spec import Problem
 
-sys.path.insert(0, str(Path(__file__).parent))
-from relative_shooting import even_level, ground_energy  # noqa: E402
+from trapbench.problems.exact import busch, relative_shooting
+from trapbench.problems.exact.relative_shooting import even_level, ground_energy
+from trapbench.backends.base import Capabilities
+from trapbench.problems.references import ROUTES, is_calibrated_on
 
 
 def energies(problem, quantity="energy"):
@@ -208,9 +208,75 @@ def test_two_body_next_order_coefficient():
     assert (exact - (2 - k / g)) * g**2 / k**2 == pytest.approx(1 - math.log(2), rel=2e-2)
 
 
-def test_every_reference_names_its_source_and_kind():
+def test_every_reference_names_its_source_kind_and_route():
     for r in references_for(Problem.create(1, 1, 2.0, states=3)) + references_for(Problem.create(3, 1, 40.0, states=2)):
         assert r.source and r.kind in ("exact", "derived", "published", "recalled") and r.uncertainty >= 0
+        assert r.route in ROUTES
+
+
+@pytest.mark.parametrize("lam", [-7.0, -0.7, 1.4, 70.0])
+@pytest.mark.parametrize("parity", [None, 1, -1])
+def test_shooting_levels_match_busch_roots_with_centre_of_mass_towers(lam, parity):
+    # two routes to the 1+1 spectrum E = n_cm + 1/2 + e: Busch et al. (1998) in 30-digit arithmetic and ODE
+    # shooting (common practice, no source); eight levels reach the fourth even relative level
+    shot = relative_shooting.two_body_levels(lam, 1.0, 8, parity)
+    exact = busch.two_body_levels(lam, 1.0, 8, parity)
+    assert [p for _, p in shot] == [p for _, p in exact]
+    assert np.allclose([e for e, _ in shot], [e for e, _ in exact], rtol=0, atol=relative_shooting.UNCERTAINTY / 100)
+
+
+def test_high_shooting_levels_integrate_past_their_turning_point():
+    # branch 10 (e ~ 21) has its turning point at y ~ 6.5: the range grows with e (Busch et al. (1998) roots)
+    assert even_level(3.0, 10) == pytest.approx(busch_even_level(3.0, 10), abs=1e-11)
+
+
+class _Declaring:
+    """A backend object that is not in the registry, declaring what it is built on."""
+
+    name = "my-solver"
+
+    def __init__(self, **declared):
+        self.capabilities = Capabilities(**declared)
+
+
+def test_a_backend_built_on_busch_roots_is_graded_by_shooting():
+    problem = Problem.create(1, 1, 2.0, mass_up=2.0, states=4)
+    plain = [r for r in references_for(problem) if r.quantity == "energy"]
+    for graded_backend in ("two-body", _Declaring(built_on=("busch-roots",))):
+        shot = [r for r in references_for(problem, for_backend=graded_backend) if r.quantity == "energy"]
+        assert [r.route for r in shot] == ["relative-shooting"] * 4 and [r.route for r in plain] == ["busch-roots"] * 4
+        assert all("ODE shooting" in r.source and r.uncertainty == relative_shooting.UNCERTAINTY for r in shot)
+        assert [r.value for r in shot] == pytest.approx([r.value for r in plain], abs=1e-11)
+    # a method that does not use Busch's equation (a lattice) is graded by the exact roots themselves
+    assert [r.route for r in references_for(problem, for_backend="lattice-ed") if r.quantity == "energy"] == ["busch-roots"] * 4
+
+
+def test_no_energy_grades_a_backend_at_the_counts_it_is_calibrated_on():
+    # oscillator-ed's running coupling and effective interaction reproduce the 1+1 spectrum by construction
+    problem = Problem.create(1, 1, 2.0, states=3)
+    assert is_calibrated_on(problem, "oscillator-ed") and not is_calibrated_on(problem, "lattice-ed")
+    assert not [r for r in references_for(problem, for_backend="oscillator-ed") if r.quantity in ("energy", "K")]
+    assert [r for r in references_for(problem, for_backend="oscillator-ed") if r.quantity == "energy_g_inf"]
+    # at g = 0 nothing was fitted: the towers grade it; at 2+1 the calibration does not apply
+    assert [r.route for r in references_for(problem.at(0.0), for_backend="oscillator-ed") if r.quantity == "energy"] == [
+        "oscillator-towers"] * 3
+    assert not is_calibrated_on(Problem.create(2, 1, 2.0), "oscillator-ed")
+    declared = _Declaring(calibrated_on=((1, 1),))
+    assert not [r for r in references_for(problem, for_backend=declared) if r.quantity == "energy"]
+
+
+def test_first_order_and_towers_never_grade_the_perturbative_backend():
+    problem = Problem.create(2, 1, 0.0, states=2)
+    routes = {r.route for r in references_for(problem, for_backend="perturbative")}
+    assert not routes & {"first-order", "oscillator-towers"}
+    assert {"first-order", "oscillator-towers"} <= {r.route for r in references_for(problem)}
+
+
+def test_capabilities_name_known_routes_and_particle_counts():
+    with pytest.raises(ValueError, match="capabilities.built_on: unknown route"):
+        Capabilities(built_on=("busch",))
+    with pytest.raises(ValueError, match="capabilities.calibrated_on"):
+        Capabilities(calibrated_on=((1,),))
 
 
 def test_no_references_for_non_harmonic_traps():

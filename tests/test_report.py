@@ -5,7 +5,7 @@ A tiny store is built with the real ``two-body`` (exact, Busch et al.) and ``per
 the numbers in the store, and the report's own arithmetic (odd-even staggering, noise slope) with
 independent evaluations: the first-order coefficients c1 = sum_ij int phi_i^2 phi_j^2 dx
 (first-order perturbation theory, a textbook result) by scipy quadrature over scipy's Hermite
-polynomials, the two-body energy by ODE shooting (tests/relative_shooting.py), and a synthetic
+polynomials, the two-body energy by ODE shooting (trapbench.problems.exact.relative_shooting), and a synthetic
 quadratic.
 """
 
@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import math
 import re
-import sys
 import textwrap
 from pathlib import Path
 
@@ -31,8 +30,7 @@ from trapbench.bench.store import Store  # noqa: E402
 from trapbench.bench.suite import load_suite  # noqa: E402
 from trapbench.bench.sweep import SweepOptions, run_sweep  # noqa: E402
 
-sys.path.insert(0, str(Path(__file__).parent))
-from relative_shooting import ground_energy  # noqa: E402
+from trapbench.problems.exact.relative_shooting import ground_energy
 
 SUITE = """
 name = "report-test"

@@ -4,12 +4,10 @@ Source of the equation: T. Busch et al., Found. Phys. 28, 549 (1998), 1D case:
 Gamma(3/4 - e/2) / Gamma(1/4 - e/2) = -lambda/2 with lambda = g sqrt(mu), E = n + 1/2 + e.
 The reference roots here are found by mpmath (30 digits) directly on that ratio, an implementation
 independent of the backend's reformulation, and by ODE shooting of the relative problem
-(tests/relative_shooting.py), which does not use the Gamma-function form at all.
+(trapbench.problems.exact.relative_shooting), which does not use the Gamma-function form at all.
 """
 
 import math
-import sys
-from pathlib import Path
 
 import mpmath
 import numpy as np
@@ -18,8 +16,7 @@ import pytest
 from trapbench.backends import get
 from trapbench.problems import Problem
 
-sys.path.insert(0, str(Path(__file__).parent))
-from relative_shooting import even_level, ground_energy  # noqa: E402
+from trapbench.problems.exact.relative_shooting import even_level, ground_energy
 
 mpmath.mp.dps = 30
 
