@@ -148,3 +148,43 @@ def test_catalogue_json_prints_every_entry_with_dataset_references(capsys):
     assert len(served) == len(loaded.entries)
     with_energy = [e for e in served if any(r["quantity"] == "energy" and r["kind"] == "computed" for r in e["references"])]
     assert len(with_energy) == published
+
+
+def _store_fixed_levels(path, suite, backend_name, energy, error):
+    """A store holding one result of ``suite``: 2+2, equal masses, g = 2, from a stand-in named ``backend_name``."""
+    from trapbench.backends.base import Backend, Capabilities
+    from trapbench.backends.result import Solution
+    from trapbench.bench.executor import OK, Outcome
+    from trapbench.bench.store import Store
+    from trapbench.bench.suite import Task
+
+    class Fixed(Backend):
+        name, version, summary = backend_name, "1", "a fixed level (test stand-in)"
+        parameters = ()
+        capabilities = Capabilities(error_bars=True)
+
+        def compute(self, problem, params):
+            return Solution(energies=[energy], states=[{}], energy_errors=[error])
+
+    problem = Problem.create(2, 2, 2.0)
+    with Store.open(path) as store:
+        run_id = store.begin_run(suite, "", 1)
+        store.record(run_id, suite, Task("2+2 m=1", problem, backend_name, {}, 60.0, 512.0),
+                     Outcome(status=OK, result=Fixed().solve(problem).to_json_dict(), wall_time_s=0.1, cpu_time_s=0.1,
+                             peak_rss_bytes=1 << 20))
+
+
+def test_the_build_command_pools_several_stores_and_suites(tmp_path):
+    # one method family in each store: neither store alone has two independent methods, together they agree
+    _store_fixed_levels(tmp_path / "a.sqlite", "dataset", "oscillator-ed", 5.5394, 2e-4)
+    _store_fixed_levels(tmp_path / "b.sqlite", "map", "lattice-ed", 5.5392, 3e-4)
+    out = tmp_path / "data.json"
+    args = ["dataset", "--store", str(tmp_path / "a.sqlite"), "--output", str(out), "--replace"]
+    assert main(args) == 0
+    alone = dataset.Dataset.from_json_dict(json.loads(out.read_text()))
+    assert [lv.status for e in alone.entries for lv in e.levels] == ["open"]
+    assert main(args + ["--store", str(tmp_path / "b.sqlite"), "--suite", "dataset", "--suite", "map"]) == 0
+    pooled = dataset.Dataset.from_json_dict(json.loads(out.read_text()))
+    level = pooled.entries[0].levels[0]
+    assert level.status == "agreed" and level.value == 5.5394 and level.uncertainty == 3e-4
+    assert {m.backend for m in level.methods} == {"oscillator-ed", "lattice-ed"}

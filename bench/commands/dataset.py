@@ -3,10 +3,12 @@
 Run the suite first (locally or on Dask through the usual options), then this step applies the agreement
 rule of ``trapbench.problems.dataset`` and writes the versioned data file that the catalogue serves. By
 default the store's grid points are merged into the existing file (a sweep of part of the grid adds to it);
-``--replace`` writes the store's points alone:
+``--replace`` writes the store's points alone. ``--store`` and ``--suite`` repeat: the rule then sees the
+results of every named suite in every store together (e.g. the method map's runs at the dataset's g = 2):
 
     trapbench sweep dataset --store ground-truth.sqlite --workers 2
     trapbench dataset --store ground-truth.sqlite
+    trapbench dataset --store ground-truth.sqlite --store map.sqlite --suite dataset --suite map
 """
 
 from __future__ import annotations
@@ -21,8 +23,10 @@ ORDER = 46
 
 
 def register(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--store", required=True, metavar="PATH", help="the results store of the dataset sweep")
-    parser.add_argument("--suite", default="dataset", help="the suite whose results to use (default: dataset)")
+    parser.add_argument("--store", required=True, action="append", metavar="PATH",
+                        help="a results store of the dataset sweep (repeat to pool several stores)")
+    parser.add_argument("--suite", action="append", metavar="SUITE",
+                        help="a suite whose results to use (repeat for several; default: dataset)")
     parser.add_argument("--output", metavar="PATH",
                         help="where to write the data file (default: the file shipped in this installation)")
     parser.add_argument("--version", dest="dataset_version", metavar="TEXT",
@@ -40,13 +44,18 @@ def run(args: argparse.Namespace) -> int:
     from ...problems.errors import SpecError
     from ..store import Store
 
-    if not Path(args.store).is_file():
-        raise SpecError("--store", f"no store at {args.store}; run 'trapbench sweep dataset --store {args.store}' first")
-    with Store.open(args.store) as store:
-        frame = store.results_frame(suite=args.suite)
-    if frame.empty:
-        raise SpecError("--suite", f"the store holds no results of suite '{args.suite}'")
-    built = dataset.build(frame.to_dict("records"), version=args.dataset_version or dataset.DATASET_VERSION)
+    suites = args.suite or ["dataset"]
+    frames = []
+    for path in args.store:
+        if not Path(path).is_file():
+            raise SpecError("--store", f"no store at {path}; run 'trapbench sweep dataset --store {path}' first")
+        with Store.open(path) as store:
+            frames += [store.results_frame(suite=suite) for suite in suites]
+    frames = [frame for frame in frames if not frame.empty]
+    if not frames:
+        raise SpecError("--suite", f"the store(s) hold no results of suite(s) {', '.join(repr(s) for s in suites)}")
+    rows = pd.concat(frames, ignore_index=True).to_dict("records")
+    built = dataset.build(rows, version=args.dataset_version or dataset.DATASET_VERSION)
     target = Path(args.output) if args.output else dataset.dataset_path()
     if not args.replace and target.is_file():
         existing = dataset.Dataset.from_json_dict(json.loads(target.read_text(encoding="utf-8")))
