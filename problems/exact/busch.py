@@ -100,8 +100,15 @@ def relative_levels(lam: float, count: int) -> list[tuple[float, int]]:
 def two_body_levels(lam: float, omega: float, states: int, parity: int | None = None) -> list[tuple[float, int]]:
     """The lowest ``states`` (E, parity) levels of 1+1 with the given relative coupling, in the parity
     sector ``parity`` (+1, -1 or None for both), from the 30-digit roots; E = omega (n_cm + 1/2 + e)."""
+    return total_levels([busch_even_level(lam, n) for n in range(states + 2)], omega, states, parity)
+
+
+def total_levels(even: list[float], omega: float, states: int, parity: int | None = None) -> list[tuple[float, int]]:
+    """The lowest ``states`` (E, parity) levels E = omega (n_cm + 1/2 + e) in the sector ``parity``, from the
+    even relative levels ``even`` (ascending) and the contact-free odd ones e = 3/2 + 2n; parity (-1)^n_cm
+    times the relative parity. Exact when ``even`` holds every even level that can be among them."""
     ladder = states + 2
-    relative = [(busch_even_level(lam, n), 1) for n in range(ladder)] + [(1.5 + 2 * n, -1) for n in range(ladder)]
+    relative = [(e, 1) for e in even] + [(1.5 + 2 * n, -1) for n in range(ladder)]
     levels = [
         (omega * (n_cm + 0.5 + e), (-1) ** n_cm * rel_parity)
         for n_cm in range(ladder)

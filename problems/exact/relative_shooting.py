@@ -11,7 +11,8 @@ sqrt(2 e), where the growing solution dominates unless e is an eigenvalue: psi(y
 each even level, and Brent's method finds it. Odd relative levels e = 3/2 + 2n do not feel the contact.
 Total energies E = omega (n_cm + 1/2 + e), parity (-1)^n_cm times the relative parity.
 
-This shares nothing with the Gamma-function form of Busch's equation: it is the standard shooting method
+This shares nothing with the Gamma-function form of Busch's equation (only the assembly of the centre-of-mass
+towers, ``busch.total_levels``, which the ``two-body`` backend does not use): it is the standard shooting method
 (common practice, no source; e.g. Press et al., Numerical Recipes, 3rd ed. (2007), section 18.1), so it can
 grade a method built on that equation (``references.ROUTES``). Measured agreement with the 30-digit roots
 of ``busch.busch_even_level`` for lambda from -7 to 70 and the lowest three even levels: <= 3e-13
@@ -24,6 +25,8 @@ import math
 from functools import lru_cache
 
 from scipy import integrate, optimize
+
+from .busch import total_levels
 
 # Past the turning point sqrt(2 e) the decaying solution falls like exp(-y^2/2): 6.5 lengths more leave
 # it ~1e-11 of the growing one, so the endpoint's sign is the eigenvalue test (measured: y_max = 7 gives
@@ -78,17 +81,7 @@ def two_body_levels(lam: float, omega: float, states: int, parity: int | None = 
     bracket end the ``states``-th energy E_cut is an upper bound, and a level whose lower bracket end puts
     it above E_cut cannot enter.
     """
-    def assemble(even: list[float]) -> list[tuple[float, int]]:
-        relative = [(e, 1) for e in even] + [(1.5 + 2 * n, -1) for n in range(states + 2)]
-        levels = [
-            (omega * (n_cm + 0.5 + e), (-1) ** n_cm * rel_parity)
-            for n_cm in range(states + 2)
-            for e, rel_parity in relative
-            if parity in (None, (-1) ** n_cm * rel_parity)
-        ]
-        return sorted(levels, key=lambda level: level[0])[:states]
-
     ladder = states + 2
-    cut = assemble([_bracket(lam, n)[1] for n in range(ladder)])[-1][0]
+    cut = total_levels([_bracket(lam, n)[1] for n in range(ladder)], omega, states, parity)[-1][0]
     needed = [n for n in range(ladder) if omega * (0.5 + _bracket(lam, n)[0]) <= cut]
-    return assemble([even_level(lam, n) for n in needed])
+    return total_levels([even_level(lam, n) for n in needed], omega, states, parity)
