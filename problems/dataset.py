@@ -35,7 +35,7 @@ import datetime as _dt
 import json
 import math
 from collections.abc import Iterable, Mapping
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from functools import lru_cache
 from importlib import resources
 from pathlib import Path
@@ -289,16 +289,36 @@ def build(rows: Iterable[Mapping[str, Any]], version: str = DATASET_VERSION) -> 
 
 
 def merge(existing: Dataset, update: Dataset) -> Dataset:
-    """``update``'s entries over ``existing``'s: a grid point measured anew replaces the old entry, every other is kept.
+    """``update``'s entries pooled with ``existing``'s, level by level, as if both had been built from one store.
 
-    A sweep of part of the grid (say the N = 4 points) thus adds to the shipped file instead of erasing the rest.
-    The result carries ``update``'s version and creation time.
+    For a grid point in both, each level's methods are pooled (per backend the value with the smaller error bar,
+    ``update``'s on a tie) and judged again by the agreement rule (``judge_level``); a level only one side has is
+    kept as it is. A sweep of part of the grid, or of fewer levels, thus adds to the shipped file instead of erasing
+    what it does not measure. The result carries ``update``'s version and creation time.
     """
     entries = {entry.key: entry for entry in existing.entries}
-    entries.update({entry.key: entry for entry in update.entries})
+    for entry in update.entries:
+        old = entries.get(entry.key)
+        entries[entry.key] = entry if old is None else _merge_entry(old, entry)
     order = {problem_key(point): k for k, point in enumerate(p for problem in dataset_problems() for p in problem.points())}
     ordered = sorted(entries.values(), key=lambda e: order.get(e.key, len(order)))
     return Dataset(update.version, update.created, tuple(ordered), update.rule, update.units)
+
+
+def _merge_entry(old: DatasetEntry, new: DatasetEntry) -> DatasetEntry:
+    levels = {level.state: level for level in old.levels}
+    for level in new.levels:
+        previous = levels.get(level.state)
+        if previous is None:
+            levels[level.state] = level
+            continue
+        pooled: dict[str, MethodValue] = {}
+        for method in (*previous.methods, *level.methods):  # the update's last: it wins a tie
+            current = pooled.get(method.backend)
+            if current is None or method.error <= current.error:
+                pooled[method.backend] = method
+        levels[level.state] = judge_level(level.state, new.n_up + new.n_down, pooled)
+    return replace(new, levels=tuple(levels[state] for state in sorted(levels)))
 
 
 def summary_rows(dataset: Dataset) -> list[dict[str, Any]]:

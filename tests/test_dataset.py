@@ -111,6 +111,21 @@ def test_a_partial_build_merges_into_the_existing_file_without_losing_points():
     assert remerged.index[three.entries[0].key].levels[0].value == 4.1
 
 
+def test_a_merge_keeps_the_levels_and_the_precision_the_update_lacks():
+    shipped = dataset.build([row("three-body", 4.1, 1e-12, n=(2, 1), g=2.0),
+                             row("three-body", 5.3, 1e-12, n=(2, 1), g=2.0, state=1)])
+    ground_only = dataset.build([row("three-body", 4.1 + 1e-9, 1e-8, n=(2, 1), g=2.0)])
+    (entry,) = dataset.merge(shipped, ground_only).entries
+    assert [(level.state, level.value, level.uncertainty) for level in entry.levels] == [(0, 4.1, 1e-12), (1, 5.3, 1e-12)]
+    # methods are pooled per level and judged again: a second family turns a one-method level into an agreed one
+    lattice_only = dataset.build([row("lattice-dmrg", 10.0, 1e-4)])
+    with_oscillator = dataset.build([row("oscillator-ed", 10.00005, 2e-5)])
+    (pooled,) = dataset.merge(lattice_only, with_oscillator).entries
+    assert lattice_only.entries[0].levels[0].status == "open"
+    level = pooled.levels[0]
+    assert (level.status, level.value, level.uncertainty) == ("agreed", 10.00005, 1e-4)
+
+
 def _shipped():
     loaded = dataset.load()
     if not loaded.entries:

@@ -2,7 +2,8 @@
 
 Run the suite first (locally or on Dask through the usual options), then this step applies the agreement
 rule of ``trapbench.problems.dataset`` and writes the versioned data file that the catalogue serves. By
-default the store's grid points are merged into the existing file (a sweep of part of the grid adds to it);
+default the store's grid points are merged into the existing file level by level (the methods of a level in both
+are pooled and judged again; a sweep of part of the grid, or of fewer levels, adds to it);
 ``--replace`` writes the store's points alone. ``--store`` and ``--suite`` repeat: the rule then sees the
 results of every named suite in every store together (e.g. the method map's runs at the dataset's g = 2):
 
@@ -61,7 +62,8 @@ def run(args: argparse.Namespace) -> int:
         existing = dataset.Dataset.from_json_dict(json.loads(target.read_text(encoding="utf-8")))
         kept = len({e.key for e in existing.entries} - {e.key for e in built.entries})
         built = dataset.merge(existing, built)
-        print(f"merged into {target}: {kept} grid point(s) not in this store kept as they were")
+        print(f"merged into {target}: {kept} grid point(s) not in this store kept as they were;"
+              " levels of the others pooled with the file's methods and judged again")
     summary = pd.DataFrame(dataset.summary_rows(built))
     if summary.empty:
         print("no grid point of the dataset has a measured level in this store")
