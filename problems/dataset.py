@@ -321,6 +321,35 @@ def _merge_entry(old: DatasetEntry, new: DatasetEntry) -> DatasetEntry:
     return replace(new, levels=tuple(levels[state] for state in sorted(levels)))
 
 
+def disagreements(dataset: Dataset) -> list[dict[str, Any]]:
+    """One row per level where the two most precise method families differ by more than their combined bars.
+
+    At each such level at least one of the two error bars misses the truth; the level grades neither method,
+    so an error-bar calibration measured on the agreed levels alone cannot see it. ``sigmas`` is the gap in
+    units of the combined bars (> 1 by definition of a disagreement).
+    """
+    rows = []
+    for entry in dataset.entries:
+        for level in entry.levels:
+            if level.status != "open":
+                continue
+            by_family: dict[str, MethodValue] = {}
+            for m in sorted(level.methods, key=lambda m: m.error):
+                by_family.setdefault(METHOD_FAMILIES.get(m.backend, m.backend), m)
+            if len(by_family) < 2:
+                continue
+            a, b = sorted(by_family.values(), key=lambda m: m.error)[:2]
+            gap = abs(a.value - b.value)
+            if gap <= a.error + b.error:
+                continue
+            rows.append({"config": f"{entry.n_up}+{entry.n_down}", "N": entry.n_up + entry.n_down,
+                         "mass ratio": entry.mass_up / entry.mass_down, "g": entry.g, "state": level.state,
+                         "method A": a.backend, "E_A": a.value, "bar A": a.error,
+                         "method B": b.backend, "E_B": b.value, "bar B": b.error,
+                         "gap": gap, "sigmas": gap / (a.error + b.error)})
+    return rows
+
+
 def summary_rows(dataset: Dataset) -> list[dict[str, Any]]:
     """One row per level: where it stands against the uncertainty goal of its particle number."""
     rows = []

@@ -203,3 +203,12 @@ def test_the_build_command_pools_several_stores_and_suites(tmp_path):
     level = pooled.entries[0].levels[0]
     assert level.status == "agreed" and level.value == 5.5394 and level.uncertainty == 3e-4
     assert {m.backend for m in level.methods} == {"oscillator-ed", "lattice-ed"}
+
+
+def test_disagreements_list_the_levels_where_two_families_exclude_each_other():
+    built = dataset.build([row("oscillator-ed", 10.01, 2e-3), row("lattice-dmrg", 10.0, 1e-3),  # gap 0.01 > 3e-3
+                           row("oscillator-ed", 7.0, 1e-3, g=5.0), row("lattice-ed", 7.0005, 1e-3, g=5.0),  # agreed
+                           row("oscillator-ed", 3.0, 1e-3, g=-1.0)])  # one family: open, but no conflict
+    (conflict,) = dataset.disagreements(built)
+    assert (conflict["g"], conflict["method A"], conflict["method B"]) == (2.0, "lattice-dmrg", "oscillator-ed")
+    assert conflict["gap"] == pytest.approx(0.01) and conflict["sigmas"] == pytest.approx(0.01 / 3e-3)

@@ -27,6 +27,13 @@ def calibration(frame: pd.DataFrame) -> pd.DataFrame:
     return error_bar_calibration(frame[(frame["status"] == "ok") & (frame["state"] >= 0)])
 
 
+def dataset_disagreements() -> pd.DataFrame:
+    """``problems.dataset.disagreements`` of the shipped reference dataset, as a table."""
+    from ...problems import dataset
+
+    return pd.DataFrame(dataset.disagreements(dataset.load()))
+
+
 def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) -> pd.DataFrame:
     """The backend to use, per particle number N, mass ratio m_up/m_down, g regime and relative-error target.
 

@@ -84,6 +84,14 @@ def calibration_section(document: Document, frame: pd.DataFrame) -> None:
         " 'coverage at 2 sigma' is the share of them with |E - ref| <= 2 error bars and 'median bar/abs(E - ref)' how"
         f" wide the bars are (inf: |E - ref| = 0). Flagged below {100 * COVERAGE_TARGET:.0f} %: error bars too narrow.",
         "calibration"))
+    conflicts = analysis.dataset_disagreements()
+    if not conflicts.empty:
+        document.add(Table(
+            conflicts,
+            "Levels of the reference dataset where two method families differ by more than the sum of their error bars"
+            " ('sigmas': the gap in units of that sum). At each, at least one of the two bars misses the truth; such a"
+            " level grades neither method, so the coverage above, measured on agreed levels, cannot count it.",
+            "dataset_disagreements"))
 
 
 def agreement_section(document: Document, frame: pd.DataFrame) -> None:
