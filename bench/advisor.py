@@ -31,7 +31,9 @@ which the next rung misses again, is not a recipe for a neighbouring problem.
 A backend whose error bars are flagged by ``verdicts.error_bar_calibration`` on that class (|E - ref|
 within 2 error bars in fewer than 95 % of the reference-checked results among its neighbouring
 measurements) is never recommended: it is listed among the rejected with its coverage. Installed
-backends are asked ``admits(problem)`` first. With no qualifying evidence the advice says so and
+backends are asked ``admits(problem)`` first. Where the reference dataset holds a neighbouring level at which
+the recommended backend's method family and another exclude each other (``problems.dataset.disagreements``:
+one of the two error bars misses, and nothing says which), the advice says so and its confidence is low. With no qualifying evidence the advice says so and
 gives the sweep that would produce it (``evidence_sweep``).
 """
 
@@ -233,6 +235,30 @@ def _calibration_flag(rows: pd.DataFrame) -> str | None:
     return None
 
 
+def dataset_conflict(query: Query, backend: str) -> str | None:
+    """A caution when the reference dataset holds neighbouring levels where ``backend``'s method family and another
+    exclude each other (``problems.dataset.disagreements``): one of the two error bars misses there, and the
+    dataset cannot say which, so the advice's confidence drops to low."""
+    from ..problems import dataset
+
+    rows = pd.DataFrame(dataset.disagreements(dataset.load()))
+    if rows.empty:
+        return None
+    family = dataset.METHOD_FAMILIES.get(backend, backend)
+    involved = np.array([family in {dataset.METHOD_FAMILIES.get(a, a), dataset.METHOD_FAMILIES.get(b, b)}
+                         for a, b in zip(rows["method A"], rows["method B"])])
+    near = neighbour_distance(query, rows["n_up"], rows["n_down"], rows["mass_up"], rows["mass_down"], rows["g"])
+    hits = rows[involved & near.notna().to_numpy()]
+    if hits.empty:
+        return None
+    worst = hits.loc[hits["sigmas"].idxmax()]
+    return (f"caution: the reference dataset holds {len(hits)} neighbouring level(s) where this method family and"
+            f" another differ by more than their combined error bars, so one of the two bars misses there (e.g."
+            f" {worst['config']} at m_up/m_down = {worst['mass ratio']:.4g}, g = {worst['g']:g}, state {int(worst['state'])}:"
+            f" {worst['method A']} {worst['E_A']:.6g} +- {worst['bar A']:.2g} against {worst['method B']}"
+            f" {worst['E_B']:.6g} +- {worst['bar B']:.2g}); confidence lowered")
+
+
 def _why_not(rows: pd.DataFrame, status: pd.Series, near: pd.Series, query: Query) -> str:
     """Why a backend has no recommendation: unverified, reached only on other problems, or best error above target."""
     reached = rows[status == REACHED]
@@ -336,6 +362,10 @@ def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
         reasons = [reason, f"{len(good)} neighbouring run(s) reached {query.accuracy:g}; error bars"
                    + (f" held on all {int(checked)} reference-checked neighbouring results" if checked
                       else " never checked against a tight enough reference on this class")]
+        conflict = dataset_conflict(query, backend)
+        if conflict:
+            reasons.append(conflict)
+            confidence = "low"
         recommendations.append(Recommendation(
             backend=backend, params=pick["params_text"], evidence=evidence, confidence=confidence,
             cpu_s=_number(pick["cost_cpu_s"]), peak_mib=_number(pick["peak_mib"]), accuracy=float(pick["accuracy"]),

@@ -342,7 +342,8 @@ def disagreements(dataset: Dataset) -> list[dict[str, Any]]:
             gap = abs(a.value - b.value)
             if gap <= a.error + b.error:
                 continue
-            rows.append({"config": f"{entry.n_up}+{entry.n_down}", "N": entry.n_up + entry.n_down,
+            rows.append({"config": f"{entry.n_up}+{entry.n_down}", "N": entry.n_up + entry.n_down, "n_up": entry.n_up,
+                         "n_down": entry.n_down, "mass_up": entry.mass_up, "mass_down": entry.mass_down,
                          "mass ratio": entry.mass_up / entry.mass_down, "g": entry.g, "state": level.state,
                          "method A": a.backend, "E_A": a.value, "bar A": a.error,
                          "method B": b.backend, "E_B": b.value, "bar B": b.error,

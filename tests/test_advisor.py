@@ -233,3 +233,24 @@ def test_tables_grade_each_backend_only_by_references_it_is_not_built_on():
     assert graded.loc["lattice-ed", "ref_kind"] == "exact" and "Busch" in graded.loc["lattice-ed", "ref_source"]
     assert graded.loc["oscillator-ed", "error_basis"] == "own estimate" and pd.isna(graded.loc["oscillator-ed", "ref_value"])
     assert graded.loc["lattice-ed", "abs_error"] == pytest.approx(1e-11, abs=1e-10)
+
+
+def test_a_dataset_disagreement_on_the_class_lowers_confidence(monkeypatch):
+    from trapbench.problems import dataset
+
+    def level(backend, value, bar, g):
+        return {"backend": backend, "backend_version": "1", "params": {}, "n_up": 2, "n_down": 2, "mass_up": 1.0,
+                "mass_down": 1.0, "g": g, "state": 0, "energy": value, "energy_error": bar, "status": "ok"}
+
+    # at g = -3 the oscillator basis and the lattice exclude each other: 0.0157 apart, bars 0.006 + 0.0008
+    conflicted = dataset.build([level("oscillator-ed", -2.0094, 6e-3, -3.0), level("lattice-dmrg", -2.0251, 8e-4, -3.0)])
+    monkeypatch.setattr(dataset, "load", lambda: conflicted)
+    frame = attach_references(runs("oscillator-ed", [(1.0, 1.0, -2.0, 4.0 + 4e-6, 5e-6, 9.0, {"cutoff": 20})], 2, 2),
+                              Exact(4.0))
+    attractive = advise(frame, Query(2, 2, g=-2.0, accuracy=1e-4)).best
+    assert attractive.confidence == "low" and "lattice-dmrg -2.0251" in attractive.reasons[-1]
+    # the conflict is in the attractive regime: a repulsive query on the same counts is not cautioned
+    frame = attach_references(runs("oscillator-ed", [(1.0, 1.0, 2.0, 4.0 + 4e-6, 5e-6, 9.0, {"cutoff": 20})], 2, 2),
+                              Exact(4.0))
+    repulsive = advise(frame, Query(2, 2, g=2.0, accuracy=1e-4)).best
+    assert repulsive.confidence == "high" and not any("caution" in r for r in repulsive.reasons)

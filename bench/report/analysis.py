@@ -31,7 +31,8 @@ def dataset_disagreements() -> pd.DataFrame:
     """``problems.dataset.disagreements`` of the shipped reference dataset, as a table."""
     from ...problems import dataset
 
-    return pd.DataFrame(dataset.disagreements(dataset.load()))
+    return pd.DataFrame(dataset.disagreements(dataset.load())).drop(columns=["n_up", "n_down", "mass_up", "mass_down"],
+                                                                   errors="ignore")
 
 
 def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) -> pd.DataFrame:
