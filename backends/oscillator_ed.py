@@ -88,7 +88,7 @@ Known miss, two bound pairs (2+2, equal masses, g = -3; running coupling, trap o
 along c = 8, 12, ..., 36 is -2.10266, -2.03915, -2.01879, -2.01222, -2.01045, -2.01045, -2.01111, -2.01200:
 it rises, then turns and falls slowly. The default ladder (c = 8-20) sees only the rise and extrapolates
 to -2.0094 +- 0.006, while lattice-dmrg gives -2.0251 +- 0.0008 (2.6 of those bars away; the first
-excited level, -1.368 +- 0.15 by default, reaches -1.048 at c = 36 against lattice-dmrg's -1.0251). The
+excited level, -1.368 +- 0.15 by default, extrapolates to -1.048 from c = 24-36, against lattice-dmrg's -1.0251). The
 report lists such levels as dataset disagreements and ``advise`` lowers its confidence there.
 
 Convergence: ``ladder`` cutoffs (cutoff, cutoff - step, ...) run through the shared convergence
