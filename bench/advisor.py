@@ -12,12 +12,15 @@ counts), and only on a problem **neighbouring** the one asked about:
   the species is an exact symmetry of the Hamiltonian);
 - mass ratios m_up/m_down within a factor MASS_RATIO_FACTOR = 1.5 of each other (1, 2 and 20/3 are
   then three separate classes; a mass imbalance can change what converges: a bound trimer, a heavy pair);
-- the same g regime (``g_regime``): attractive g < 0, weak 0 <= g <= WEAK_MAX = 3, strong g > 3 (g in
-  sqrt(hbar^3 omega/m0), m0 the lighter mass). The boundary 3 is a choice, common practice, no source:
-  about where the equal-mass 1+1 ground energy has covered half its way from g = 0 to g = infinity.
+- the same g regime (``g_regime``): attractive g < 0, non-interacting g = 0, weak 0 < g <= WEAK_MAX = 3,
+  strong g > 3 (g in sqrt(hbar^3 omega/m0), m0 the lighter mass). The boundary 3 is a choice, common practice,
+  no source: about where the equal-mass 1+1 ground energy has covered half its way from g = 0 to g = infinity.
+  g = 0 stands alone because trap-orbital methods are exact there by construction: evidence from it would
+  recommend them at any weak g whatever their interacting accuracy.
 - a common trap frequency in a harmonic trap (the map measures nothing else).
 
-Evidence, in this order: ``measured`` on the very problem (confidence high); ``nearby g``: the same
+Evidence, in this order: ``measured`` on the very problem (confidence high; mass ratios equal to within
+SAME_RATIO = 1e-3 relative count as the same, so 6.667 asks about the measured 20/3); ``nearby g``: the same
 masses, same regime, measured at a coupling at least as strong as asked (accuracy at fixed parameters
 usually degrades as |g| grows) or within |g - g_measured| <= 0.5 + 0.25 |g| (confidence medium), else at a
 weaker one (low); ``neighbouring masses``:
@@ -54,11 +57,13 @@ CONFIDENCE_RANK = {"high": 0, "medium": 1, "low": 2}
 MASS_RATIO_FACTOR = 1.5
 WEAK_MAX = 3.0
 NEAR_G_ABSOLUTE, NEAR_G_RELATIVE = 0.5, 0.25  # |g - g_measured| <= 0.5 + 0.25 |g| counts as close
+SAME_RATIO = 1e-3  # mass ratios within this relative difference are the same masses (6.667 asks about 20/3)
 MAP_RESOURCE = ("data", "method_map.json")
 MAP_VERSION = "1"
 NEIGHBOUR_RULE = (
     f"same species counts (or both counts and masses swapped), m_up/m_down within a factor {MASS_RATIO_FACTOR:g},"
-    f" same g regime (attractive g < 0, weak 0 <= g <= {WEAK_MAX:g}, strong g > {WEAK_MAX:g}), harmonic trap with a"
+    f" same g regime (attractive g < 0, non-interacting g = 0, weak 0 < g <= {WEAK_MAX:g}, strong g > {WEAK_MAX:g}),"
+    " harmonic trap with a"
     " common frequency"
 )
 # The columns of a results frame the advice reads; the shipped table stores these for state 0 of each task.
@@ -71,7 +76,12 @@ TABLE_COLUMNS = (
 
 
 def g_regime(g: float) -> str:
-    """'attractive' (g < 0), 'weak' (0 <= g <= WEAK_MAX) or 'strong' (g > WEAK_MAX)."""
+    """'attractive' (g < 0), 'non-interacting' (g = 0), 'weak' (0 < g <= WEAK_MAX) or 'strong' (g > WEAK_MAX).
+
+    g = 0 is a class of its own: methods built on trap orbitals (oscillator basis, perturbation theory) are exact
+    there by construction, so a measurement at g = 0 says nothing about their accuracy at any g != 0."""
+    if g == 0:
+        return "non-interacting"
     return "attractive" if g < 0 else "weak" if g <= WEAK_MAX else "strong"
 
 
@@ -271,7 +281,14 @@ def _why_not(rows: pd.DataFrame, status: pd.Series, near: pd.Series, query: Quer
                                     for r in reached.itertuples()})[:6]))
     unverified = neighbours[status[neighbours.index] == UNVERIFIED]
     if not unverified.empty:
+        from ..problems.dataset import PRECISION_METHODS
+
         own = pd.to_numeric(unverified["own_rel_error"], errors="coerce").min()
+        backend = str(unverified["backend"].iloc[0])
+        if backend in PRECISION_METHODS.get(query.n, ()):
+            return (f"unverified at {query.accuracy:g}: it is the reference dataset's precision method for N = {query.n}"
+                    " (its values are the references here, so nothing independent is tighter)"
+                    + ("" if pd.isna(own) else f"; its own error bar claims down to {own:.2g}"))
         return (f"unverified: no reference within a tenth of {query.accuracy:g}"
                 + ("" if pd.isna(own) else f"; its own error bar claims down to {own:.2g}")
                 + " -- compare it with a tighter reference before relying on it")
@@ -299,8 +316,8 @@ def _settled(rows: pd.DataFrame, reached: pd.Series) -> pd.Series:
 def _pick(good: pd.DataFrame, query: Query) -> tuple[pd.Series, str, str, str]:
     """The nearest qualifying neighbour (then the cheapest run there): (row, evidence, confidence, reason)."""
     good = good.assign(
-        _same_masses=good["_distance"] <= 1e-9,
-        _exact=(good["_distance"] <= 1e-9) & np.isclose(good["g"], query.g, rtol=1e-9, atol=1e-12),
+        _same_masses=good["_distance"] <= SAME_RATIO,
+        _exact=(good["_distance"] <= SAME_RATIO) & np.isclose(good["g"], query.g, rtol=1e-9, atol=1e-12),
         _stronger=good["g"].abs() >= abs(query.g) - 1e-12,
         _g_distance=(good["g"] - query.g).abs(),
     )

@@ -45,8 +45,8 @@ def runs(backend, points, n_up=2, n_down=1):
 
 
 def test_g_regimes_and_their_boundaries():
-    assert [g_regime(g) for g in (-3.0, -1e-9, 0.0, WEAK_MAX, WEAK_MAX + 1e-9, 10.0)] == [
-        "attractive", "attractive", "weak", "weak", "strong", "strong"]
+    assert [g_regime(g) for g in (-3.0, -1e-9, 0.0, 1e-9, WEAK_MAX, WEAK_MAX + 1e-9, 10.0)] == [
+        "attractive", "attractive", "non-interacting", "weak", "weak", "strong", "strong"]
 
 
 def test_neighbours_share_counts_regime_and_a_mass_ratio_within_the_factor():
@@ -254,3 +254,22 @@ def test_a_dataset_disagreement_on_the_class_lowers_confidence(monkeypatch):
                               Exact(4.0))
     repulsive = advise(frame, Query(2, 2, g=2.0, accuracy=1e-4)).best
     assert repulsive.confidence == "high" and not any("caution" in r for r in repulsive.reasons)
+
+
+def test_the_non_interacting_point_is_no_evidence_for_an_interacting_problem():
+    # at g = 0 a trap-orbital method is exact by construction (its basis holds the eigenstates): its 1e-12 there
+    # says nothing about g = 2, so a query at g = 2 finds no evidence, and one at g = 0 finds the run
+    frame = attach_references(runs("orbital-basis", [(1.0, 1.0, 0.0, 4.0 + 4e-12, 1e-11, 1.0, {"cutoff": 20})], 3, 3),
+                              Exact(4.0))
+    assert advise(frame, Query(3, 3, g=2.0, accuracy=1e-3)).best is None
+    assert advise(frame, Query(3, 3, g=0.0, accuracy=1e-3)).best.evidence == "measured"
+
+
+def test_the_precision_method_is_named_as_such_when_nothing_independent_can_grade_it():
+    from trapbench.problems.references import Reference
+
+    loose = lambda problem: [Reference("energy", 0, 4.0, 1e-3, "synthetic", "computed")]
+    frame = attach_references(runs("three-body", [(20 / 3, 1.0, -3.0, 4.0, 1e-12, 1.0, {"order": 18})]), loose)
+    advice = advise(frame, Query(2, 1, mass_up=6.667, g=-3.0, accuracy=1e-4))
+    assert advice.best is None
+    assert "precision method for N = 3" in advice.rejected["three-body"]

@@ -39,7 +39,7 @@ def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) ->
     """The backend to use, per particle number N, mass ratio m_up/m_down, g regime and relative-error target.
 
     One row per (N, mass ratio, g regime, target); the g regimes are the advisor's (``advisor.g_regime``:
-    attractive g < 0, weak 0 <= g <= 3, strong g > 3). For each backend and single-g problem of the group,
+    attractive g < 0, non-interacting g = 0, weak 0 < g <= 3, strong g > 3). For each backend and single-g problem of the group,
     the cheapest stored run (solve CPU time) that reached the target (``verdicts``). Backends are ranked by
     the number of problems of the group on which they reached it, then by cost: the first is named with
     its cost (the largest over those problems of the cheapest qualifying run) and the peak memory of those
@@ -57,7 +57,7 @@ def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) ->
     ok = ok.assign(n=ok["n_up"] + ok["n_down"], ratio=[mass_ratio(r) for r in ok.to_dict("records")],
                    regime=[g_regime(float(g)) for g in ok["g"]])
     flagged = poorly_calibrated(calibration(frame))
-    regime_order = {"attractive": 0, "weak": 1, "strong": 2}
+    regime_order = {"attractive": 0, "non-interacting": 1, "weak": 2, "strong": 3}
     rows = []
     groups = sorted(ok.groupby(["n", "ratio", "regime"]), key=lambda item: (item[0][0], item[0][1], regime_order[item[0][2]]))
     for (n, ratio, regime), group in groups:

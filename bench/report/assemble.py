@@ -66,7 +66,7 @@ def introduction(frame: pd.DataFrame, store, command: str | None, task_keys: set
 def method_map_section(document: Document, frame: pd.DataFrame) -> None:
     document.add(Heading(2, "Method map"), Table(
         analysis.method_map(frame),
-        "One row per particle number, mass ratio m_up/m_down, g regime (attractive g < 0, weak 0 <= g <= 3,"
+        "One row per particle number, mass ratio m_up/m_down, g regime (attractive g < 0, g = 0, weak 0 < g <= 3,"
         f" strong g > 3: the advisor's) and relative-error target ({_targets_text()}) in the ground-state energy:"
         " the backend that reached the target on the most stored problems of the group, the cheaper on ties, with"
         " 'k of M' when not on all; its CPU time is the largest over those problems of its cheapest qualifying run,"
