@@ -155,6 +155,10 @@ class Advice:
             "cpu_s": r.cpu_s, "peak_mib": r.peak_mib, "accuracy": r.accuracy,
         } for r in self.recommendations])
 
+    def unverified(self) -> list[str]:
+        """Backends measured on neighbouring problems whose results no reference was tight enough to judge."""
+        return sorted(name for name, why in self.rejected.items() if why.startswith("unverified"))
+
     def solve_command(self, recommendation: Recommendation) -> str:
         q = self.query
         params = "".join(f" --param {k}={v}" for k, v in param_arguments(recommendation.param_values).items())
@@ -170,9 +174,16 @@ class Advice:
         lines = [head, f"Neighbouring problems: {NEIGHBOUR_RULE}.", ""]
         if self.best is None:
             lines += ["No evidence: no stored measurement on a neighbouring problem reaches this accuracy for a backend"
-                      " that supports the problem and whose error bars hold there.",
-                      "This sweep would produce it (then ask again with the same --store):", "",
-                      "  " + evidence_command(q), ""]
+                      " that supports the problem and whose error bars hold there."]
+            unverified = self.unverified()
+            if unverified:
+                lines += [f"Measured but unverified: {', '.join(unverified)} ran on neighbouring problems, but no reference"
+                          f" there is within a tenth of {q.accuracy:g} (see below). More of the same sweep will not settle"
+                          " it; tighter references would (the reference dataset: 'trapbench sweep dataset', then"
+                          " 'trapbench dataset'), or ask for a looser accuracy.", ""]
+            else:
+                lines += ["This sweep would produce it (then ask again with the same --store):", "",
+                          "  " + evidence_command(q), ""]
         else:
             b = self.best
             cost = "unknown cost" if b.cpu_s is None else f"~{b.cpu_s:.3g} CPU s"
@@ -196,6 +207,7 @@ class Advice:
                "rejected": dict(sorted(self.rejected.items()))}
         if b is None:
             out["sweep_command"] = evidence_command(self.query)
+            out["unverified"] = self.unverified()
             return out
         out.update(backend=b.backend, params=param_arguments(b.param_values), expected_cpu_s=b.cpu_s,
                    expected_peak_mib=b.peak_mib, confidence=b.confidence, command=self.solve_command(b),

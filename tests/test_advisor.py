@@ -273,3 +273,15 @@ def test_the_precision_method_is_named_as_such_when_nothing_independent_can_grad
     advice = advise(frame, Query(2, 1, mass_up=6.667, g=-3.0, accuracy=1e-4))
     assert advice.best is None
     assert "precision method for N = 3" in advice.rejected["three-body"]
+
+
+def test_no_advice_for_lack_of_a_tight_reference_says_so_instead_of_asking_for_the_same_sweep():
+    from trapbench.problems.references import Reference
+
+    loose = lambda problem: [Reference("energy", 0, 4.0, 1e-3, "synthetic", "computed")]
+    frame = attach_references(runs("lattice", [(1.0, 1.0, 2.0, 4.0, 1e-5, 1.0, {"chi": [32, 64]})], 2, 2), loose)
+    advice = advise(frame, Query(2, 2, g=2.0, accuracy=1e-3))
+    assert advice.best is None and advice.unverified() == ["lattice"]
+    text = advice.explain()
+    assert "Measured but unverified: lattice" in text and "This sweep would produce it" not in text
+    assert advice.to_json_dict()["unverified"] == ["lattice"]
