@@ -175,12 +175,18 @@ class Parameter:
     minimum: float | None = None
     allow_none: bool = False
 
+    @property
+    def kind_text(self) -> str:
+        """What a value must be, in words: 'an integer', 'a number', 'true or false', 'a comma-separated list', 'text'."""
+        return {int: "an integer (2e7 style allowed)", float: "a number", bool: "true or false",
+                list: "a comma-separated list", tuple: "a comma-separated list", str: "text"}.get(self.kind, self.kind.__name__)
+
     def coerce(self, value: Any, field: str) -> Any:
         """Validate ``value`` (a Python value or a string from the command line)."""
         if value is None or (isinstance(value, str) and value.lower() == "none"):
             if self.allow_none or self.default is None:
                 return None
-            raise SpecError(field, f"may not be None; give a {self.kind.__name__}")
+            raise SpecError(field, f"may not be None; give {self.kind_text}")
         try:
             if isinstance(value, str) and self.kind is not str:
                 value = self._parse(value)
@@ -204,7 +210,7 @@ class Parameter:
             elif not isinstance(value, self.kind):
                 raise TypeError
         except (TypeError, ValueError):
-            raise SpecError(field, f"got {value!r}; give a {self.kind.__name__} ({self.doc})") from None
+            raise SpecError(field, f"got {value!r}; give {self.kind_text} ({self.doc})") from None
         if self.choices is not None and value not in self.choices:
             raise SpecError(field, f"got {value!r}; allowed: {', '.join(map(str, self.choices))}")
         if self.minimum is not None and isinstance(value, (int, float)) and value < self.minimum:

@@ -304,6 +304,8 @@ def test_bad_parameters_and_unsupported_problems():
         ED.solve(problem, truncation="shells")
     with pytest.raises(SpecError, match="param.cutoff"):
         ED.solve(problem, cutoff=4, ladder=4, ladder_step=2)
+    with pytest.raises(SpecError, match=r"param.cutoff: got 'twelve'; give an integer \(2e7 style allowed\)"):
+        ED.resolve_params({"cutoff": "twelve"})
     box = Problem.from_dict({"up": {"count": 1}, "down": {"count": 1}, "trap": {"shape": "box", "half_width": 2}, "interaction": {"g": 1}})
     with pytest.raises(Unsupported, match="harmonic"):
         ED.solve(box)
