@@ -13,7 +13,7 @@ A site amplitude c_j is sqrt(a) psi(x_j): a lattice orbital delta_{jk} is the co
 1/sqrt(a) at x_k, and its momentum amplitude (continuum normalization, integral dp |phi(p)|^2 = 1 over
 the Brillouin zone |p| < pi/a) is phi_k(p) = sqrt(a / (2 pi)) exp(-i p x_k).
 
-Measured discretization error (1+1, x_max = 6, spacings 0.05-0.2, masses (1, 1) and (1, 40/6),
+Measured discretization error (1+1, x_max = 6, spacings 0.05-0.2, masses (1, 1) and (1, 20/3),
 g = +-2, against the exact two-body roots): E(a) - E = c_2 a^2 + c_4 a^4 + ... to high accuracy; the
 local order is 2.0, the error is negative for g > 0 and positive for g < 0, and a fit with powers
 (2, 4) over a = 0.2 ... 0.075 leaves relative errors of 1e-8 to 1e-5. The continuum limit is

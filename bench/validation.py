@@ -506,13 +506,13 @@ CHECKS: dict[str, Callable[[Runner, Problem, CheckTolerance], CheckVerdict]] = {
 
 def default_problems() -> list[Problem]:
     """Small problems that exercise every check: 1+1 and 2+1 at equal and unequal masses, both signs of g."""
-    heavy = 40 / 6
+    heavy = 20 / 3
     return [
         Problem.create(1, 1, 1.0, states=6, label="1+1 g=1"),
         Problem.create(1, 1, -2.0, states=6, label="1+1 g=-2"),
-        Problem.create(1, 1, 2.0, mass_up=heavy, states=4, label="1+1 40:6 g=2"),
+        Problem.create(1, 1, 2.0, mass_up=heavy, states=4, label="1+1 20:3 g=2"),
         Problem.create(2, 1, 1.5, states=4, label="2+1 g=1.5"),
-        Problem.create(2, 1, 1.0, mass_up=heavy, states=3, label="2+1 40:6 g=1"),
+        Problem.create(2, 1, 1.0, mass_up=heavy, states=3, label="2+1 20:3 g=1"),
         Problem.create(2, 1, 30.0, states=3, label="2+1 g=30"),
         Problem.create(2, 2, 2.0, states=3, label="2+2 g=2"),
     ]

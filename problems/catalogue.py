@@ -2,12 +2,12 @@
 
 Configurations 1+1, 2+1, 1+2, 3+1, 2+2, 3+2, 3+3, 4+4, 6+6 with equal masses in four regimes of g
 (strongly attractive, weak, intermediate, strongly repulsive); the configurations with N <= 4 also
-with the mass ratios m_up/m_down = 40/6 and 6/40 (= 20/3 and 3/20, a heavy-light check value). The reference
-mass m0 is the lighter species, so the heavy species has mass 40/6 and the light one 1. Harmonic trap,
+with the mass ratios m_up/m_down = 20/3 and 3/20 (a heavy-light check value). The reference
+mass m0 is the lighter species, so the heavy species has mass 20/3 and the light one 1. Harmonic trap,
 omega = 1 for both species. Units: hbar = omega = m0 = 1, g in sqrt(hbar^3 omega / m0).
 
 Entry names read "<N_up>+<N_down>/<masses>/<regime>", e.g. "2+1/equal/intermediate" or
-"1+1/40:6/strong-attractive". References come from ``references.references_for`` and are computed
+"1+1/20:3/strong-attractive". References come from ``references.references_for`` and are computed
 on first use; each carries its value, uncertainty, kind and source (the paper or library behind it,
 evaluated by ``trapbench.problems.exact``), which ``trapbench catalogue NAME`` prints. Finite-g
 energies are exact at g = 0 and for 1+1 at any g; elsewhere they come from the reference dataset
@@ -28,7 +28,7 @@ from .references import Reference, references_for
 from .spec import Problem
 
 CONFIGURATIONS = ((1, 1), (2, 1), (1, 2), (3, 1), (2, 2), (3, 2), (3, 3), (4, 4), (6, 6))
-MASS_SETS = {"equal": (1.0, 1.0), "40:6": (40 / 6, 1.0), "6:40": (1.0, 40 / 6)}
+MASS_SETS = {"equal": (1.0, 1.0), "20:3": (20 / 3, 1.0), "3:20": (1.0, 20 / 3)}
 MAX_PARTICLES_IMBALANCED = 4
 REGIMES = {
     "strong-attractive": -4.0,

@@ -31,7 +31,7 @@ def test_solve_spec_file_with_every_capable_backend(tmp_path, capsys):
     results = json.loads(capsys.readouterr().out)["results"]
     assert {r["backend"] for r in results} == {"two-body", "perturbative"}
     exact = {r["g"]: r["energies"][0] for r in results if r["backend"] == "two-body"}
-    # Busch et al. (1998) roots with lambda = g sqrt(mu), kappa = 40/6 (mpmath; ODE shooting in test_references.py)
+    # Busch et al. (1998) roots with lambda = g sqrt(mu), kappa = 20/3 (mpmath; ODE shooting in test_references.py)
     assert exact[-2.0] == pytest.approx(-1.17412483472, abs=1e-10)
     assert exact[2.0] == pytest.approx(1.56467480944, abs=1e-10)
 

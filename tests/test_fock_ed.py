@@ -111,7 +111,7 @@ def brute_force_two_species(h_up, h_down, U, n_up, n_down):
 @pytest.mark.parametrize("n_up,n_down", [(1, 1), (2, 1), (2, 2)])
 def test_lattice_hamiltonian_matches_brute_force(n_up, n_down):
     L, a, g = 4, 0.7, -1.3
-    h_u, h_d = lattice_one_body(L, a, 1.0), lattice_one_body(L, a, 40 / 6)
+    h_u, h_d = lattice_one_body(L, a, 1.0), lattice_one_body(L, a, 20 / 3)
     expected, up, down = brute_force_two_species(h_u, h_d, g / a, n_up, n_down)
     x = (np.arange(L) - (L - 1) / 2) * a
     sites = np.eye(L) / math.sqrt(a)

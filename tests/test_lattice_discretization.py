@@ -23,7 +23,7 @@ def box_problem(half_width: float = 2.0, mass_down: float = 1.0) -> Problem:
     )
 
 
-@pytest.mark.parametrize("mass", [1.0, 40 / 6])
+@pytest.mark.parametrize("mass", [1.0, 20 / 3])
 def test_box_lattice_spectrum_is_the_tridiagonal_toeplitz_closed_form(mass):
     # Closed form (common practice): the L x L matrix with 2t on the diagonal and -t beside it has
     # eigenvalues 2t (1 - cos(n pi / (L + 1))), n = 1..L, and sine eigenvectors.
@@ -42,8 +42,8 @@ def test_box_lattice_spectrum_is_the_tridiagonal_toeplitz_closed_form(mass):
 
 
 def test_harmonic_lattice_levels_extrapolate_to_oscillator_levels():
-    # Oscillator levels (n + 1/2) omega for mass 40/6 with its own omega = 1.
-    problem = Problem.create(2, 1, 0.0, mass_down=40 / 6)
+    # Oscillator levels (n + 1/2) omega for mass 20/3 with its own omega = 1.
+    problem = Problem.create(2, 1, 0.0, mass_down=20 / 3)
     width = lattice.half_width(problem)
     spacings = lattice.default_spacings(problem)
     levels = []

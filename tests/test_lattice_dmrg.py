@@ -31,7 +31,7 @@ def test_dmrg_equals_lattice_ed_on_the_same_small_lattice():
     # lattice-ed's product-basis diagonalization of the same lattice Hamiltonian (issue check: 1e-8).
     from trapbench.backends.lattice_ed import solve_on_grid as ed_on_grid
 
-    problem = Problem.create(2, 2, -2.0, mass_down=40 / 6, states=2)
+    problem = Problem.create(2, 2, -2.0, mass_down=20 / 3, states=2)
     grid, levels = on_grid(problem, 0.6, 3.3)
     assert grid.sites == 12
     exact = sorted(ed_on_grid(problem, grid, final=False).energies)[:2]
@@ -41,7 +41,7 @@ def test_dmrg_equals_lattice_ed_on_the_same_small_lattice():
 
 def test_dmrg_equals_lattice_diagonalization_by_quspin_on_the_same_lattice():
     # Reference: quspin's spinful_fermion_basis_1d Hamiltonian built term by term (an independent code path).
-    problem = Problem.create(2, 2, 2.0, mass_down=40 / 6)
+    problem = Problem.create(2, 2, 2.0, mass_down=20 / 3)
     grid, levels = on_grid(problem, 0.6, 3.3)
     exact, _, _ = quspin_levels(problem, grid, 1)
     assert levels.energies[0] == pytest.approx(exact[0], abs=1e-8)
@@ -52,7 +52,7 @@ def test_dmrg_free_fermions_in_a_box_equal_the_closed_form_lattice_spectrum():
     problem = Problem.from_dict(
         {
             "up": {"count": 2},
-            "down": {"count": 1, "mass": 40 / 6},
+            "down": {"count": 1, "mass": 20 / 3},
             "trap": {"shape": "box", "half_width": 2.0},
             "interaction": {"g": 0.0},
         }

@@ -37,7 +37,7 @@ def test_free_fermions_in_a_box_equal_the_closed_form_lattice_spectrum():
     problem = Problem.from_dict(
         {
             "up": {"count": 2},
-            "down": {"count": 1, "mass": 40 / 6},
+            "down": {"count": 1, "mass": 20 / 3},
             "trap": {"shape": "box", "half_width": 2.0},
             "interaction": {"g": 0.0},
             "targets": {"states": 4},
@@ -55,7 +55,7 @@ def test_free_fermions_in_a_box_equal_the_closed_form_lattice_spectrum():
 @pytest.mark.parametrize("g", [-2.0, 2.0])
 def test_lattice_hamiltonian_equals_quspin_on_the_same_lattice(g):
     # quspin's spinful_fermion_basis_1d, built term by term, is an independent construction.
-    problem = Problem.create(2, 2, g, mass_down=40 / 6, states=3)
+    problem = Problem.create(2, 2, g, mass_down=20 / 3, states=3)
     grid = lattice.make_grid(problem, 0.6, 3.0)
     levels = solve_on_grid(problem, grid, final=False)
     exact, _, _ = quspin_levels(problem, grid, 3)
@@ -63,7 +63,7 @@ def test_lattice_hamiltonian_equals_quspin_on_the_same_lattice(g):
     assert max(levels.solver_errors) < 1e-8
 
 
-CASES_1P1 = [(1.0, -2.0), (1.0, 2.0), (40 / 6, -2.0), (40 / 6, 2.0)]
+CASES_1P1 = [(1.0, -2.0), (1.0, 2.0), (20 / 3, -2.0), (20 / 3, 2.0)]
 
 
 @pytest.mark.parametrize("mass_down, g", CASES_1P1)
@@ -150,7 +150,7 @@ def test_noise_vanishes_without_interaction_and_observables_are_normalized():
 @pytest.mark.skipif(importlib.util.find_spec("trapbench.backends.oscillator_ed") is None, reason="oscillator-ed not installed yet")
 @pytest.mark.parametrize(
     "n_up, n_down, mass_down, spacings, x_max",
-    [(2, 1, 40 / 6, (0.3, 0.25, 0.2), 5.5), (2, 2, 1.0, (0.6, 0.5, 0.4), 5.5)],
+    [(2, 1, 20 / 3, (0.3, 0.25, 0.2), 5.5), (2, 2, 1.0, (0.6, 0.5, 0.4), 5.5)],
 )
 def test_few_body_energies_agree_with_oscillator_ed_within_combined_error_bars(n_up, n_down, mass_down, spacings, x_max):
     # An independent method: exact diagonalization in the harmonic-oscillator basis (other backend).
@@ -164,7 +164,7 @@ def test_few_body_energies_agree_with_oscillator_ed_within_combined_error_bars(n
 
 def test_mass_ratio_40_over_6_runs_at_g_0_to_the_closed_form_and_large_systems_are_refused():
     # g = 0 with the same omega: E = (N_up^2 + N_down^2) / 2 for any masses (textbook oscillator towers).
-    result = BACKEND.solve(Problem.create(2, 1, 0.0, mass_down=40 / 6), spacings=(0.3, 0.25, 0.2), x_max=5.5)
+    result = BACKEND.solve(Problem.create(2, 1, 0.0, mass_down=20 / 3), spacings=(0.3, 0.25, 0.2), x_max=5.5)
     assert abs(result.energies[0] - 2.5) <= result.error_estimate
     assert result.states[0]["parity"] == -1  # two up fermions in orbitals 0 and 1
     assert not BACKEND.supports(Problem.create(4, 4, 2.0))

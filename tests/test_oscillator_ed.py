@@ -43,7 +43,7 @@ def one_blas_thread():
 
 
 ED = OscillatorEDBackend()
-MASSES = [1.0, 40 / 6]
+MASSES = [1.0, 20 / 3]
 COUPLINGS = [-3.0, -1.0, 0.5, 2.0, 10.0]
 
 
@@ -53,7 +53,7 @@ def exact_pair(g: float, mass_down: float) -> float:
 
 def test_two_body_reference_agrees_with_ode_shooting():
     """The reference itself (Busch's root, two-body backend) against ODE shooting of the relative problem."""
-    for g, mass_down in ((2.0, 1.0), (-3.0, 1.0), (10.0, 40 / 6)):
+    for g, mass_down in ((2.0, 1.0), (-3.0, 1.0), (10.0, 20 / 3)):
         assert exact_pair(g, mass_down) == pytest.approx(ground_energy(g, 1.0, mass_down), abs=1e-10)
 
 
@@ -112,7 +112,7 @@ def test_bare_convergence_power_is_one_half():
     assert fit.parameters["power"] == pytest.approx(0.5, abs=0.1)
 
 
-@pytest.mark.parametrize("counts,mass_down", [((2, 2), 1.0), ((3, 2), 40 / 6), ((3, 1), 1.0)])
+@pytest.mark.parametrize("counts,mass_down", [((2, 2), 1.0), ((3, 2), 20 / 3), ((3, 1), 1.0)])
 def test_noninteracting_energy_is_exact(counts, mass_down):
     """g = 0: E = sum_s (N_s^2 / 2) omega (closed form), for any N and masses."""
     problem = Problem.create(*counts, 0.0, mass_down=mass_down, states=2)
@@ -143,14 +143,14 @@ def test_spectrum_scan_levels_and_labels_match_two_body(mass_down):
 
 
 def test_first_order_slope_matches_perturbative_backend_unequal_masses():
-    problem = Problem.create(2, 1, 0.0, mass_down=40 / 6)
+    problem = Problem.create(2, 1, 0.0, mass_down=20 / 3)
     slope = get("perturbative").solve(problem).states[0]["first_order_coefficient"]
     result = ED.solve(problem, cutoff=4, ladder=1)
     assert result.scalars["delta"] == pytest.approx(slope, rel=1e-10)
     # and the finite-difference slope of the energy itself (second order is O(h^2))
     h = 1e-4
-    e_plus = ED.solve(Problem.create(2, 1, h, mass_down=40 / 6), cutoff=12, ladder=1, renormalized=False)
-    e_minus = ED.solve(Problem.create(2, 1, -h, mass_down=40 / 6), cutoff=12, ladder=1, renormalized=False)
+    e_plus = ED.solve(Problem.create(2, 1, h, mass_down=20 / 3), cutoff=12, ladder=1, renormalized=False)
+    e_minus = ED.solve(Problem.create(2, 1, -h, mass_down=20 / 3), cutoff=12, ladder=1, renormalized=False)
     assert (e_plus.energies[0] - e_minus.energies[0]) / (2 * h) == pytest.approx(slope, rel=1e-6)
 
 
@@ -178,7 +178,7 @@ def test_strong_coupling_approaches_fermionization_with_spin_chain_slope():
 def test_centre_of_mass_ladder_unequal_masses():
     """Common omega: every level has a copy at E + 1 (centre-of-mass excitation), any masses; the
     COM label comes from <N_com> of the eigenvector."""
-    problem = Problem.create(2, 1, 2.0, mass_down=40 / 6, states=4)
+    problem = Problem.create(2, 1, 2.0, mass_down=20 / 3, states=4)
     result = ED.solve(problem, cutoff=16, ladder=3, ladder_step=4)
     ground, states = result.energies[0], result.states
     assert states[0]["com"] == 0
@@ -196,9 +196,9 @@ def test_hellmann_feynman(renormalized):
     renormalized interaction, through dg_eff/dg of the 1+1 problem)."""
     h = 1e-4
     kwargs = dict(cutoff=10, ladder=1, renormalized=renormalized)
-    mid = ED.solve(Problem.create(2, 1, 1.5, mass_down=40 / 6), **kwargs)
-    plus = ED.solve(Problem.create(2, 1, 1.5 + h, mass_down=40 / 6), **kwargs)
-    minus = ED.solve(Problem.create(2, 1, 1.5 - h, mass_down=40 / 6), **kwargs)
+    mid = ED.solve(Problem.create(2, 1, 1.5, mass_down=20 / 3), **kwargs)
+    plus = ED.solve(Problem.create(2, 1, 1.5 + h, mass_down=20 / 3), **kwargs)
+    minus = ED.solve(Problem.create(2, 1, 1.5 - h, mass_down=20 / 3), **kwargs)
     slope = (plus.energies[0] - minus.energies[0]) / (2 * h)
     assert mid.scalars["delta"] == pytest.approx(slope, rel=1e-6)
 
@@ -229,8 +229,8 @@ def test_noise_integral_vanishes_at_zero_and_grows_quadratically():
 
 def test_noise_integral_quadrature_matches_a_grid_sum():
     """The Gauss-Hermite value of integral C^2 dp1 dp2 equals a fine-grid Riemann sum of the reported
-    map C(p1, p2) (independent numerical integration), mass ratio 40/6."""
-    problem = Problem.create(2, 1, 1.0, mass_down=40 / 6, observables=["noise"], grid_points=301, p_max=12.0)
+    map C(p1, p2) (independent numerical integration), mass ratio 20/3."""
+    problem = Problem.create(2, 1, 1.0, mass_down=20 / 3, observables=["noise"], grid_points=301, p_max=12.0)
     result = ED.solve(problem, cutoff=6, ladder=1)
     c = result.observables["noise"].values
     p = result.observables["noise"].axes["p_up"]
@@ -285,7 +285,7 @@ def test_observables_of_excited_states_carry_the_state_suffix():
     assert np.sum(result.observables["density_up@1"].values) * (x[1] - x[0]) == pytest.approx(1.0, abs=1e-6)
 
 
-@pytest.mark.parametrize("mass_down,omega_down", [(1.0, 1.0), (40 / 6, 1.0), (1.0, 1.5)])
+@pytest.mark.parametrize("mass_down,omega_down", [(1.0, 1.0), (20 / 3, 1.0), (1.0, 1.5)])
 def test_reduced_contact_quadrature_is_exact_inside_the_energy_basis(mass_down, omega_down):
     """The energy-truncated Hamiltonian built with the fewer Gauss-Hermite nodes that its largest
     polynomial degree needs equals the one built with nodes for every orbital pair."""
@@ -321,7 +321,7 @@ def test_every_copy_of_a_degenerate_level_is_kept():
 def test_trap_energy_and_contact_are_converged_along_the_ladder():
     # <V_trap> and dE/dg of the exact 1+1 state (Busch et al., via the two-body backend), and the virial
     # theorem E = 2<V> + (g/2) dE/dg (module docstring): the extrapolated scalars meet both
-    problem = Problem.create(1, 1, 2.0, mass_down=40 / 6)
+    problem = Problem.create(1, 1, 2.0, mass_down=20 / 3)
     exact = get("two-body").solve(problem)
     result = get("oscillator-ed").solve(problem)
     assert abs(result.scalars["delta"] - exact.scalars["delta"]) < 1e-7

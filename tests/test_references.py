@@ -85,7 +85,7 @@ def test_two_body_spectrum_structure_and_parities():
     assert [e for e, _ in odd] == pytest.approx([2.0, e0 + 1, 4.0], abs=1e-11)
 
 
-@pytest.mark.parametrize("kappa,g", [(40 / 6, -2.0), (40 / 6, 10.0), (0.15, -1.0), (0.15, 2.0), (2.0, 5.0)])
+@pytest.mark.parametrize("kappa,g", [(20 / 3, -2.0), (20 / 3, 10.0), (0.15, -1.0), (0.15, 2.0), (2.0, 5.0)])
 def test_unequal_mass_two_body_ground_states(kappa, g):
     # lambda = g sqrt(mu) (relative coordinate in its own oscillator length), checked by ODE shooting
     assert energies(Problem.create(1, 1, g, mass_down=kappa))[0] == pytest.approx(ground_energy(g, 1.0, kappa), abs=1e-11)
@@ -130,7 +130,7 @@ def _hermite_density(n_particles, mass, x):
 @pytest.mark.parametrize(
     "counts,masses",
     [((1, 1), (1.0, 1.0)), ((3, 1), (1.0, 1.0)), ((3, 3), (1.0, 1.0)), ((5, 1), (1.0, 1.0)),
-     ((2, 1), (40 / 6, 1.0)), ((1, 3), (1.0, 40 / 6)), ((2, 2), (1.0, 0.15))],
+     ((2, 1), (20 / 3, 1.0)), ((1, 3), (1.0, 20 / 3)), ((2, 2), (1.0, 0.15))],
 )
 def test_first_order_coefficients_by_quadrature(counts, masses):
     # first-order perturbation theory (textbook): c1 = int rho_up rho_down dx, here by scipy.integrate.quad
@@ -157,8 +157,8 @@ def test_first_order_equal_mass_rationals(counts, rational):
 def test_first_order_two_body_unequal_masses_closed_form():
     # 1+1: c1 = int phi_0^up(x)^2 phi_0^down(x)^2 dx = sqrt(m_up m_down)/pi * sqrt(pi/(m_up + m_down))
     # = sqrt(mu/pi) (a Gaussian integral, derived here)
-    mu = (40 / 6) / (1 + 40 / 6)
-    assert energies(Problem.create(1, 1, 1.0, mass_down=40 / 6), "slope_g0")[0] == pytest.approx(math.sqrt(mu / math.pi))
+    mu = (20 / 3) / (1 + 20 / 3)
+    assert energies(Problem.create(1, 1, 1.0, mass_down=20 / 3), "slope_g0")[0] == pytest.approx(math.sqrt(mu / math.pi))
 
 
 def test_slope_omitted_when_ground_state_lies_in_the_other_parity_sector():
@@ -195,7 +195,7 @@ def test_no_finite_g_energy_from_asymptotic_formulas():
     # the O(1/g^2) remainder of N^2/2 - K/g is unbounded for N > 2: only the exact coefficients are given
     refs = references_for(Problem.create(2, 1, 30.0, states=3))
     assert {r.quantity for r in refs} == {"K", "energy_g_inf", "slope_g0"}
-    refs = references_for(Problem.create(1, 2, 30.0, mass_down=40 / 6, states=2))
+    refs = references_for(Problem.create(1, 2, 30.0, mass_down=20 / 3, states=2))
     assert {r.quantity for r in refs} == {"K", "energy_g_inf", "slope_g0"}
 
 
@@ -290,12 +290,12 @@ def test_catalogue_covers_the_requested_configurations_and_regimes():
     for n_up, n_down in CONFIGURATIONS:
         for regime in ("strong-attractive", "weak", "intermediate", "strong-repulsive"):
             assert f"{n_up}+{n_down}/equal/{regime}" in names
-    assert "2+1/40:6/weak" in names and "2+2/6:40/strong-repulsive" in names
-    entry = catalogue_entry("1+1/6:40/intermediate")
-    assert (entry.problem.up.mass, entry.problem.down.mass) == (1.0, pytest.approx(40 / 6))
+    assert "2+1/20:3/weak" in names and "2+2/3:20/strong-repulsive" in names
+    entry = catalogue_entry("1+1/3:20/intermediate")
+    assert (entry.problem.up.mass, entry.problem.down.mass) == (1.0, pytest.approx(20 / 3))
     assert entry.problem.coupling == 2.0
     # the 1+1 entry's ground energy: Busch's root against ODE shooting (m0 = the light species)
-    assert entry.references[0].value == pytest.approx(ground_energy(2.0, 1.0, 40 / 6), abs=1e-11)
+    assert entry.references[0].value == pytest.approx(ground_energy(2.0, 1.0, 20 / 3), abs=1e-11)
 
 
 def test_catalogue_unknown_name_suggests_the_closest():
@@ -325,7 +325,7 @@ def test_wedge_levels_reduce_to_fermionization_for_equal_masses():
         fermionized_levels(Problem.create(1, 2, 3.0, states=6)), abs=1e-12)
 
 
-@pytest.mark.parametrize("mass_up", [40 / 6, 0.15])
+@pytest.mark.parametrize("mass_up", [20 / 3, 0.15])
 def test_wedge_levels_are_the_large_g_limit_of_exact_diagonalization(mass_up):
     # oscillator-ed at g = 30 and 100, extrapolated in 1/g (E = E_inf - A/g), reaches the wedge value
     backend = get("oscillator-ed")
@@ -345,7 +345,7 @@ def test_wedge_levels_are_the_large_g_limit_of_exact_diagonalization(mass_up):
 
 
 def test_two_body_infinite_coupling_limit_any_masses():
-    problem = Problem.create(1, 1, 1e7, mass_up=40 / 6, states=6)
+    problem = Problem.create(1, 1, 1e7, mass_up=20 / 3, states=6)
     limit = [r.value for r in references_for(problem) if r.quantity == "energy_g_inf"]
     assert limit == [2.0, 2.0, 3.0, 3.0, 4.0, 4.0]
     assert energies(problem) == pytest.approx(limit, abs=1e-5)  # Busch's roots at lambda ~ 1e7
@@ -381,7 +381,7 @@ def test_wedge_slopes_reduce_to_the_spin_chain_diagonal_for_equal_masses():
     assert all(math.isnan(level.k) for level in wedge_spectrum(Problem.create(2, 1, 5.0, states=3)))
 
 
-@pytest.mark.parametrize("pair_mass,odd_mass", [(40 / 6, 1.0), (0.15, 1.0)])
+@pytest.mark.parametrize("pair_mass,odd_mass", [(20 / 3, 1.0), (0.15, 1.0)])
 def test_wedge_wall_integrals_by_mpmath(pair_mass, odd_mass):
     # the Laguerre moments behind K of the wedge levels, by mpmath.quad (the module uses scipy.integrate.quad)
     import mpmath
@@ -399,7 +399,7 @@ def test_wedge_wall_integrals_by_mpmath(pair_mass, odd_mass):
 
 
 def test_unequal_mass_wedge_slopes_are_references():
-    refs = references_for(Problem.create(1, 2, 30.0, mass_down=40 / 6, states=2))
+    refs = references_for(Problem.create(1, 2, 30.0, mass_down=20 / 3, states=2))
     k = [r.value for r in refs if r.quantity == "K"]
-    expected = wedge_spectrum(Problem.create(1, 2, 30.0, mass_down=40 / 6, states=2))
+    expected = wedge_spectrum(Problem.create(1, 2, 30.0, mass_down=20 / 3, states=2))
     assert k == pytest.approx([level.k for level in expected], abs=1e-12) and all(v > 0 for v in k)

@@ -14,7 +14,7 @@ from trapbench.problems import Problem
 
 
 def test_json_round_trip_is_lossless():
-    problem = Problem.create(1, 1, 2.0, mass_down=40 / 6, states=3, observables=["density", "momentum"], grid_points=64)
+    problem = Problem.create(1, 1, 2.0, mass_down=20 / 3, states=3, observables=["density", "momentum"], grid_points=64)
     result = get("two-body").solve(problem)
     result.observables["complex_check"] = Observable(np.array([1 + 2j, 3.5 - 1e-300j]), {"k": np.array([0.1, 0.2])}, "-", "-",
                                                      error=1.25e-7)
@@ -34,7 +34,7 @@ def test_json_round_trip_is_lossless():
     assert Result.from_json(json.dumps(legacy)).observables["complex_check"].error is None
     frame = result.to_dataframe()
     assert list(frame["energy"]) == result.energies and set(frame["backend"]) == {"two-body"}
-    assert frame["mass_down"].iloc[0] == pytest.approx(40 / 6)
+    assert frame["mass_down"].iloc[0] == pytest.approx(20 / 3)
 
 
 PLUGIN = '''

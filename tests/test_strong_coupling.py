@@ -170,7 +170,7 @@ def test_backend_density_approaches_exact_two_body_density(backend):
 @pytest.mark.parametrize(
     "problem,reason",
     [
-        (Problem.create(2, 1, 5.0, mass_up=40 / 6), "needs equal masses"),
+        (Problem.create(2, 1, 5.0, mass_up=20 / 3), "needs equal masses"),
         (Problem.create(2, 1, -5.0), "repulsive branch"),
         (Problem.create(2, 1, 5.0, omega_up=2.0), "frequencies"),
         (Problem.create(2, 1, 5.0, states=4), "ask for targets.states <= 3"),

@@ -43,7 +43,7 @@ def backend():
     return get("two-body")
 
 
-@pytest.mark.parametrize("mass_ratio", [1.0, 40 / 6, 6 / 40])
+@pytest.mark.parametrize("mass_ratio", [1.0, 20 / 3, 3 / 20])
 @pytest.mark.parametrize("g", [-5.0, -2.0, -0.3, 0.7, 2.0, 10.0])
 def test_ground_state_matches_mpmath(backend, g, mass_ratio):
     result = backend.solve(Problem.create(1, 1, g, mass_down=mass_ratio))
@@ -60,14 +60,14 @@ def test_even_relative_levels_match_ode_shooting(backend, g):
 
 
 def test_mass_imbalance_table_and_reference_mass_change(backend):
-    # kappa = 40/6 at g = 5 and kappa = 6/40 at g = 10, against ODE shooting with lambda = g sqrt(mu)
-    heavy = backend.solve(Problem.create(1, 1, 5.0, mass_down=40 / 6)).energies[0]
-    assert abs(heavy - ground_energy(5.0, 1.0, 40 / 6)) < 1e-10
-    light_ref = backend.solve(Problem.create(1, 1, 10.0, mass_down=6 / 40)).energies[0]
-    assert abs(light_ref - ground_energy(10.0, 1.0, 6 / 40)) < 1e-10
-    # the same system with the heavy species as reference: g' = g sqrt(m0'/m0) = g sqrt(6/40)
+    # kappa = 20/3 at g = 5 and kappa = 3/20 at g = 10, against ODE shooting with lambda = g sqrt(mu)
+    heavy = backend.solve(Problem.create(1, 1, 5.0, mass_down=20 / 3)).energies[0]
+    assert abs(heavy - ground_energy(5.0, 1.0, 20 / 3)) < 1e-10
+    light_ref = backend.solve(Problem.create(1, 1, 10.0, mass_down=3 / 20)).energies[0]
+    assert abs(light_ref - ground_energy(10.0, 1.0, 3 / 20)) < 1e-10
+    # the same system with the heavy species as reference: g' = g sqrt(m0'/m0) = g sqrt(3/20)
     # (g is in units of sqrt(hbar^3 omega / m0): dimensional analysis)
-    heavy_ref = backend.solve(Problem.create(1, 1, 10.0 * math.sqrt(6 / 40), mass_down=40 / 6)).energies[0]
+    heavy_ref = backend.solve(Problem.create(1, 1, 10.0 * math.sqrt(3 / 20), mass_down=20 / 3)).energies[0]
     assert abs(light_ref - heavy_ref) < 1e-11
 
 
@@ -97,7 +97,7 @@ def test_parity_sectors(backend):
     assert odd.energies[:2] == pytest.approx(sorted([e0 + 1, 2.0]), abs=1e-11)
 
 
-@pytest.mark.parametrize("mass_ratio", [1.0, 40 / 6])
+@pytest.mark.parametrize("mass_ratio", [1.0, 20 / 3])
 def test_strong_repulsion_limit(backend, mass_ratio):
     # E = 2 - 2/(sqrt(pi mu) g) + O(g^-2): Busch's equation expanded about e = 3/2 (derived here;
     # Gamma(eps/2) ~ 2/eps, Gamma(-1/2) = -2 sqrt(pi)), so K = 2/sqrt(pi mu)
@@ -107,7 +107,7 @@ def test_strong_repulsion_limit(backend, mass_ratio):
         assert abs(energy - (2 - 2 / (math.sqrt(math.pi * mu) * g))) < 5 / g**2
 
 
-@pytest.mark.parametrize("mass_ratio", [1.0, 40 / 6])
+@pytest.mark.parametrize("mass_ratio", [1.0, 20 / 3])
 def test_strong_attraction_limit(backend, mass_ratio):
     # deeply bound pair: relative energy -mu g^2/2 (1D delta bound state, common practice); plus
     # COM 1/2; the next term 1/(4 lambda^2), lambda^2 = mu g^2, from Stirling's series of Busch's equation
@@ -159,7 +159,7 @@ def test_density_and_momentum_distribution(backend):
 
 def test_heavy_light_densities_and_momentum_tail(backend):
     problem = Problem.create(
-        1, 1, 8.0, mass_down=40 / 6, observables=["density", "momentum"], grid_points=801, x_max=6.0, p_max=20.0
+        1, 1, 8.0, mass_down=20 / 3, observables=["density", "momentum"], grid_points=801, x_max=6.0, p_max=20.0
     )
     result = backend.solve(problem)
     for label in ("up", "down"):

@@ -24,7 +24,7 @@ from trapbench.problems.spec import Problem
 TWO_BODY_PROBLEMS = [
     Problem.create(1, 1, 1.0, states=6),
     Problem.create(1, 1, -2.0, states=6),
-    Problem.create(1, 1, 2.0, mass_up=40 / 6, states=4),
+    Problem.create(1, 1, 2.0, mass_up=20 / 3, states=4),
 ]
 
 
@@ -163,8 +163,8 @@ def test_dropped_state_is_flagged():
 
 
 def test_observable_conventions_are_checked():
-    # unequal masses: (2 mu)^2 = 4 (40/6)^2 / (46/6)^2 differs from 1
-    problems = [Problem.create(1, 1, 2.0, mass_up=40 / 6)]
+    # unequal masses: (2 mu)^2 = 4 (20/3)^2 / (23/3)^2 differs from 1
+    problems = [Problem.create(1, 1, 2.0, mass_up=20 / 3)]
     assert failed_checks(validate(ContactConventionToy(), problems, checks=["contact-convention"])) == {"contact-convention"}
     assert failed_checks(validate(DensityNormalizationToy(), problems, checks=["normalization"])) == {"normalization"}
 

@@ -5,7 +5,7 @@ Run by hand (not part of the test suite):
     python bench/benchmarks/bench_oscillator_convergence.py            # full table
     python bench/benchmarks/bench_oscillator_convergence.py --quick    # small budgets
 
-For each case (2+2 and 3+3; g = +2 and -2; mass ratio 1 and 40/6) the renormalized, energy-truncated
+For each case (2+2 and 3+3; g = +2 and -2; mass ratio 1 and 20/3) the renormalized, energy-truncated
 ground state (its g = 0 parity sector) is solved on a growing ladder of cutoffs c = 4, 8, 12, ...
 until a CPU budget is spent. After each cutoff the last four points are extrapolated
 (E_inf + A c^-p on the last three, the backend's rule and error bar). Reported per case:
@@ -32,7 +32,7 @@ from trapbench.bench.runner import peak_rss_bytes
 CASES = [
     (n, n, g, m)
     for n in (2, 3)
-    for m in (1.0, 40 / 6)
+    for m in (1.0, 20 / 3)
     for g in (2.0, -2.0)
 ]
 
