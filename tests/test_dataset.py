@@ -212,3 +212,19 @@ def test_disagreements_list_the_levels_where_two_families_exclude_each_other():
     (conflict,) = dataset.disagreements(built)
     assert (conflict["g"], conflict["method A"], conflict["method B"]) == (2.0, "lattice-dmrg", "oscillator-ed")
     assert conflict["gap"] == pytest.approx(0.01) and conflict["sigmas"] == pytest.approx(0.01 / 3e-3)
+
+
+def test_the_report_states_the_datasets_coverage_against_the_grid_and_the_goals(monkeypatch):
+    from trapbench.bench.report import analysis
+
+    built = dataset.build([row("three-body", 4.1, 1e-12, n=(2, 1)), row("oscillator-ed", 10.0002, 3e-4),
+                           row("lattice-dmrg", 10.0, 1e-4), row("oscillator-ed", 12.0, 1e-3, g=5.0)])
+    monkeypatch.setattr(dataset, "load", lambda: built)
+    status = analysis.dataset_status().set_index("config")
+    # the grid: 5 mass ratios x 6 g for 2+1, 3 x 6 for 2+2 (dataset_problems)
+    assert status.loc["2+1", "grid points"] == 30 and status.loc["2+2", "grid points"] == 18
+    assert status.loc["2+1", ["measured", "levels published", "within goal"]].tolist() == [1, 1, 1]
+    two_two = status.loc["2+2"]
+    assert (two_two["measured"], two_two["levels published"], two_two["levels open"]) == (2, 1, 1)
+    assert two_two["worst"] == pytest.approx(3e-4 / 10.0) and two_two["within goal"] == 0  # goal 1e-6 at N = 4
+    assert status.loc["6+6", "measured"] == 0

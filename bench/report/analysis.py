@@ -27,6 +27,32 @@ def calibration(frame: pd.DataFrame) -> pd.DataFrame:
     return error_bar_calibration(frame[(frame["status"] == "ok") & (frame["state"] >= 0)])
 
 
+def dataset_status() -> pd.DataFrame:
+    """Where the shipped reference dataset stands, per configuration: grid points measured, levels by status,
+    and the relative uncertainty of the published levels against the goal for that particle number."""
+    from ...problems import dataset
+
+    shipped = dataset.load()
+    grid: dict[str, int] = {}
+    for problem in dataset.dataset_problems():
+        config = f"{problem.up.count}+{problem.down.count}"
+        grid[config] = grid.get(config, 0) + len(problem.points())
+    rows = pd.DataFrame(dataset.summary_rows(shipped))
+    out = []
+    for config, points in grid.items():
+        mine = rows[rows["config"] == config] if not rows.empty else rows
+        measured = {e.key for e in shipped.entries if f"{e.n_up}+{e.n_down}" == config}
+        published = mine[mine["status"] != "open"] if not mine.empty else mine
+        relative = pd.to_numeric(published["relative"], errors="coerce") if not published.empty else pd.Series(dtype=float)
+        goal = dataset.UNCERTAINTY_GOALS.get(sum(int(n) for n in config.split("+")))
+        out.append({"config": config, "grid points": points, "measured": len(measured),
+                    "levels published": len(published), "levels open": 0 if mine.empty else int((mine["status"] == "open").sum()),
+                    "median relative uncertainty": float(relative.median()) if len(relative) else None,
+                    "worst": float(relative.max()) if len(relative) else None, "goal": goal,
+                    "within goal": int((relative <= goal).sum()) if len(relative) and goal else 0})
+    return pd.DataFrame(out)
+
+
 def dataset_disagreements() -> pd.DataFrame:
     """``problems.dataset.disagreements`` of the shipped reference dataset, as a table."""
     from ...problems import dataset

@@ -1,7 +1,7 @@
 """Assemble the report from the store: sections in order, figures saved, Markdown/HTML/CSV written.
 
-Sections: the method map, error-bar calibration, agreement with every reference (one table per
-source, with its citation), accuracy against cost, cost against particle number, the physics
+Sections: the method map, error-bar calibration, the reference dataset's coverage, agreement with every
+reference (one table per source, with its citation), accuracy against cost, cost against particle number, the physics
 figures, failed tasks, and the machine, library versions and git commit recorded with the runs.
 Every judgement of accuracy follows ``bench.verdicts``.
 """
@@ -92,6 +92,19 @@ def calibration_section(document: Document, frame: pd.DataFrame) -> None:
             " ('sigmas': the gap in units of that sum). At each, at least one of the two bars misses the truth; such a"
             " level grades neither method, so the coverage above, measured on agreed levels, cannot count it.",
             "dataset_disagreements"))
+
+
+def dataset_section(document: Document) -> None:
+    from ...problems import dataset
+
+    shipped = dataset.load()
+    document.add(Heading(2, "Reference dataset"), Table(
+        analysis.dataset_status(),
+        f"The reference dataset v{shipped.version} shipped with the package ({dataset.SOURCE}; rule: {shipped.rule})"
+        " per configuration: grid points (mass ratios x g) measured, levels published (N = 3 by the precision method,"
+        " N >= 4 where two method families agree) or open (one family only, or a disagreement), and the relative"
+        " uncertainty of the published levels (uncertainty / max(|E|, 1)) against the goal for that particle number.",
+        "dataset_status"))
 
 
 def agreement_section(document: Document, frame: pd.DataFrame) -> None:
@@ -230,6 +243,7 @@ def build_document(store, folder: Path, suite=None, task_keys: set[str] | None =
     document.add(introduction(frame, store, command, task_keys))
     method_map_section(document, frame)
     calibration_section(document, frame)
+    dataset_section(document)
     agreement_section(document, frame)
     accuracy_section(document, frame, folder)
     scaling_section(document, frame, folder)
