@@ -69,7 +69,8 @@ def run(args: argparse.Namespace) -> int:
         print("no grid point of the dataset has a measured level in this store")
         return 1
     table = summary.groupby(["config", "status"]).size().unstack(fill_value=0)
-    print(f"reference dataset v{built.version}: {len(built.entries)} points, {len(summary)} levels")
+    grid = sum(len(problem.points()) for problem in dataset.dataset_problems())
+    print(f"reference dataset v{built.version}: {len(built.entries)} of {grid} grid points measured, {len(summary)} levels")
     print(table.to_string())
     published = summary[summary["status"] != "open"]
     if not published.empty:
