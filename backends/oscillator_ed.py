@@ -4,7 +4,8 @@ Method (configuration interaction / "exact diagonalization", common practice for
 a trap; e.g. Sowinski et al., Phys. Rev. A 88, 033607 (2013); Grining et al., New J. Phys. 17,
 115001 (2015)). Species s uses oscillator orbitals phi_n(x; b_s): by default those of its own trap,
 b_s = 1/sqrt(m_s omega_s), one-body energies omega_s (n + 1/2); where a heavy-heavy-light trimer can
-bind (g < 0, a pair species heavier than its partner) narrower lengths chosen by minimizing the bare
+bind (g < 0, a pair species heavier than its partner) or two pairs can (g < 0, two or more fermions of
+each species) narrower lengths chosen by minimizing the bare
 energy at a small cutoff (``basis_lengths``; ``oscillator_scaling``: the one-body term is then a
 pentadiagonal matrix, parity is still (-1)^n). The many-body basis is Slater determinants of each species:
 
@@ -84,12 +85,14 @@ Single runs outside the table (no reference below 1e-3): 3+3, g = 2: effective 1
 11.99220 at c = 12, 16, 20 (rising, then flat), running 12.00493, 12.00169, 11.99847 (falling); 2+2 with
 m_up/m_down = 3/20, g = 2: effective 5.25369, 5.25782 at c = 16, 24, running 5.25607, 5.25906 (both
 rising).
-Known miss, two bound pairs (2+2, equal masses, g = -3; running coupling, trap orbitals): the ground energy
-along c = 8, 12, ..., 36 is -2.10266, -2.03915, -2.01879, -2.01222, -2.01045, -2.01045, -2.01111, -2.01200:
-it rises, then turns and falls slowly. The default ladder (c = 8-20) sees only the rise and extrapolates
-to -2.0094 +- 0.006, while lattice-dmrg gives -2.0251 +- 0.0008 (2.6 of those bars away; the first
-excited level, -1.368 +- 0.15 by default, extrapolates to -1.048 from c = 24-36, against lattice-dmrg's -1.0251). The
-report lists such levels as dataset disagreements and ``advise`` lowers its confidence there.
+Two bound pairs in the trap's orbitals (2+2, equal masses, g = -3; running coupling; ``basis_lengths =
+'trap'``, the default before version 4): the ground energy along c = 8, 12, ..., 36 is -2.10266, -2.03915,
+-2.01879, -2.01222, -2.01045, -2.01045, -2.01111, -2.01200: it rises, then turns and falls slowly. A
+ladder below c = 24 sees only the rise and extrapolates to -2.0094 +- 0.006, while lattice-dmrg gives
+-2.0251 +- 0.0008 (2.6 of those bars away; the first excited level, -1.368 +- 0.15, extrapolates to
+-1.048 from c = 24-36, against lattice-dmrg's -1.0251). Hence 'auto' now optimizes the lengths there
+(``basis_lengths``): -2.0245 +- 0.013 and -1.0112 +- 0.040 by default. The report lists levels where two
+method families exclude each other as dataset disagreements, and ``advise`` lowers its confidence there.
 
 Convergence: ``ladder`` cutoffs (cutoff, cutoff - step, ...) run through the shared convergence
 ladder (``backends/ladder.py``, which states how every error bar is formed): each level is followed
@@ -471,6 +474,11 @@ def heavy_light_trimer_possible(problem: Problem) -> bool:
     return problem.coupling < 0 and heavy_pair
 
 
+def two_pairs_can_bind(problem: Problem) -> bool:
+    """g < 0 with at least two fermions of each species: two or more pairs can bind at once."""
+    return problem.coupling < 0 and problem.up.count >= 2 and problem.down.count >= 2
+
+
 def basis_lengths(problem: Problem, choice: str, kind: str, cutoff: int, parities) -> tuple[tuple[float, float], dict]:
     """The orbitals' length per species: the trap lengths, or those minimizing the bare ground energy
     at ``cutoff`` (``oscillator_scaling.choose_lengths``).
@@ -482,8 +490,18 @@ def basis_lengths(problem: Problem, choice: str, kind: str, cutoff: int, paritie
     orbitals extrapolated to -2.47 for -4.097). Where no trimer forms the scaled orbitals were measured
     worse than the trap's (1+2 at 20/3, g = -3: 3.3e-3 against 4.2e-4 off): they miss the unbound
     particle and the centre-of-mass excitations, which the trap orbitals hold exactly.
+
+    ``auto`` also optimizes where two or more pairs can bind (g < 0, two or more fermions of each species):
+    with the trap's orbitals the running-coupling ladder rises and turns down only beyond the default
+    cutoffs, and its bar missed (2+2, equal masses, against lattice-dmrg: g = -3, default ladder, -2.0094 +-
+    0.006 for -2.0251 +- 0.0008; g = -2, cutoff 32, 0.709505 +- 1.7e-4 for 0.708881 +- 2.7e-4). The optimized
+    orbitals (lengths ~0.55 at g = -3) give a ladder falling monotonically from above: -2.0245 +- 0.013
+    (default) and 0.708913 +- 1.8e-3 (cutoff 32), both within 0.1 bar of lattice-dmrg; at g = -1 both
+    choices cover it (2.660215 +- 2.6e-4 trap, 2.660357 +- 6.4e-4 optimized, lattice-dmrg 2.660256 +-
+    6e-4). The price: bars 2-8x wider and 2-3x the CPU time (the length search).
     """
-    if choice == "trap" or (choice == "auto" and not heavy_light_trimer_possible(problem)):
+    binds = heavy_light_trimer_possible(problem) or two_pairs_can_bind(problem)
+    if choice == "trap" or (choice == "auto" and not binds):
         return trap_lengths(problem), {}
     truncation = Truncation(kind, cutoff)
 
@@ -572,7 +590,7 @@ def derived_scalar_errors(problem: Problem, energy_error, trap_error, delta_erro
 
 class OscillatorEDBackend(Backend):
     name = "oscillator-ed"
-    version = "3"
+    version = "4"
     summary = (
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
@@ -614,7 +632,8 @@ class OscillatorEDBackend(Backend):
             str,
             "auto",
             "orbital length per species: 'trap' (each species' trap length), 'optimize' (lowest bare energy at"
-            " the ladder's first cutoff, for bound pairs) or 'auto' (optimize when g < 0)",
+            " the ladder's first cutoff, for bound pairs) or 'auto' (optimize when g < 0 and a heavy-heavy-light"
+            " trimer or two pairs can bind)",
             choices=("auto", "trap", "optimize"),
         ),
         Parameter("ladder", int, 4, "number of cutoffs solved (>= 3 extrapolates; 2 bounds the rest by the slowest"

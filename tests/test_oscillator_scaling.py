@@ -96,3 +96,16 @@ def test_heavy_light_trimer_is_found_within_its_error_bar():
     result = get("oscillator-ed").solve(problem)
     assert abs(result.energies[0] - reference) <= 2 * result.energy_errors[0]
     assert result.energy_errors[0] < 0.05
+
+
+def test_auto_lengths_narrow_where_two_pairs_can_bind_and_nowhere_else_with_equal_masses():
+    """'auto' optimizes the orbitals for g < 0 with two or more fermions of each species (two pairs can bind;
+    the trap orbitals' ladder turned around beyond the default cutoffs there, module docstring), and keeps the
+    trap's for one pair (2+1, 3+1) and for g > 0."""
+    def auto(n_up, n_down, g):
+        return oed.basis_lengths(Problem.create(n_up, n_down, g), "auto", "energy", 8, (+1, -1))
+
+    lengths, record = auto(2, 2, -3.0)
+    assert max(lengths) < 0.8 and record["energy_at_chosen_lengths"] < record["energy_at_trap_lengths"]
+    for counts, g in (((2, 1), -3.0), ((3, 1), -3.0), ((2, 2), 2.0)):
+        assert auto(*counts, g) == ((1.0, 1.0), {})
