@@ -23,8 +23,9 @@ sqrt(hbar^3 omega / m0).
   The value is that of the method with the smaller error bar, the uncertainty the larger of the two bars.
   Where they disagree, the level is listed as "open" with every value and is not offered as a reference.
 
-Each method's value is its best result in the store: the successful task with the smallest error bar for
-that level. A reference never grades a method that produced it: ``DatasetLevel.reference_for(backend)``
+Each method's value is its best result in the store: among the successful tasks of the backend's newest
+version in the store (a newer version supersedes: a fix may widen a bar that was too narrow), the one with the
+smallest error bar for that level; ``merge`` applies the same preference level by level. A reference never grades a method that produced it: ``DatasetLevel.reference_for(backend)``
 gives a backend the value of the other family alone (its own error bar as the uncertainty), and nothing
 when no other family contributed.
 """
@@ -202,7 +203,7 @@ RULE_TEXT = (
     "N = 3: the three-body backend alone (its error bar is the uncertainty). N >= 4: two methods of different"
     " families (oscillator basis; lattice) agreeing within the sum of their error bars; value of the more precise,"
     " uncertainty the larger bar; otherwise 'open'. Each method's value: its successful result with the smallest"
-    " error bar for that level."
+    " error bar for that level among those of the backend's newest version."
 )
 UNITS = {"energy": "hbar*omega", "mass": "m0 (the lighter species)", "g": "sqrt(hbar^3 omega/m0)"}
 
@@ -244,11 +245,24 @@ def best_values(rows: Iterable[Mapping[str, Any]]) -> dict[str, dict[int, dict[s
             continue
         key = physics_key(int(row["n_up"]), int(row["n_down"]), float(row["mass_up"]), float(row["mass_down"]), float(row["g"]))
         slot = best.setdefault(key, {}).setdefault(int(row["state"]), {})
+        candidate = MethodValue(row["backend"], str(row.get("backend_version", "")), dict(row.get("params") or {}),
+                                energy, error, row.get("cpu_time_s"))
         current = slot.get(row["backend"])
-        if current is None or error < current.error:
-            slot[row["backend"]] = MethodValue(row["backend"], str(row.get("backend_version", "")), dict(row.get("params") or {}),
-                                               energy, error, row.get("cpu_time_s"))
+        if current is None or _preferred(candidate, current):
+            slot[row["backend"]] = candidate
     return best
+
+
+def _version_rank(version: str) -> tuple:
+    return (1, int(version)) if version.isdigit() else (0, version)
+
+
+def _preferred(candidate: MethodValue, current: MethodValue) -> bool:
+    """A backend's newer version supersedes its older results (a fix may widen a bar that was too narrow); within
+    one version the smaller error bar wins."""
+    if candidate.version != current.version:
+        return _version_rank(candidate.version) > _version_rank(current.version)
+    return candidate.error < current.error
 
 
 def judge_level(state: int, n_particles: int, candidates: Mapping[str, MethodValue]) -> DatasetLevel:
@@ -291,8 +305,8 @@ def build(rows: Iterable[Mapping[str, Any]], version: str = DATASET_VERSION) -> 
 def merge(existing: Dataset, update: Dataset) -> Dataset:
     """``update``'s entries pooled with ``existing``'s, level by level, as if both had been built from one store.
 
-    For a grid point in both, each level's methods are pooled (per backend the value with the smaller error bar,
-    ``update``'s on a tie) and judged again by the agreement rule (``judge_level``); a level only one side has is
+    For a grid point in both, each level's methods are pooled (per backend the newer version's value, within a
+    version the one with the smaller error bar, ``update``'s on a tie) and judged again by the agreement rule (``judge_level``); a level only one side has is
     kept as it is. A sweep of part of the grid, or of fewer levels, thus adds to the shipped file instead of erasing
     what it does not measure. The result carries ``update``'s version and creation time.
     """
@@ -315,7 +329,8 @@ def _merge_entry(old: DatasetEntry, new: DatasetEntry) -> DatasetEntry:
         pooled: dict[str, MethodValue] = {}
         for method in (*previous.methods, *level.methods):  # the update's last: it wins a tie
             current = pooled.get(method.backend)
-            if current is None or method.error <= current.error:
+            if current is None or _preferred(method, current) or (
+                    method.version == current.version and method.error == current.error):
                 pooled[method.backend] = method
         levels[level.state] = judge_level(level.state, new.n_up + new.n_down, pooled)
     return replace(new, levels=tuple(levels[state] for state in sorted(levels)))

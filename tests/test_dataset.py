@@ -228,3 +228,18 @@ def test_the_report_states_the_datasets_coverage_against_the_grid_and_the_goals(
     assert (two_two["measured"], two_two["levels published"], two_two["levels open"]) == (2, 1, 1)
     assert two_two["worst"] == pytest.approx(3e-4 / 10.0) and two_two["within goal"] == 0  # goal 1e-6 at N = 4
     assert status.loc["6+6", "measured"] == 0
+
+
+def test_a_newer_backend_version_supersedes_an_older_narrower_bar():
+    old = {**row("oscillator-ed", -2.0094, 6e-3, g=-3.0), "backend_version": "3"}
+    new = {**row("oscillator-ed", -2.0245, 1.3e-2, g=-3.0), "backend_version": "4"}
+    lattice = row("lattice-dmrg", -2.0251, 8e-4, g=-3.0)
+    built = dataset.build([old, new, lattice])
+    level = built.entries[0].levels[0]
+    assert level.status == "agreed" and {(m.backend, m.version) for m in level.methods} == {
+        ("oscillator-ed", "4"), ("lattice-dmrg", "1")}
+    # merging the new build into a file that holds the old disagreement gives the same verdict
+    shipped = dataset.build([old, lattice])
+    assert shipped.entries[0].levels[0].status == "open"
+    (merged,) = dataset.merge(shipped, dataset.build([new])).entries
+    assert merged.levels[0].status == "agreed" and merged.levels[0].uncertainty == 1.3e-2
