@@ -25,9 +25,9 @@ sqrt(hbar^3 omega / m0).
 
 Each method's value is its best result in the store: among the successful tasks of the backend's newest
 version in the store (a newer version supersedes: a fix may widen a bar that was too narrow), the one with the
-smallest error bar for that level; ``merge`` applies the same preference level by level. A reference never grades a method that produced it: ``DatasetLevel.reference_for(backend)``
-gives a backend the value of the other family alone (its own error bar as the uncertainty), and nothing
-when no other family contributed.
+smallest error bar for that level; ``merge`` applies the same preference level by level. A reference never
+grades a method that produced it: ``DatasetLevel.reference_for(backend)`` gives a backend the value of the
+other family alone (its own error bar as the uncertainty), and nothing when no other family contributed.
 """
 
 from __future__ import annotations
@@ -265,6 +265,14 @@ def _preferred(candidate: MethodValue, current: MethodValue) -> bool:
     return candidate.error < current.error
 
 
+def _two_best_families(methods: Iterable[MethodValue]) -> list[MethodValue]:
+    """Each method family's most precise value, the two most precise of those first (fewer when fewer families)."""
+    by_family: dict[str, MethodValue] = {}
+    for m in sorted(methods, key=lambda m: m.error):
+        by_family.setdefault(METHOD_FAMILIES.get(m.backend, m.backend), m)
+    return list(by_family.values())[:2]
+
+
 def judge_level(state: int, n_particles: int, candidates: Mapping[str, MethodValue]) -> DatasetLevel:
     """Apply the agreement rule (module docstring) to the methods' best values for one level."""
     methods = tuple(sorted(candidates.values(), key=lambda m: m.error))
@@ -272,12 +280,10 @@ def judge_level(state: int, n_particles: int, candidates: Mapping[str, MethodVal
     if precise:
         m = precise[0]
         return DatasetLevel(state, "precision", m.value, m.error, (m,), "precision method for this particle number")
-    by_family: dict[str, MethodValue] = {}
-    for m in methods:  # most precise first: keep each family's best
-        by_family.setdefault(METHOD_FAMILIES[m.backend], m)
-    if len(by_family) < 2:
+    best = _two_best_families(methods)
+    if len(best) < 2:
         return DatasetLevel(state, "open", None, None, methods, "fewer than two independent methods")
-    a, b = sorted(by_family.values(), key=lambda m: m.error)[:2]
+    a, b = best
     if abs(a.value - b.value) > a.error + b.error:
         return DatasetLevel(state, "open", None, None, methods,
                             f"{a.backend} and {b.backend} differ by {abs(a.value - b.value):.3g} > {a.error + b.error:.3g}")
@@ -306,8 +312,8 @@ def merge(existing: Dataset, update: Dataset) -> Dataset:
     """``update``'s entries pooled with ``existing``'s, level by level, as if both had been built from one store.
 
     For a grid point in both, each level's methods are pooled (per backend the newer version's value, within a
-    version the one with the smaller error bar, ``update``'s on a tie) and judged again by the agreement rule (``judge_level``); a level only one side has is
-    kept as it is. A sweep of part of the grid, or of fewer levels, thus adds to the shipped file instead of erasing
+    version the one with the smaller error bar, ``update``'s on a tie) and judged again by the agreement rule
+    (``judge_level``); a level only one side has is kept as it is. A sweep of part of the grid, or of fewer levels, thus adds to the shipped file instead of erasing
     what it does not measure. The result carries ``update``'s version and creation time.
     """
     entries = {entry.key: entry for entry in existing.entries}
@@ -329,8 +335,7 @@ def _merge_entry(old: DatasetEntry, new: DatasetEntry) -> DatasetEntry:
         pooled: dict[str, MethodValue] = {}
         for method in (*previous.methods, *level.methods):  # the update's last: it wins a tie
             current = pooled.get(method.backend)
-            if current is None or _preferred(method, current) or (
-                    method.version == current.version and method.error == current.error):
+            if current is None or not _preferred(current, method):
                 pooled[method.backend] = method
         levels[level.state] = judge_level(level.state, new.n_up + new.n_down, pooled)
     return replace(new, levels=tuple(levels[state] for state in sorted(levels)))
@@ -348,12 +353,10 @@ def disagreements(dataset: Dataset) -> list[dict[str, Any]]:
         for level in entry.levels:
             if level.status != "open":
                 continue
-            by_family: dict[str, MethodValue] = {}
-            for m in sorted(level.methods, key=lambda m: m.error):
-                by_family.setdefault(METHOD_FAMILIES.get(m.backend, m.backend), m)
-            if len(by_family) < 2:
+            best = _two_best_families(level.methods)
+            if len(best) < 2:
                 continue
-            a, b = sorted(by_family.values(), key=lambda m: m.error)[:2]
+            a, b = best
             gap = abs(a.value - b.value)
             if gap <= a.error + b.error:
                 continue
