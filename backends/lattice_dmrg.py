@@ -174,13 +174,23 @@ class LatticeDMRGBackend(Backend):
             raise SpecError("param.chi", f"got {list(params['chi'])}; give distinct positive bond dimensions, ascending")
         # the executor already limits the pools to the run's --blas-threads; only an explicit value overrides it
         limit = threadpool_limits(params["threads"]) if params["threads"] else contextlib.nullcontext()
-        with limit:
+        with limit, unchecked_tensors():
             return lattice.solve_continuum_ladder(
                 problem,
                 self.ladder(problem, params),
                 lambda grid, final: solve_on_grid(problem, grid, final, chis, params),
                 keep=problem.targets.states,
             )
+
+
+def unchecked_tensors():
+    """tenpy's optimization level ``skip_arg_checks`` for the solve: its tensors skip their
+    per-construction sanity checks. Measured, identical energies: 2+1 on 46 and 57 sites at chi 16
+    then 32, 26.1 against 34.1 CPU s; 2+2, g = 2, default spacings, chi 16 then 32, 112 against
+    128 CPU s; at chi 32 then 64 (3+2) the gain is a few per cent, the contractions dominate."""
+    from tenpy.tools.optimization import OptimizationFlag, temporary_level
+
+    return temporary_level(OptimizationFlag.skip_arg_checks)
 
 
 def solve_on_grid(problem: Problem, grid: lattice.Grid, final: bool, chis, params) -> LatticeLevels:
