@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import contextlib
 import time
+import warnings
 from collections.abc import Callable
 
 from .executor import FAILED, Limits, Outcome, payload_for
@@ -38,11 +39,17 @@ class SweepStalled(RuntimeError):
 
 
 def local_cluster(workers: int):
-    """A LocalCluster of ``workers`` non-daemonic single-threaded processes (caller closes it)."""
+    """A LocalCluster of ``workers`` non-daemonic single-threaded processes (caller closes it).
+
+    Its scheduler's HTTP server (no dashboard here) asks for port 8787 and moves to a free one when
+    another cluster holds it, with a warning; two sweeps side by side are normal use, so that warning
+    is not printed.
+    """
     import dask
     from distributed import LocalCluster
 
-    with dask.config.set({"distributed.worker.daemon": False}):
+    with dask.config.set({"distributed.worker.daemon": False}), warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message="Port 8787 is already in use", category=UserWarning)
         return LocalCluster(n_workers=workers, **LOCAL_CLUSTER_OPTIONS)
 
 

@@ -13,6 +13,7 @@ discretisation error c / cutoff^2 so that parameter ladders have a cost/accuracy
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import signal
@@ -429,6 +430,24 @@ def test_results_of_another_backend_version_are_recomputed(toy_path, tmp_path):
 
 
 # ----------------------------------------------------------------------------- Dask
+
+
+@pytest.mark.slow  # a LocalCluster starts and stops
+def test_a_second_local_cluster_starts_without_a_port_warning():
+    """Two sweeps side by side: the second cluster's HTTP server moves off the taken port 8787 silently."""
+    import socket
+    import warnings
+
+    from trapbench.bench.distributed import local_cluster
+
+    with socket.socket() as holder:
+        with contextlib.suppress(OSError):  # already held by another process: the same situation
+            holder.bind(("", 8787))
+            holder.listen()
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            local_cluster(1).close()
+    assert not [w for w in caught if "already in use" in str(w.message)]
 
 
 @pytest.mark.slow  # a LocalCluster starts and stops, ~10 s
