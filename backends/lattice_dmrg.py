@@ -5,7 +5,8 @@ lattice-ed uses too: species-dependent hopping t_s = 1/(2 m_s a^2), on-site 2 t_
 on n_up n_down, open chain) as a matrix-product operator on tenpy's ``SpinHalfFermionSite`` with N_up and N_down conserved separately; the ground
 state by two-site DMRG (S. R. White, Phys. Rev. Lett. 69, 2863 (1992)) and excited states by DMRG
 orthogonal to the lower ones. Each state is converged at every bond dimension of a ladder
-chi_1 < chi_2 < ..., restarting from the previous MPS; the energy is extrapolated linearly in the
+chi_1 < chi_2 < ..., restarting from the previous MPS, until it converges without truncation
+(``settled``); the energy is extrapolated linearly in the
 discarded weight of the last sweep (``extrapolation.DiscardedWeightLinear``, common practice) with an
 error bar, which is the lattice energy's solver error in the continuum limit over the spacing ladder
 (``lattice.solve_continuum_ladder``, the shared convergence ladder). The default spacing ladder is
@@ -109,6 +110,15 @@ def initial_occupations(problem: Problem, grid: lattice.Grid) -> list[str]:
     return [names[(j in up, j in down)] for j in range(grid.sites)]
 
 
+def settled(stage: dict) -> bool:
+    """A level done at this bond dimension: converged in sweeps with a discarded weight of at most
+    ``NO_TRUNCATION``. A larger chi gives the same state (only weights below that are left to keep),
+    so the ladder stops for it. Measured on 3+1 at mass ratio 2, g = 2, three levels, 52-127 sites:
+    chi 64 discards at most 3e-13, yet every level went on to chi 128 and 256 (bonds up to 256) before
+    this rule, 2314 CPU s in all."""
+    return stage["converged"] and stage["truncation_error"] <= NO_TRUNCATION
+
+
 def extrapolate_truncation(stages: list[dict]) -> tuple[float, float]:
     """(E, error) at zero discarded weight from the chi ladder of one state (``TRUNCATION_MODEL``)."""
     weights = [s["truncation_error"] for s in stages]
@@ -209,6 +219,9 @@ def solve_on_grid(problem: Problem, grid: lattice.Grid, final: bool, chis, param
     for chi in chis:
         found = []
         for level in range(n_states):
+            if stages[level] and settled(stages[level][-1]):
+                found.append(previous[level].copy())  # a larger chi gives the same state
+                continue
             psi = previous[level]
             if level == 1 and shifted is None:
                 # put every wanted level below zero, where the projected-out ones sit
@@ -243,21 +256,21 @@ def solve_on_grid(problem: Problem, grid: lattice.Grid, final: bool, chis, param
                     "max_bond": int(max(psi.chi)),
                 }
             )
-            if not converged:
-                warnings.append(
-                    f"DMRG did not converge: level {level}, L = {grid.sites}, chi = {chi}: energy still moved"
-                    f" {change:.2e} in the last of {stats['sweep'][-1]} sweeps (max_sweeps = {params['max_sweeps']})"
-                )
             psi.canonical_form()
             found.append(psi)
             previous[level] = psi.copy()
-        if all(stage[-1]["truncation_error"] <= NO_TRUNCATION and stage[-1]["max_bond"] < chi for stage in stages):
-            break  # nothing was truncated: a larger chi gives the same states
+        if all(settled(stage[-1]) for stage in stages):
+            break
 
     energies, errors = [], []
     for level in range(n_states):
         value, error = extrapolate_truncation(stages[level])
         last = stages[level][-1]
+        if not last["converged"]:
+            warnings.append(
+                f"DMRG did not converge: level {level}, L = {grid.sites}, chi = {last['chi']}: energy still moved"
+                f" {last['last_change']:.2e} in the last of {last['sweeps']} sweeps (max_sweeps = {params['max_sweeps']})"
+            )
         energies.append(value)
         errors.append(error + (0.0 if last["converged"] else last["last_change"]))
 
