@@ -6,8 +6,7 @@ on n_up n_down, open chain) as a matrix-product operator on tenpy's ``SpinHalfFe
 state by two-site DMRG (S. R. White, Phys. Rev. Lett. 69, 2863 (1992)) and excited states by DMRG
 orthogonal to the lower ones. Each state is converged at every bond dimension of a ladder
 chi_1 < chi_2 < ..., restarting from the previous MPS, until it converges without truncation
-(``settled``); the energy is extrapolated linearly in the
-discarded weight of the last sweep (``extrapolation.DiscardedWeightLinear``, common practice) with an
+(``settled``); the energy is extrapolated linearly in the discarded weight of the last sweep (``extrapolation.DiscardedWeightLinear``, common practice) with an
 error bar, which is the lattice energy's solver error in the continuum limit over the spacing ladder
 (``lattice.solve_continuum_ladder``, the shared convergence ladder). The default spacing ladder is
 fitted to ``max_sites`` as ``lattice.fit_to_budget`` describes. Energies in hbar omega_ref.

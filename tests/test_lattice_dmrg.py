@@ -41,17 +41,16 @@ def test_dmrg_equals_lattice_ed_on_the_same_small_lattice():
 
 def test_a_level_converged_without_truncation_stops_its_chi_ladder():
     # 3+1 on 16 sites: chi 64 fills its bonds (64) but discards ~1e-23, so chi 128 is skipped for every
-    # level; the energies still equal lattice-ed's diagonalization of the same lattice Hamiltonian (1e-8).
-    # Level 2 did not converge at chi 16 within max_sweeps but did at 64: no warning is left for it.
-    from trapbench.backends.lattice_ed import solve_on_grid as ed_on_grid
-
+    # level; the energies still equal the exact levels of the same lattice Hamiltonian built term by term in
+    # quspin (an independent code path, 1e-8). Level 2 did not converge at chi 16 within max_sweeps but did
+    # at 64: no warning is left for it.
     problem = Problem.create(3, 1, 2.0, mass_up=2.0, states=3)
     grid, levels = on_grid(problem, 0.45, 3.3, chi=(16, 64, 128))
     ladders = levels.diagnostics["chi_ladder"]
     assert grid.sites == 16 and [[s["chi"] for s in ladder] for ladder in ladders] == [[16, 64]] * 3
     assert all(ladder[-1]["max_bond"] == 64 and ladder[-1]["truncation_error"] < 1e-14 for ladder in ladders)
     assert not ladders[2][0]["converged"] and levels.warnings == []
-    exact = sorted(ed_on_grid(problem, grid, final=False).energies)[:3]
+    exact, _, _ = quspin_levels(problem, grid, 3)
     np.testing.assert_allclose(levels.energies, exact, rtol=0, atol=1e-8)
 
 
