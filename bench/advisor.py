@@ -73,6 +73,9 @@ TABLE_COLUMNS = (
     "ref_source", "ref_effective_uncertainty", "abs_error", "rel_error", "ref_rel_uncertainty", "error_bar",
     "own_rel_error", "accuracy", "error_basis",
 )
+# the columns ``graded_frame`` writes (the rest of a row is the measurement itself)
+GRADE_COLUMNS = ("ref_value", "ref_source", "ref_effective_uncertainty", "abs_error", "rel_error", "ref_rel_uncertainty",
+                 "error_bar", "own_rel_error", "accuracy", "error_basis")
 
 
 def g_regime(g: float) -> str:
@@ -472,6 +475,39 @@ def graded_frame(frame: pd.DataFrame, tolerance=None) -> pd.DataFrame:
     parts = [attach_references(rows, lambda p, b=backend: references(p, b), tolerance)
              for backend, rows in frame.groupby("backend", sort=False)]
     return pd.concat(parts).sort_index() if parts else attach_references(frame, None, tolerance)
+
+
+def regraded_table(table: pd.DataFrame, suites=None) -> pd.DataFrame:
+    """The rows of a method-map table graded again against today's references (``graded_frame``).
+
+    The shipped table keeps each measurement (energy, error bar, cost) with the grade it had when it was built;
+    when the reference dataset grows, the same measurements can be graded again without the stores they came
+    from. Each row's problem is found by name, species and coupling among the points of ``suites`` (default:
+    every built-in suite, since the map is built from stores that also hold other suites' runs); a row that no
+    suite describes raises ``ValueError``.
+    """
+    from .suite import builtin_suites, load_suite
+
+    suites = suites if suites is not None else [load_suite(name) for name in builtin_suites()]
+    points = {}
+    for suite in suites:
+        for named in suite.problems:
+            for point in named.problem.points():
+                up, down = point.species
+                points.setdefault((named.name, up.count, down.count, up.mass, down.mass, float(point.coupling)), point)
+    problems = []
+    for row in table.itertuples(index=False):
+        key = (row.problem_name, int(row.n_up), int(row.n_down), float(row.mass_up), float(row.mass_down), float(row.g))
+        if key not in points:
+            raise ValueError(f"method map row '{row.problem_name}' at g = {row.g}: no built-in suite has this problem;"
+                             " rebuild the map from its stores with `trapbench map --store ...`")
+        problems.append(points[key])
+    measured = [c for c in TABLE_COLUMNS if c not in GRADE_COLUMNS]
+    frame = table.reindex(columns=measured).reset_index(drop=True)
+    frame["error_estimate"] = table["error_bar"].to_numpy()  # the bar as graded (energy_error, else an estimate)
+    frame["problem"] = [p.to_dict() for p in problems]
+    frame["problem_key"] = [p.key for p in problems]
+    return measurement_table(graded_frame(frame))
 
 
 def measurement_table(frame: pd.DataFrame) -> pd.DataFrame:

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import json
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -309,3 +310,33 @@ def test_shipped_advice_run_as_printed_reaches_its_accuracy(tmp_path, capsys, ma
     energy = (solved[0] if isinstance(solved, list) else solved)["energies"][0]
     exact = ThreeBodyBackend().solve(Problem.create(2, 1, g, mass_up=mass_up)).energies[0]
     assert abs(energy - exact) <= 1e-4 * abs(exact)
+
+
+def test_regrading_the_shipped_map_reproduces_its_grades_and_refuses_unknown_rows():
+    """`trapbench map --regrade` grades the shipped measurements again without their stores: on rows of N = 3
+    (graded by the three-body results of the same table) and N = 4 (graded by the reference dataset) it must give
+    the references, errors and bars the file holds, i.e. the shipped map is graded against the shipped dataset.
+    A row whose problem no built-in suite describes cannot be graded and is refused with the fix."""
+    from trapbench.bench.advisor import regraded_table, shipped_table
+
+    table = shipped_table()
+    if table.empty:
+        pytest.skip("this installation ships no method map")
+    part = table[table["problem_name"].isin(["2+1 m=20/3", "3+1 m=1/2", "2+2 m=2"])].drop(columns=["measurement_source"])
+    assert len(part) > 50 and (part["error_basis"] == "reference").sum() > 20
+    regraded = regraded_table(part.reset_index(drop=True))
+    part = part.reset_index(drop=True)
+    assert list(regraded["backend"]) == list(part["backend"]) and list(regraded["energy"]) == list(part["energy"])
+    assert list(regraded["error_basis"].fillna("-")) == list(part["error_basis"].fillna("-"))
+    graded = part["error_basis"] == "reference"
+    np.testing.assert_allclose(regraded["ref_value"][graded].astype(float), part["ref_value"][graded], rtol=1e-12)
+    np.testing.assert_allclose(regraded["accuracy"][graded].astype(float), part["accuracy"][graded], rtol=1e-9)
+    np.testing.assert_allclose(regraded["error_bar"].astype(float).fillna(-1), part["error_bar"].fillna(-1), rtol=0)
+    # oscillator-ed's N = 4 grades come from the other method family (the lattice), never from itself
+    n4 = regraded[(regraded["n_up"] + regraded["n_down"] == 4) & (regraded["error_basis"] == "reference")
+                  & (regraded["backend"] == "oscillator-ed")]
+    assert len(n4) > 0 and n4["ref_source"].str.contains("lattice").all()
+    assert not n4["ref_source"].str.contains("oscillator").any()
+    stranger = part.iloc[[0]].assign(problem_name="a problem of no suite")
+    with pytest.raises(ValueError, match="no built-in suite has this problem.*trapbench map --store"):
+        regraded_table(stranger)

@@ -2,11 +2,13 @@
 
     trapbench sweep map --store map.sqlite --workers 2
     trapbench map --store map.sqlite [--store more.sqlite ...]   # writes problems/data/method_map.json
+    trapbench map --regrade                                       # grade the shipped rows again (dataset grew)
 
 Every successful ground-state result of the stores is graded (``advisor.graded_frame``: exact references,
 the shipped reference dataset, and the dataset's agreement rule applied to the stores' own results, never
 grading a method by its own family) and written as one compact JSON table with its version, the neighbour
-rule and the stores it came from.
+rule and the stores it came from. ``--regrade`` grades the rows of the shipped table again against today's
+references (``advisor.regraded_table``), e.g. after the reference dataset gained points, without the stores.
 """
 
 from __future__ import annotations
@@ -21,8 +23,11 @@ ORDER = 47
 
 
 def register(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--store", required=True, action="append", metavar="PATH",
+    source = parser.add_mutually_exclusive_group(required=True)
+    source.add_argument("--store", action="append", metavar="PATH",
                         help="a results store of the map sweep (repeatable: every store's results are pooled)")
+    source.add_argument("--regrade", action="store_true",
+                        help="grade the shipped table's measurements again against today's references (no store needed)")
     parser.add_argument("--suite", default=None,
                         help="use only the results of this suite (default: every stored result)")
     parser.add_argument("--output", metavar="PATH",
@@ -42,10 +47,18 @@ def run(args: argparse.Namespace) -> int:
     import pandas as pd
 
     from ...problems.errors import SpecError
-    from ..advisor import graded_frame, measurement_table, table_to_json
+    from ..advisor import graded_frame, measurement_table, regraded_table, shipped_table
     from ..store import Store
-    from ..verdicts import REACHED, judge_frame
 
+    if args.regrade:
+        shipped = shipped_table()
+        if shipped.empty:
+            raise SpecError("--regrade", "this installation ships no method map; build one with --store")
+        before = (shipped["error_basis"] == "reference").sum()
+        table = regraded_table(shipped.drop(columns=["measurement_source"]))
+        print(f"regraded {len(table)} rows: {(table['error_basis'] == 'reference').sum()} judged against a reference"
+              f" (were {before})")
+        return _write(table, _built_from(), args)
     frames = []
     for path in args.store:
         if not Path(path).is_file():
@@ -60,16 +73,32 @@ def run(args: argparse.Namespace) -> int:
     if table.empty:
         print("no successful ground-state result in these stores")
         return 1
+    return _write(table, [Path(p).name for p in args.store], args)
+
+
+def _built_from() -> list[str]:
+    from importlib import resources
+
+    from ..advisor import MAP_RESOURCE
+
+    data = json.loads(resources.files("trapbench.problems").joinpath(*MAP_RESOURCE).read_text(encoding="utf-8"))
+    return list(data.get("built_from", []))
+
+
+def _write(table, sources: list[str], args: argparse.Namespace) -> int:
+    from ..advisor import table_to_json
+    from ..verdicts import REACHED, judge_frame
+
     reached = judge_frame(table, 1e-4) == REACHED
     summary = table.assign(reached=reached).groupby("backend").agg(results=("state", "size"),
                                                                   reached_1e_4=("reached", "sum"))
-    print(f"method map: {len(table)} ground-state results from {len(args.store)} store(s)")
+    print(f"method map: {len(table)} ground-state results from {len(sources)} store(s)")
     print(summary.to_string())
     if args.dry_run:
         return 0
     target = Path(args.output) if args.output else default_output()
     target.parent.mkdir(parents=True, exist_ok=True)
-    data = table_to_json(table, [Path(p).name for p in args.store])
+    data = table_to_json(table, sources)
     target.write_text(json.dumps(data, separators=(",", ":"), default=str) + "\n", encoding="utf-8")
     print(f"wrote {target}")
     return 0
