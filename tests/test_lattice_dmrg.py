@@ -21,8 +21,8 @@ pytestmark = pytest.mark.filterwarnings("ignore::UserWarning")
 BACKEND = LatticeDMRGBackend()
 
 
-def on_grid(problem, spacing, half_width, chi=(16, 64), final=False):
-    params = BACKEND.resolve_params({"chi": chi})
+def on_grid(problem, spacing, half_width, chi=(16, 64), final=False, **options):
+    params = BACKEND.resolve_params({"chi": chi, **options})
     grid = lattice.make_grid(problem, spacing, half_width)
     return grid, solve_on_grid(problem, grid, final, params["chi"], params)
 
@@ -40,15 +40,15 @@ def test_dmrg_equals_lattice_ed_on_the_same_small_lattice():
 
 
 def test_a_level_converged_without_truncation_stops_its_chi_ladder():
-    # 3+1 on 16 sites: chi 64 fills its bonds (64) but discards ~1e-23, so chi 128 is skipped for every
+    # 3+1 on 12 sites: chi 32 fills its bonds (32) but discards < 1e-15, so chi 64 is skipped for every
     # level; the energies still equal the exact levels of the same lattice Hamiltonian built term by term in
-    # quspin (an independent code path, 1e-8). Level 2 did not converge at chi 16 within max_sweeps but did
-    # at 64: no warning is left for it.
+    # quspin (an independent code path, 1e-8). Level 2 did not converge at chi 8 within max_sweeps = 6 but did
+    # at 32: no warning is left for it.
     problem = Problem.create(3, 1, 2.0, mass_up=2.0, states=3)
-    grid, levels = on_grid(problem, 0.45, 3.3, chi=(16, 64, 128))
+    grid, levels = on_grid(problem, 0.6, 3.3, chi=(8, 32, 64), max_sweeps=6)
     ladders = levels.diagnostics["chi_ladder"]
-    assert grid.sites == 16 and [[s["chi"] for s in ladder] for ladder in ladders] == [[16, 64]] * 3
-    assert all(ladder[-1]["max_bond"] == 64 and ladder[-1]["truncation_error"] < 1e-14 for ladder in ladders)
+    assert grid.sites == 12 and [[s["chi"] for s in ladder] for ladder in ladders] == [[8, 32]] * 3
+    assert all(ladder[-1]["max_bond"] == 32 and ladder[-1]["truncation_error"] < 1e-14 for ladder in ladders)
     assert not ladders[2][0]["converged"] and levels.warnings == []
     exact, _, _ = quspin_levels(problem, grid, 3)
     np.testing.assert_allclose(levels.energies, exact, rtol=0, atol=1e-8)
