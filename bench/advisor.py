@@ -291,9 +291,10 @@ def _why_not(rows: pd.DataFrame, status: pd.Series, near: pd.Series, query: Quer
     if neighbours.empty and not reached.empty:
         same_counts = reached[(reached["n_up"] + reached["n_down"]) == query.n]
         where = "only at other masses or couplings" if not same_counts.empty else "only at other particle numbers"
+        shown = same_counts if not same_counts.empty else reached  # the closest evidence first
         return (f"reached {query.accuracy:g} {where}, none neighbouring: "
                 + "; ".join(sorted({f"{int(r.n_up)}+{int(r.n_down)} m_up/m_down = {r.mass_up / r.mass_down:.4g}, g = {r.g:g}"
-                                    for r in reached.itertuples()})[:6]))
+                                    for r in shown.itertuples()})[:6]))
     unverified = neighbours[status[neighbours.index] == UNVERIFIED]
     if not unverified.empty:
         from ..problems.dataset import PRECISION_METHODS

@@ -75,13 +75,15 @@ def test_advice_comes_only_from_neighbours_and_prefers_the_problem_itself():
                         (20 / 3, 1.0, -3.0, 4.0 + 4e-3, 5e-3, 3.0, {"cutoff": 16}),
                         (20 / 3, 1.0, -2.0, 4.0 + 4e-6, 5e-6, 2.0, {"cutoff": 24})]),
         runs("cheap-elsewhere", [(1.0, 1.0, -3.0, 4.0 + 4e-7, 1e-6, 0.1, {"order": 10})]),  # mass ratio 1 only
+        runs("cheap-elsewhere", [(20 / 3, 1.0, -3.0, 4.0 + 4e-7, 1e-6, 0.1, {"order": 10})], n_up=1, n_down=1),
     ], ignore_index=True)
     frame = attach_references(frame, exact)
 
     at = advise(frame, Query(2, 1, mass_up=20 / 3, g=-3.0, accuracy=1e-4))
     assert at.best.backend == "ladder" and at.best.evidence == "measured" and at.best.confidence == "high"
     assert at.best.param_values == {"cutoff": 32} and at.best.cpu_s == 30.0
-    assert "only at other masses" in at.rejected["cheap-elsewhere"]
+    # the reason names the runs of the same particle number (the 2+1 at mass ratio 1), not the 1+1 one
+    assert at.rejected["cheap-elsewhere"].endswith("none neighbouring: 2+1 m_up/m_down = 1, g = -3")
 
     # g = -2.5: not measured; g = -3 is at least as strong and the same regime -> that run, medium confidence
     near = advise(frame, Query(2, 1, mass_up=20 / 3, g=-2.5, accuracy=1e-4)).best
