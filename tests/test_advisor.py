@@ -219,6 +219,8 @@ def test_map_command_writes_a_table_that_advise_reads(tmp_path, capsys):
     assert advice.best.backend == "two-body" and advice.best.evidence == "measured"
     assert main(["map", "--store", str(tmp_path / "absent.sqlite")]) == 2
     assert "no store at" in capsys.readouterr().err
+    assert main(["map", "--regrade", "--suite", "map", "--dry-run"]) == 2
+    assert "--suite: selects results of a store; --regrade grades every row" in capsys.readouterr().err
 
 
 def test_tables_grade_each_backend_only_by_references_it_is_not_built_on():

@@ -51,6 +51,9 @@ def run(args: argparse.Namespace) -> int:
     from ..store import Store
 
     if args.regrade:
+        if args.suite:
+            raise SpecError("--suite", "selects results of a store; --regrade grades every row of the shipped table,"
+                                       " drop --suite")
         shipped = shipped_table()
         if shipped.empty:
             raise SpecError("--regrade", "this installation ships no method map; build one with --store")
