@@ -47,21 +47,23 @@ def run(args: argparse.Namespace) -> int:
     import pandas as pd
 
     from ...problems.errors import SpecError
-    from ..advisor import graded_frame, measurement_table, regraded_table, shipped_table
+    from ..advisor import graded_frame, measurement_table, regraded_table, table_from_json
     from ..store import Store
 
     if args.regrade:
         if args.suite:
             raise SpecError("--suite", "selects results of a store; --regrade grades every row of the shipped table,"
                                        " drop --suite")
-        shipped = shipped_table()
-        if shipped.empty:
+        path = default_output()
+        if not path.is_file():
             raise SpecError("--regrade", "this installation ships no method map; build one with --store")
+        data = json.loads(path.read_text(encoding="utf-8"))
+        shipped = table_from_json(data)
         before = (shipped["error_basis"] == "reference").sum()
-        table = regraded_table(shipped.drop(columns=["measurement_source"]))
+        table = regraded_table(shipped)
         print(f"regraded {len(table)} rows: {(table['error_basis'] == 'reference').sum()} judged against a reference"
               f" (were {before})")
-        return _write(table, _built_from(), args)
+        return _write(table, list(data.get("built_from", [])), args)
     frames = []
     for path in args.store:
         if not Path(path).is_file():
@@ -77,15 +79,6 @@ def run(args: argparse.Namespace) -> int:
         print("no successful ground-state result in these stores")
         return 1
     return _write(table, [Path(p).name for p in args.store], args)
-
-
-def _built_from() -> list[str]:
-    from importlib import resources
-
-    from ..advisor import MAP_RESOURCE
-
-    data = json.loads(resources.files("trapbench.problems").joinpath(*MAP_RESOURCE).read_text(encoding="utf-8"))
-    return list(data.get("built_from", []))
 
 
 def _write(table, sources: list[str], args: argparse.Namespace) -> int:
