@@ -185,3 +185,56 @@ def test_the_runs_blas_thread_limit_reaches_the_solve_unless_threads_is_given(mo
     execute(LatticeDMRGBackend(), problem, {}, limits=Limits(blas_threads=2))
     execute(LatticeDMRGBackend(), problem, {"threads": 1}, limits=Limits(blas_threads=2))
     assert seen == [{2}, {1}]
+
+
+def _stuck_level(monkeypatch, level, times):
+    """Make the first ``times`` DMRG runs of ``level`` return their start state unchanged, reported as
+    converged without truncation: the signature of the stuck level in the module docstring."""
+    from trapbench.backends import lattice_dmrg
+
+    real_run, calls = lattice_dmrg._run_level, []
+
+    def run(psi, hamiltonian, offset, chi, found, params, mixer):
+        if len(found) == level and len(calls) < times:
+            calls.append(chi)
+            stuck = psi.copy()
+            energy = float(np.real(hamiltonian.H_MPO.expectation_value(stuck))) + offset
+            stage = {"chi": chi, "energy": energy, "truncation_error": 0.0, "sweeps": 2, "last_change": 0.0,
+                     "converged": True, "max_bond": int(max(stuck.chi))}
+            return stuck, stage
+        return real_run(psi, hamiltonian, offset, chi, found, params, mixer)
+
+    monkeypatch.setattr(lattice_dmrg, "_run_level", run)
+    return calls
+
+
+def test_a_level_that_is_not_an_eigenstate_is_run_again_and_the_rerun_kept(monkeypatch):
+    # Level 1 first "converges" in its product start state (energy spread > 1 hbar omega). The energy
+    # spread check sends it to a rerun from a scrambled start with the mixer (the rerun still truncates at
+    # chi 16, so the ladder goes on to 64); the levels then equal the
+    # exact levels of the same lattice Hamiltonian built term by term in quspin (1e-8).
+    from trapbench.backends.lattice_dmrg import SPREAD_LIMIT
+
+    problem = Problem.create(2, 1, 2.0, states=2)
+    calls = _stuck_level(monkeypatch, level=1, times=1)
+    grid, levels = on_grid(problem, 0.6, 3.3, chi=(16, 64))
+    assert calls == [16]
+    rerun, last = levels.diagnostics["chi_ladder"][1]
+    assert rerun["chi"] == 16 and rerun["retry"]["replaced"]["spread"] > SPREAD_LIMIT and rerun["spread"] < 1e-3
+    assert last["chi"] == 64 and last["spread"] < 1e-3
+    exact, _, _ = quspin_levels(problem, grid, 2)
+    np.testing.assert_allclose(levels.energies, exact, rtol=0, atol=1e-8)
+    assert levels.warnings == []
+
+
+def test_a_level_that_stays_off_an_eigenstate_is_reported_and_its_spread_added_to_its_error(monkeypatch):
+    # Weinstein's bound (D. H. Weinstein, Proc. Natl. Acad. Sci. USA 20, 529 (1934), from memory): an
+    # eigenvalue lies within the spread of <H>; the level keeps its error at least that wide and says why.
+    problem = Problem.create(2, 1, 2.0, states=2)
+    _stuck_level(monkeypatch, level=1, times=10)
+    _, levels = on_grid(problem, 0.6, 3.3, chi=(16, 64))
+    last = levels.diagnostics["chi_ladder"][1][-1]
+    assert "discarded" in last["retry"] and last["spread"] > 1.0
+    assert levels.solver_errors[1] >= last["spread"]
+    assert any("not an eigenstate" in w for w in levels.warnings)
+    assert levels.solver_errors[0] < 1e-7
