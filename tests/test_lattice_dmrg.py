@@ -238,3 +238,30 @@ def test_a_level_that_stays_off_an_eigenstate_is_reported_and_its_spread_added_t
     assert levels.solver_errors[1] >= last["spread"]
     assert any("not an eigenstate" in w for w in levels.warnings)
     assert levels.solver_errors[0] < 1e-7
+
+
+def test_a_level_stopped_by_max_sweeps_keeps_the_sweeps_not_done_in_its_error():
+    # 3+1 at mass ratio 2, g = 20 (a near-degenerate pair of levels, where DMRG creeps down sweep by sweep),
+    # 13 sites, cut at 4 sweeps per bond dimension (chi 128 holds the state without truncation). Its lattice
+    # level, exact from quspin's Hamiltonian built term by term, is 9.2e-5 lower; the energy still moved 7.9e-6
+    # in the last sweep, so the last change alone under-covers; the geometric tail of the sweep energies
+    # (common practice, no source; here 1.9e-4) covers it.
+    from trapbench.backends.lattice_dmrg import sweep_tail
+
+    problem = Problem.create(3, 1, 20.0, mass_up=2.0)
+    grid, cut = on_grid(problem, 0.5, 3.0, chi=(16, 128), max_sweeps=4, tolerance=1e-12)
+    last = cut.diagnostics["chi_ladder"][0][-1]
+    assert not last["converged"] and last["truncation_error"] < 1e-14
+    exact, _, _ = quspin_levels(problem, grid, 1)
+    left = abs(cut.energies[0] - exact[0])
+    assert last["last_change"] < left <= sweep_tail(last) <= cut.solver_errors[0]
+    assert any("added to its error" in w for w in cut.warnings)
+
+
+def test_the_sweep_tail_follows_the_geometric_series_of_the_last_two_changes():
+    from trapbench.backends.lattice_dmrg import sweep_tail
+
+    assert sweep_tail({"last_change": 1e-6, "previous_change": 4e-6}) == 1e-6  # halving: the last change bounds it
+    assert math.isclose(sweep_tail({"last_change": 9e-7, "previous_change": 1e-6}), 2 * 9e-7 / 0.1)
+    assert math.isclose(sweep_tail({"last_change": 2e-6, "previous_change": 1e-6}), 2e-5)  # not shrinking: ten times
+    assert math.isclose(sweep_tail({"last_change": 3e-6, "previous_change": None}), 3e-5)
