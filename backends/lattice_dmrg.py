@@ -19,6 +19,10 @@ measured (``energy_spread``, stored as ``spread`` in ``diagnostics['per_rung']``
 the level is run again from a scrambled start with the mixer and the run with the smaller spread kept.
 A level still above the limit is reported and its spread (Weinstein's bound) added to its error.
 
+A level whose run stops at ``max_sweeps`` before its energy converges carries the geometric tail of its
+sweep energies in its error (``sweep_tail``), not just the last change, which under-covers where DMRG
+creeps down slowly (a near-degenerate pair at strong coupling).
+
 Not computed (not in its declared capabilities, so refused before computing): momentum-pair correlations and noise maps (they need
 four-point functions at all site quadruples), and parity sectors (the MPS carries no reflection
 quantum number).
@@ -58,7 +62,8 @@ DEFAULT_MAX_SITES = 300
 # A level's energy spread sqrt(<H^2> - <H>^2) above this (hbar omega_ref, one trap quantum / 2) means
 # the MPS is not one eigenstate. Measured: converged levels have spreads of 2e-7 to 2e-4 (2+1 on 55
 # sites, 3+1 on 68); 6+6 on 47 sites at chi 64 (discarded weight 2e-5) 0.15; the product start states
-# 20-32; the stuck level of the module docstring (49.24 on 68 sites) sat near its start state (90.3).
+# 20-32. The stuck level of the module docstring (49.24 on 68 sites) lay between its start state (90.3)
+# and the true level (1.96); its spread was not measured.
 SPREAD_LIMIT = 0.5
 # Seed of the scrambled start of a rerun (offset by the level), so that reruns are reproducible.
 RETRY_SEED = 20_001
