@@ -211,8 +211,8 @@ def _stuck_level(monkeypatch, level, times):
 def test_a_level_that_is_not_an_eigenstate_is_run_again_and_the_rerun_kept(monkeypatch):
     # Level 1 first "converges" in its product start state (energy spread > 1 hbar omega). The energy
     # spread check sends it to a rerun from a scrambled start with the mixer (the rerun still truncates at
-    # chi 16, so the ladder goes on to 64); the levels then equal the
-    # exact levels of the same lattice Hamiltonian built term by term in quspin (1e-8).
+    # chi 16, so the ladder goes on to 64); the levels then equal the exact levels of the same lattice
+    # Hamiltonian built term by term in quspin (1e-8).
     from trapbench.backends.lattice_dmrg import SPREAD_LIMIT
 
     problem = Problem.create(2, 1, 2.0, states=2)
