@@ -454,7 +454,7 @@ def graded_frame(frame: pd.DataFrame, tolerance=None) -> pd.DataFrame:
     from ..problems import dataset
     from ..problems.references import Reference, is_calibrated_on, references_for
 
-    best = dataset.best_values(frame[frame["status"] == "ok"].to_dict("records"))
+    best = dataset.level_runs(frame[frame["status"] == "ok"].to_dict("records"))
 
     def references(problem, backend):
         refs = references_for(problem, for_backend=backend)

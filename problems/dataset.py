@@ -23,9 +23,14 @@ sqrt(hbar^3 omega / m0).
   The value is that of the method with the smaller error bar, the uncertainty the larger of the two bars.
   Where they disagree, the level is listed as "open" with every value and is not offered as a reference.
 
-Each method's value is its best result in the store: among the successful tasks of the backend's newest
-version in the store (a newer version supersedes: a fix may widen a bar that was too narrow), the one with the
-smallest error bar for that level; ``merge`` applies the same preference level by level. A reference never
+Each method's value is its best result in the store (``choose_run``): among the successful tasks of the
+backend's newest version in the store (a newer version supersedes: a fix may widen a bar that was too narrow),
+the one with the smallest error bar for that level that is consistent with every other run of that backend and
+version, |E_i - E_j| <= s_i + s_j. A narrow bar contradicted by the same method at other parameters (say a
+larger cutoff) is not trusted as it stands: when no run is consistent with all the others, the narrowest is
+taken with its bar widened until it is (``MethodValue.own_error`` keeps the bar the backend reported).
+``merge`` applies the same choice level by level: the file keeps every run behind a level (the ones not used
+in ``other_runs``), so a later sweep is judged together with the earlier ones. A reference never
 grades a method that produced it: ``DatasetLevel.reference_for(backend)`` gives a backend the value of the
 other family alone (its own error bar as the uncertainty), and nothing when no other family contributed.
 """
@@ -35,7 +40,7 @@ from __future__ import annotations
 import datetime as _dt
 import json
 import math
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import asdict, dataclass, field, replace
 from functools import lru_cache
 from importlib import resources
@@ -109,7 +114,11 @@ def problem_key(problem: Problem) -> str | None:
 
 @dataclass(frozen=True)
 class MethodValue:
-    """One method's best value for a level: backend, version, parameters, energy and its own error bar."""
+    """One method's value for a level: backend, version, parameters, energy and its error bar.
+
+    ``error`` is the bar the dataset uses; ``own_error`` is set only where that bar was widened to cover the
+    backend's other runs of the level (``choose_run``), and holds the bar the backend reported.
+    """
 
     backend: str
     version: str
@@ -117,6 +126,7 @@ class MethodValue:
     value: float
     error: float
     cpu_time_s: float | None = None
+    own_error: float | None = None
 
 
 @dataclass(frozen=True)
@@ -129,6 +139,7 @@ class DatasetLevel:
     uncertainty: float | None
     methods: tuple[MethodValue, ...]
     note: str = ""
+    other_runs: tuple[MethodValue, ...] = ()  # every run behind the level not in ``methods``, for later merges
 
     @property
     def published(self) -> bool:
@@ -192,7 +203,8 @@ class Dataset:
         for e in data.get("entries", []):
             levels = tuple(
                 DatasetLevel(level["state"], level["status"], level["value"], level["uncertainty"],
-                             tuple(MethodValue(**m) for m in level["methods"]), level.get("note", ""))
+                             tuple(MethodValue(**m) for m in level["methods"]), level.get("note", ""),
+                             tuple(MethodValue(**m) for m in level.get("other_runs", ())))
                 for level in e["levels"]
             )
             entries.append(DatasetEntry(e["n_up"], e["n_down"], e["mass_up"], e["mass_down"], e["g"], levels))
@@ -202,8 +214,9 @@ class Dataset:
 RULE_TEXT = (
     "N = 3: the three-body backend alone (its error bar is the uncertainty). N >= 4: two methods of different"
     " families (oscillator basis; lattice) agreeing within the sum of their error bars; value of the more precise,"
-    " uncertainty the larger bar; otherwise 'open'. Each method's value: its successful result with the smallest"
-    " error bar for that level among those of the backend's newest version."
+    " uncertainty the larger bar; otherwise 'open'. Each method's value: among the successful results of the"
+    " backend's newest version, the one with the smallest error bar that agrees with each other result of that"
+    " backend within their summed bars; when none does, the smallest bar widened until it does."
 )
 UNITS = {"energy": "hbar*omega", "mass": "m0 (the lighter species)", "g": "sqrt(hbar^3 omega/m0)"}
 
@@ -225,15 +238,15 @@ def dataset_path() -> Path:
 # ----------------------------------------------------------------------------- build
 
 
-def best_values(rows: Iterable[Mapping[str, Any]]) -> dict[str, dict[int, dict[str, MethodValue]]]:
-    """physics key -> state -> backend -> the backend's result with the smallest error bar for that level.
+def level_runs(rows: Iterable[Mapping[str, Any]]) -> dict[str, dict[int, dict[str, list[MethodValue]]]]:
+    """physics key -> state -> backend -> the backend's runs of that level (``judge_level`` chooses among them).
 
     ``rows`` are the store's tidy result rows (``Store.results_frame``): backend, backend_version, params,
     n_up, n_down, mass_up, mass_down, g, state, energy, energy_error, status, cpu_time_s, and the task's
     ``problem`` (its targets' parity sector). Rows without an error bar, of a parity sector (their levels are not
     the lowest of the full spectrum), or of a failed task are ignored.
     """
-    best: dict[str, dict[int, dict[str, MethodValue]]] = {}
+    runs: dict[str, dict[int, dict[str, list[MethodValue]]]] = {}
     for row in rows:
         if row.get("status", "ok") != "ok" or row.get("energy") is None or row.get("energy_error") is None:
             continue
@@ -244,25 +257,36 @@ def best_values(rows: Iterable[Mapping[str, Any]]) -> dict[str, dict[int, dict[s
         if not (math.isfinite(energy) and math.isfinite(error)):
             continue
         key = physics_key(int(row["n_up"]), int(row["n_down"]), float(row["mass_up"]), float(row["mass_down"]), float(row["g"]))
-        slot = best.setdefault(key, {}).setdefault(int(row["state"]), {})
-        candidate = MethodValue(row["backend"], str(row.get("backend_version", "")), dict(row.get("params") or {}),
-                                energy, error, row.get("cpu_time_s"))
-        current = slot.get(row["backend"])
-        if current is None or _preferred(candidate, current):
-            slot[row["backend"]] = candidate
-    return best
+        slot = runs.setdefault(key, {}).setdefault(int(row["state"]), {})
+        slot.setdefault(row["backend"], []).append(
+            MethodValue(row["backend"], str(row.get("backend_version", "")), dict(row.get("params") or {}),
+                        energy, error, row.get("cpu_time_s")))
+    return runs
 
 
 def _version_rank(version: str) -> tuple:
     return (1, int(version)) if version.isdigit() else (0, version)
 
 
-def _preferred(candidate: MethodValue, current: MethodValue) -> bool:
-    """A backend's newer version supersedes its older results (a fix may widen a bar that was too narrow); within
-    one version the smaller error bar wins."""
-    if candidate.version != current.version:
-        return _version_rank(candidate.version) > _version_rank(current.version)
-    return candidate.error < current.error
+def choose_run(runs: Sequence[MethodValue]) -> MethodValue:
+    """One backend's value for a level from its runs (module docstring): the newest version's runs only; among
+    them the narrowest bar consistent with each other run, |E_i - E_j| <= s_i + s_j; when none is, the narrowest
+    with its bar widened by the largest shortfall, max_j (|E_i - E_j| - s_i - s_j), and ``own_error`` set.
+    Later runs win a tie (``merge`` lists the update's last)."""
+    newest = max(_version_rank(run.version) for run in runs)
+    current = [run for run in runs if _version_rank(run.version) == newest]
+    ranked = sorted(reversed(current), key=lambda run: run.error)  # stable: the later of equal bars first
+
+    def shortfall(run: MethodValue) -> float:
+        return max((abs(run.value - other.value) - run.error - other.error for other in current if other is not run),
+                   default=0.0)
+
+    for run in ranked:
+        if shortfall(run) <= 0.0:
+            return run
+    narrowest = ranked[0]
+    return replace(narrowest, error=narrowest.error + shortfall(narrowest),
+                   own_error=narrowest.error if narrowest.own_error is None else narrowest.own_error)
 
 
 def _two_best_families(methods: Iterable[MethodValue]) -> list[MethodValue]:
@@ -273,27 +297,44 @@ def _two_best_families(methods: Iterable[MethodValue]) -> list[MethodValue]:
     return list(by_family.values())[:2]
 
 
-def judge_level(state: int, n_particles: int, candidates: Mapping[str, MethodValue]) -> DatasetLevel:
-    """Apply the agreement rule (module docstring) to the methods' best values for one level."""
-    methods = tuple(sorted(candidates.values(), key=lambda m: m.error))
+def _run_key(run: MethodValue) -> tuple:
+    """What identifies a run whatever bar the dataset gave it."""
+    reported = run.error if run.own_error is None else run.own_error
+    return run.backend, run.version, json.dumps(run.params, sort_keys=True), run.value, reported, run.cpu_time_s
+
+
+def _as_reported(run: MethodValue) -> MethodValue:
+    return run if run.own_error is None else replace(run, error=run.own_error, own_error=None)
+
+
+def judge_level(state: int, n_particles: int, runs: Mapping[str, Sequence[MethodValue]]) -> DatasetLevel:
+    """Apply the agreement rule (module docstring) to one level: each backend's value chosen from its runs
+    (``choose_run``), then judged; the runs not used are kept in ``other_runs``."""
+    chosen = [choose_run(found) for found in runs.values()]
+    methods = tuple(sorted(chosen, key=lambda m: m.error))
     precise = [m for m in methods if m.backend in PRECISION_METHODS.get(n_particles, ())]
-    if precise:
-        m = precise[0]
-        return DatasetLevel(state, "precision", m.value, m.error, (m,), "precision method for this particle number")
     best = _two_best_families(methods)
-    if len(best) < 2:
-        return DatasetLevel(state, "open", None, None, methods, "fewer than two independent methods")
-    a, b = best
-    if abs(a.value - b.value) > a.error + b.error:
-        return DatasetLevel(state, "open", None, None, methods,
-                            f"{a.backend} and {b.backend} differ by {abs(a.value - b.value):.3g} > {a.error + b.error:.3g}")
-    return DatasetLevel(state, "agreed", a.value, max(a.error, b.error), (a, b),
-                        f"{a.backend} and {b.backend} agree within {a.error + b.error:.3g}")
+    if precise:
+        level = DatasetLevel(state, "precision", precise[0].value, precise[0].error, (precise[0],),
+                             "precision method for this particle number")
+    elif len(best) < 2:
+        level = DatasetLevel(state, "open", None, None, methods, "fewer than two independent methods")
+    elif abs(best[0].value - best[1].value) > best[0].error + best[1].error:
+        a, b = best
+        level = DatasetLevel(state, "open", None, None, methods,
+                             f"{a.backend} and {b.backend} differ by {abs(a.value - b.value):.3g} > {a.error + b.error:.3g}")
+    else:
+        a, b = best
+        level = DatasetLevel(state, "agreed", a.value, max(a.error, b.error), (a, b),
+                             f"{a.backend} and {b.backend} agree within {a.error + b.error:.3g}")
+    used = {_run_key(m) for m in level.methods}
+    others = tuple(run for found in runs.values() for run in found if _run_key(run) not in used)
+    return replace(level, other_runs=others)
 
 
 def build(rows: Iterable[Mapping[str, Any]], version: str = DATASET_VERSION) -> Dataset:
     """The dataset from the store's rows: every grid point with at least one measured level."""
-    best = best_values(rows)
+    best = level_runs(rows)
     entries = []
     for problem in dataset_problems():
         for point in problem.points():
@@ -311,8 +352,8 @@ def build(rows: Iterable[Mapping[str, Any]], version: str = DATASET_VERSION) -> 
 def merge(existing: Dataset, update: Dataset) -> Dataset:
     """``update``'s entries pooled with ``existing``'s, level by level, as if both had been built from one store.
 
-    For a grid point in both, each level's methods are pooled (per backend the newer version's value, within a
-    version the one with the smaller error bar, ``update``'s on a tie) and judged again by the agreement rule
+    For a grid point in both, each level's methods are pooled (per backend ``choose_run`` over the file's run and
+    the update's, ``update``'s on a tie) and judged again by the agreement rule
     (``judge_level``); a level only one side has is kept as it is. A sweep of part of the grid, or of fewer levels, thus adds to the shipped file instead of erasing
     what it does not measure. The result carries ``update``'s version and creation time.
     """
@@ -332,12 +373,13 @@ def _merge_entry(old: DatasetEntry, new: DatasetEntry) -> DatasetEntry:
         if previous is None:
             levels[level.state] = level
             continue
-        pooled: dict[str, MethodValue] = {}
-        for method in (*previous.methods, *level.methods):  # the update's last: it wins a tie
-            current = pooled.get(method.backend)
-            if current is None or not _preferred(current, method):
-                pooled[method.backend] = method
-        levels[level.state] = judge_level(level.state, new.n_up + new.n_down, pooled)
+        pooled: dict[str, dict[tuple, MethodValue]] = {}
+        for run in (*previous.methods, *previous.other_runs, *level.methods, *level.other_runs):
+            run = _as_reported(run)  # the update's last: it wins a tie; a run held by both counts once
+            pooled.setdefault(run.backend, {}).pop(_run_key(run), None)
+            pooled[run.backend][_run_key(run)] = run
+        levels[level.state] = judge_level(level.state, new.n_up + new.n_down,
+                                          {backend: list(found.values()) for backend, found in pooled.items()})
     return replace(new, levels=tuple(levels[state] for state in sorted(levels)))
 
 

@@ -66,11 +66,47 @@ def test_results_of_one_parity_sector_are_not_taken_for_the_full_spectrum():
     assert not alone.entries
 
 
-def test_each_method_keeps_its_most_precise_result():
-    built = dataset.build([row("oscillator-ed", 10.3, 1e-1), row("oscillator-ed", 10.0002, 3e-4),
+def test_each_method_keeps_its_most_precise_result_that_its_other_runs_confirm():
+    built = dataset.build([row("oscillator-ed", 10.01, 5e-2), row("oscillator-ed", 10.0002, 3e-4),
                            row("lattice-dmrg", 10.0, 1e-4)])
     level = built.entries[0].levels[0]
     assert level.status == "agreed" and {m.value for m in level.methods} == {10.0002, 10.0}
+    assert level.uncertainty == 3e-4 and all(m.own_error is None for m in level.methods)
+
+
+def test_a_narrow_bar_contradicted_by_the_same_method_is_passed_over():
+    # the project's own 3+3 scenario (mass ratio 2, g = 2): oscillator-ed at three cutoffs; the narrowest bar
+    # (first run) is excluded by the third run, the second is consistent with both
+    runs = [row("oscillator-ed", 12.1046, 0.0137, n=(3, 3)), row("oscillator-ed", 12.0974, 0.016, n=(3, 3)),
+            row("oscillator-ed", 12.031, 0.058, n=(3, 3)), row("lattice-dmrg", 12.0862, 0.001, n=(3, 3))]
+    level = dataset.build(runs).entries[0].levels[0]
+    chosen = {m.backend: m for m in level.methods}["oscillator-ed"]
+    assert (chosen.value, chosen.error, chosen.own_error) == (12.0974, 0.016, None)
+    assert level.status == "agreed" and level.uncertainty == 0.016
+    # without the third run the narrowest bar stands, and the level stays open (1.3 combined bars apart)
+    assert dataset.build(runs[:2] + runs[3:]).entries[0].levels[0].status == "open"
+    # a merge sees the same: the file's run against the update's
+    shipped = dataset.build(runs[:1] + runs[3:])
+    (merged,) = dataset.merge(shipped, dataset.build(runs[1:3])).entries
+    assert merged.levels[0].status == "agreed" and merged.levels[0].uncertainty == 0.016
+    # the runs not used travel with the file, so the next merge still sees them
+    assert sorted(run.value for run in merged.levels[0].other_runs) == [12.031, 12.1046]
+    reread = dataset.Dataset.from_json_dict(json.loads(json.dumps(shipped.to_json_dict())))
+    assert reread.entries == shipped.entries
+
+
+def test_when_no_run_of_a_method_is_consistent_the_narrowest_bar_is_widened():
+    built = dataset.build([row("oscillator-ed", 10.3, 1e-1), row("oscillator-ed", 10.0002, 3e-4),
+                           row("lattice-dmrg", 10.0, 1e-4)])
+    level = built.entries[0].levels[0]
+    chosen = {m.backend: m for m in level.methods}["oscillator-ed"]
+    # widened by the shortfall |10.3 - 10.0002| - 0.1 - 3e-4 until it covers the other run
+    assert chosen.value == 10.0002 and chosen.own_error == 3e-4
+    assert chosen.error == pytest.approx(abs(10.3 - 10.0002) - 0.1)
+    assert level.status == "agreed" and level.uncertainty == pytest.approx(chosen.error)
+    # merging the same runs again changes nothing: a run held by both sides counts once, at its reported bar
+    (again,) = dataset.merge(built, built).entries
+    assert again.levels == built.entries[0].levels
 
 
 def test_a_reference_never_grades_the_method_that_produced_it(monkeypatch):
