@@ -263,14 +263,17 @@ class DriftingPowerLaw:
 
     Fitted by ``extrapolate_power_law`` (its error bar shifts p by 25%). Where p still drifts along
     the reachable cutoffs (2+2, g = 2 in a renormalized oscillator basis: p = 0.66 at c = 8-16, 1.76
-    at 24-32, 1.67 at 36-44), the error bar is also at least twice the change of E_inf from the
-    previous three cutoffs, and it is the whole correction |E_last - E_inf| when p moved by more than
+    at 24-32, 1.67 at 36-44), the error bar is also at least ``change_factor`` times the change of E_inf
+    from the previous three cutoffs, and it is the whole correction |E_last - E_inf| when p moved by more than
     25% or fewer than four cutoffs were given. Values that turn around along the ladder (not
     monotonic, e.g. a non-variational renormalized energy) follow no power law: the last value is
     returned with the total variation along the ladder as its error bar, and a ``warning``.
+    ``change_factor`` is 2 by default; a backend that measured its ladders against references may set
+    its own.
     """
 
     minimum_points: int = 3
+    change_factor: float = 2.0
 
     def __call__(self, steps: Sequence[float], values: Sequence[float]) -> Extrapolation:
         cutoffs = np.asarray(steps, dtype=float)
@@ -295,7 +298,7 @@ class DriftingPowerLaw:
         if len(cutoffs) >= 4:
             previous = extrapolate_power_law(cutoffs[-4:-1], energies[-4:-1])
             power, earlier = fit.parameters["power"], previous.parameters["power"]
-            error = max(fit.error, 2 * abs(fit.value - previous.value))
+            error = max(fit.error, self.change_factor * abs(fit.value - previous.value))
             if abs(power - earlier) > 0.25 * power:
                 error = max(error, correction)
         return replace(fit, error=float(error), steps=tuple(cutoffs.tolist()), values=tuple(energies.tolist()))

@@ -112,7 +112,7 @@ def test_bare_convergence_power_is_one_half():
     assert fit.parameters["power"] == pytest.approx(0.5, abs=0.1)
 
 
-@pytest.mark.parametrize("counts,mass_down", [((2, 2), 1.0), ((3, 2), 20 / 3), ((3, 1), 1.0)])
+@pytest.mark.parametrize("counts,mass_down", [((2, 2), 1.0), ((3, 2), 20 / 3), ((3, 1), 1.0), ((6, 6), 1.0)])
 def test_noninteracting_energy_is_exact(counts, mass_down):
     """g = 0: E = sum_s (N_s^2 / 2) omega (closed form), for any N and masses."""
     problem = Problem.create(*counts, 0.0, mass_down=mass_down, states=2)
@@ -152,6 +152,16 @@ def test_first_order_slope_matches_perturbative_backend_unequal_masses():
     e_plus = ED.solve(Problem.create(2, 1, h, mass_down=20 / 3), cutoff=12, ladder=1, renormalized=False)
     e_minus = ED.solve(Problem.create(2, 1, -h, mass_down=20 / 3), cutoff=12, ladder=1, renormalized=False)
     assert (e_plus.energies[0] - e_minus.energies[0]) / (2 * h) == pytest.approx(slope, rel=1e-6)
+
+
+def test_twelve_particles_first_order_slope_and_the_particle_cap():
+    """6+6, the largest system the backend takes: <sum delta> at g = 0 equals the perturbative backend's
+    first-order coefficient (Gaussian integrals of the oscillator orbitals, textbook); 13 particles are refused."""
+    problem = Problem.create(6, 6, 0.0)
+    slope = get("perturbative").solve(problem).states[0]["first_order_coefficient"]
+    assert ED.solve(problem, cutoff=4, ladder=1).scalars["delta"] == pytest.approx(slope, rel=1e-10)
+    with pytest.raises(Unsupported, match="13 particles exceed the 12"):
+        ED.solve(Problem.create(7, 6, 1.0))
 
 
 @pytest.mark.parametrize("g", [-2.0, 3.0])

@@ -1,0 +1,95 @@
+"""Benchmark of ``oscillator-ed``'s error-bar rule on stored ladders: coverage and calibration per particle number.
+
+Run by hand (not part of the test suite):
+
+    python bench/benchmarks/bench_oscillator_bars.py --store S1.sqlite [--store S2.sqlite ...] [--factor 1 --factor 2]
+
+Every successful oscillator-ed task in the stores (running coupling, four or more cutoffs) on a grid point of
+the shipped reference dataset is graded level by level against another method's value for that level: for
+N = 3 the ``three-body`` value, for N >= 4 the lattice family's (lattice-dmrg or lattice-ed, chosen among
+their runs as the dataset does), whether the level is agreed or open -- a disagreement must count against the
+bar. A level is graded only where that reference's uncertainty is at most a tenth of the bar. The stored
+ladder (``diagnostics.energy_fits``: cutoffs and raw energies) is extrapolated again with
+``GuardedPowerLaw(change_factor=f)`` for each factor asked, so one set of solves measures every variant.
+Reported per N: levels graded, within 2 bars, the median and the smallest of bar / |E - reference|.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sqlite3
+import statistics
+from collections import defaultdict
+
+import numpy as np
+
+from trapbench.backends.oscillator_ed import GuardedPowerLaw
+from trapbench.problems import dataset
+
+LATTICE = ("lattice-dmrg", "lattice-ed")
+
+
+def reference(level: dataset.DatasetLevel, n_particles: int) -> tuple[float, float] | None:
+    """(value, uncertainty) of another method family for this level, or None."""
+    runs = [m for m in (*level.methods, *level.other_runs)]
+    wanted = ("three-body",) if n_particles == 3 else LATTICE
+    by_backend: dict[str, list] = defaultdict(list)
+    for run in runs:
+        if run.backend in wanted:
+            by_backend[run.backend].append(run)
+    if not by_backend:
+        return None
+    chosen = min((dataset.choose_run(found) for found in by_backend.values()), key=lambda m: m.error)
+    return chosen.value, chosen.error
+
+
+def ladders(stores: list[str]):
+    """(N, grid key, level, cutoffs, raw energies) of every stored oscillator-ed renormalized ladder."""
+    for store in stores:
+        connection = sqlite3.connect(f"file:{store}?mode=ro", uri=True)
+        for (text,) in connection.execute("select result from tasks where backend = 'oscillator-ed' and status = 'ok'"):
+            result = json.loads(text)
+            diagnostics = result.get("diagnostics") or {}
+            if diagnostics.get("interaction") != "renormalized":
+                continue
+            problem = result["problem"]
+            up, down = problem["up"], problem["down"]
+            key = dataset.physics_key(up["count"], down["count"], up["mass"], down["mass"], result["g"])
+            for level, fit in enumerate(diagnostics.get("energy_fits") or []):
+                if len(fit["steps"]) >= 4:
+                    yield up["count"] + down["count"], key, level, np.array(fit["steps"]), np.array(fit["values"])
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--store", action="append", required=True)
+    parser.add_argument("--factor", action="append", type=float, default=None)
+    args = parser.parse_args()
+    shipped = dataset.load()
+    found = list(ladders(args.store))
+    print(f"ladders: {len(found)} levels from {len(args.store)} store(s); dataset version {shipped.version}\n")
+    print("| change_factor | N | graded | within 2 bars | coverage | median bar/err | smallest bar/err |")
+    print("|---|---|---|---|---|---|---|")
+    for factor in args.factor or [1.0, 2.0]:
+        model = GuardedPowerLaw(change_factor=factor)
+        graded = defaultdict(list)
+        for n, key, level, cutoffs, energies in found:
+            entry = shipped.index.get(key)
+            if entry is None or level >= len(entry.levels):
+                continue
+            ref = reference(entry.levels[level], n)
+            if ref is None:
+                continue
+            fit = model(cutoffs, energies)
+            if ref[1] > 0.1 * fit.error:
+                continue
+            graded[n].append(fit.error / max(abs(fit.value - ref[0]), 1e-15))
+        for n, ratios in sorted(graded.items()):
+            within = sum(r >= 0.5 for r in ratios)
+            print(f"| {factor:g} | {n} | {len(ratios)} | {within} | {100 * within / len(ratios):.0f} % |"
+                  f" {statistics.median(ratios):.1f} | {min(ratios):.2f} |")
+
+
+if __name__ == "__main__":
+    main()
