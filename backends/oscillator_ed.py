@@ -658,7 +658,7 @@ class OscillatorEDBackend(Backend):
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
     )
-    # 6+6 (g = 2, one core): cutoff 16 in 23 CPU s, 20 in 146 s, 24 in ~20 min (the ladder of four cutoffs);
+    # 6+6 (g = 2, one core): cutoff 16 in 23 CPU s, 20 in 146-164 s, 24 in 736 s and 872 MiB (ladders of four cutoffs);
     # beyond 12 particles the determinant basis grows too fast at a useful cutoff: a lattice method is the tool
     capabilities = Capabilities(
         max_particles=12,
