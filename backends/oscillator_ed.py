@@ -474,6 +474,12 @@ def com_quanta(problem: Problem, level: Level) -> float | None:
     return float(np.sum(lowered**2))
 
 
+def com_label(problem: Problem, level: Level) -> int | None:
+    """The centre-of-mass quantum k of a level when <N_com> is within ``COM_TOLERANCE`` of an integer, else None."""
+    n_com = com_quanta(problem, level)
+    return int(round(n_com)) if n_com is not None and abs(n_com - round(n_com)) < COM_TOLERANCE else None
+
+
 def com_separates_exactly(problem: Problem, kind: str, interaction: str, lengths) -> bool:
     """Whether N_com commutes with the truncated Hamiltonian, so centre-of-mass labels are exact.
 
@@ -488,7 +494,7 @@ def com_separates_exactly(problem: Problem, kind: str, interaction: str, lengths
             and tuple(lengths) == tuple(trap_lengths(problem)))
 
 
-def com_copies(energies, errors, states) -> tuple[list[float], list[float], list[dict]]:
+def com_copies(energies, errors, states, steady=None) -> tuple[list[float], list[float], list[dict]]:
     """Reported levels that are centre-of-mass excitations of a reported intrinsic level, from that level.
 
     A state with <N_com> = k >= 1 is the intrinsic state of energy E - k with k centre-of-mass quanta (exact
@@ -496,13 +502,18 @@ def com_copies(energies, errors, states) -> tuple[list[float], list[float], list
     has the quanta up to c - k, so its ladder converges more slowly than its parent's (the com = 0 level of
     parity (-1)^k times its own whose limit lies within the two bars of E - k; the nearest if several). Where
     the parent's bar is the smaller, the copy is given E_parent + k and the parent's bar, unless that would
-    change the order of the reported levels. Returns the energies, the bars and one record per replacement.
+    change the order of the reported levels, and only where ``steady[i]``: the ladder followed a level with
+    the same k on every cutoff (levels are followed by their rank in a parity sector). The last reported level
+    is never moved up: a level the ladder did not report may lie below the new value (3+1, g = 40, cutoffs
+    10-14: the ground state's copy extrapolated to 7.99 +- 0.94 and was reported fourth; moved to its parent's
+    8.837 it would have hidden the fourth spin-chain level near 8.0). Returns the energies, the bars and one
+    record per replacement.
     """
     energies, errors = list(energies), list(errors)
     records = []
     for i, state in enumerate(states):
         k = state.get("com")
-        if not k:
+        if not k or (steady is not None and not steady[i]):
             continue
         parents = [j for j, parent in enumerate(states) if parent.get("com") == 0
                    and parent.get("parity") == state.get("parity") * (-1) ** k
@@ -512,7 +523,7 @@ def com_copies(energies, errors, states) -> tuple[list[float], list[float], list
         j = min(parents, key=lambda j: abs(energies[j] + k - energies[i]))
         value = energies[j] + k
         lower = energies[i - 1] if i > 0 else -math.inf
-        upper = energies[i + 1] if i + 1 < len(energies) else math.inf
+        upper = energies[i + 1] if i + 1 < len(energies) else energies[i]
         if errors[j] >= errors[i] or not lower <= value <= upper:
             continue
         records.append({"state": i, "com": k, "parent": j, "ladder_energy": energies[i], "ladder_error": errors[i]})
@@ -653,7 +664,7 @@ def derived_scalar_errors(problem: Problem, energy_error, trap_error, delta_erro
 
 class OscillatorEDBackend(Backend):
     name = "oscillator-ed"
-    version = "7"
+    version = "8"
     summary = (
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
@@ -834,12 +845,13 @@ class OscillatorEDBackend(Backend):
         chosen = [ladder.final.levels[key].payload for key in ladder.keys]
         states = ladder.states
         for state, lv in zip(states, chosen):
-            n_com = com_quanta(problem, lv)
-            if n_com is not None and abs(n_com - round(n_com)) < COM_TOLERANCE:
-                state["com"] = int(round(n_com))
+            state["com"] = com_label(problem, lv)
         energies, energy_errors, copies = list(ladder.energies), ladder.energy_errors, []
         if energy_errors is not None and com_separates_exactly(problem, kind, interaction, lengths):
-            energies, energy_errors, copies = com_copies(energies, energy_errors, states)
+            # a copy counts only if the ladder followed it on every cutoff (the level under a key may change)
+            steady = [all(com_label(problem, rung.levels[key].payload) == state["com"] for rung in ladder.rungs)
+                      for key, state in zip(ladder.keys, states)]
+            energies, energy_errors, copies = com_copies(energies, energy_errors, states, steady)
 
         observables, scalars, scalar_errors, virial = {}, {}, {}, []
         for index in range(min(params["observable_states"], count)):

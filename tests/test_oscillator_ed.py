@@ -200,6 +200,10 @@ def test_centre_of_mass_copies_only_where_the_separation_is_exact_and_the_order_
     assert oed.com_copies([1.0, 1.5, 2.02], [2e-2, 1e-4, 1e-2], states)[2] == []
     energies, errors, records = oed.com_copies([1.0, 1.5, 2.002], [1e-4, 1e-4, 5e-3], states)
     assert energies == [1.0, 1.5, 2.0] and errors == [1e-4, 1e-4, 1e-4] and records[0]["parent"] == 0
+    # the last reported level is not moved up (an unreported level may lie below), nor a level the ladder
+    # did not follow as a copy on every cutoff
+    assert oed.com_copies([1.0, 1.5, 1.998], [1e-4, 1e-4, 5e-3], states)[2] == []
+    assert oed.com_copies([1.0, 1.5, 2.002], [1e-4, 1e-4, 5e-3], states, steady=[True, True, False])[2] == []
 
 
 @pytest.mark.parametrize("g", [-2.0, 3.0])
