@@ -112,7 +112,8 @@ k >= 1 is its intrinsic parent plus k hbar omega, but at cutoff c its intrinsic 
 so its own ladder lags (2+1, cutoff 20: 5.6e-4 and 4.2e-4 off against ``three-body`` where the parent
 plus 1 is 2.9e-5 and 7.3e-5 off). Such a level is reported as the parent's limit plus k with the parent's
 bar (where that bar is the smaller and the order of the levels holds); its own ladder value stays in
-``diagnostics['com_copies']``. Measured on the N = 4 dataset grid (defaults): 38 of 144 levels are copies.
+``diagnostics['com_copies']``. Measured on the N = 4 dataset grid (defaults, version 8): 23 of 144 levels
+are replaced this way (``bench/benchmarks/bench_oscillator_results.md``).
 
 Scalars (``result.SCALAR_NAMES``) and observables (``result.OBSERVABLE_NAMES``) are computed from
 the largest cutoff's eigenvectors for the ``observable_states`` lowest states (suffix @k for k > 0);
