@@ -849,8 +849,9 @@ class OscillatorEDBackend(Backend):
             state["com"] = com_label(problem, lv)
         energies, energy_errors, copies = list(ladder.energies), ladder.energy_errors, []
         if energy_errors is not None and com_separates_exactly(problem, kind, interaction, lengths):
-            # a copy counts only if the ladder followed it on every cutoff (the level under a key may change)
-            steady = [all(com_label(problem, rung.levels[key].payload) == state["com"] for rung in ladder.rungs)
+            # a copy counts only if the ladder followed it on every cutoff (the level under a key may change);
+            # the final cutoff's labels are the states' own
+            steady = [all(com_label(problem, rung.levels[key].payload) == state["com"] for rung in ladder.rungs[:-1])
                       for key, state in zip(ladder.keys, states)]
             energies, energy_errors, copies = com_copies(energies, energy_errors, states, steady)
 

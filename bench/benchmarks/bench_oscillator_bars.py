@@ -37,10 +37,9 @@ LATTICE = ("lattice-dmrg", "lattice-ed")
 
 def reference(level: dataset.DatasetLevel, n_particles: int) -> tuple[float, float] | None:
     """(value, uncertainty) of another method family for this level, or None."""
-    runs = [m for m in (*level.methods, *level.other_runs)]
     wanted = ("three-body",) if n_particles == 3 else LATTICE
     by_backend: dict[str, list] = defaultdict(list)
-    for run in runs:
+    for run in (*level.methods, *level.other_runs):
         if run.backend in wanted:
             by_backend[run.backend].append(run)
     if not by_backend:
@@ -49,34 +48,33 @@ def reference(level: dataset.DatasetLevel, n_particles: int) -> tuple[float, flo
     return chosen.value, chosen.error
 
 
-def reported(stores: list[str]):
-    """(N, grid key, level, energy, bar) of every stored oscillator-ed level, as reported."""
+def stored_results(stores: list[str]):
+    """(N, grid key, result) of every successful oscillator-ed task in the stores."""
     for store in stores:
         connection = sqlite3.connect(f"file:{store}?mode=ro", uri=True)
         for (text,) in connection.execute("select result from tasks where backend = 'oscillator-ed' and status = 'ok'"):
             result = json.loads(text)
-            problem = result["problem"]
-            up, down = problem["up"], problem["down"]
+            up, down = result["problem"]["up"], result["problem"]["down"]
             key = dataset.physics_key(up["count"], down["count"], up["mass"], down["mass"], result["g"])
-            for level, (energy, bar) in enumerate(zip(result["energies"], result.get("energy_errors") or [])):
-                yield up["count"] + down["count"], key, level, energy, bar
+            yield up["count"] + down["count"], key, result
+
+
+def reported(stores: list[str]):
+    """(N, grid key, level, energy, bar) of every stored oscillator-ed level, as reported."""
+    for n, key, result in stored_results(stores):
+        for level, (energy, bar) in enumerate(zip(result["energies"], result.get("energy_errors") or [])):
+            yield n, key, level, energy, bar
 
 
 def ladders(stores: list[str]):
     """(N, grid key, level, cutoffs, raw energies) of every stored oscillator-ed renormalized ladder."""
-    for store in stores:
-        connection = sqlite3.connect(f"file:{store}?mode=ro", uri=True)
-        for (text,) in connection.execute("select result from tasks where backend = 'oscillator-ed' and status = 'ok'"):
-            result = json.loads(text)
-            diagnostics = result.get("diagnostics") or {}
-            if diagnostics.get("interaction") != "renormalized":
-                continue
-            problem = result["problem"]
-            up, down = problem["up"], problem["down"]
-            key = dataset.physics_key(up["count"], down["count"], up["mass"], down["mass"], result["g"])
-            for level, fit in enumerate(diagnostics.get("energy_fits") or []):
-                if len(fit["steps"]) >= 4:
-                    yield up["count"] + down["count"], key, level, np.array(fit["steps"]), np.array(fit["values"])
+    for n, key, result in stored_results(stores):
+        diagnostics = result.get("diagnostics") or {}
+        if diagnostics.get("interaction") != "renormalized":
+            continue
+        for level, fit in enumerate(diagnostics.get("energy_fits") or []):
+            if len(fit["steps"]) >= 4:
+                yield n, key, level, np.array(fit["steps"]), np.array(fit["values"])
 
 
 def main() -> None:
@@ -97,7 +95,6 @@ def main() -> None:
           " all with a reference | within 2 combined bars |")
     print("|---|---|---|---|---|---|---|---|---|")
     for factor in factors:
-        model = GuardedPowerLaw(change_factor=factor or 2.0)
         graded, combined = defaultdict(list), defaultdict(list)
         for n, key, level, *data in found:
             entry = shipped.index.get(key)
@@ -106,7 +103,11 @@ def main() -> None:
             ref = reference(entry.levels[level], n)
             if ref is None:
                 continue
-            value, bar = data if factor is None else (lambda fit: (fit.value, fit.error))(model(*data))
+            if factor is None:
+                value, bar = data
+            else:
+                fit = GuardedPowerLaw(change_factor=factor)(*data)
+                value, bar = fit.value, fit.error
             combined[n].append(abs(value - ref[0]) <= 2 * (bar + ref[1]))
             if ref[1] <= 0.1 * bar:
                 graded[n].append(bar / max(abs(value - ref[0]), 1e-15))
