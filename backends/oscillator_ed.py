@@ -541,6 +541,17 @@ def heavy_light_trimer_possible(problem: Problem) -> bool:
     return problem.coupling < 0 and heavy_pair
 
 
+def heavy_majority_repels(problem: Problem) -> bool:
+    """g > 0, at most four particles, and a species of at least two fermions heavier than the other (occupied)
+    species: the case where orbitals of optimized lengths were measured better than the trap's
+    (``basis_lengths``)."""
+    up, down = problem.up, problem.down
+    heavy_pair = (up.count >= 2 and down.count >= 1 and up.mass > down.mass) or (
+        down.count >= 2 and up.count >= 1 and down.mass > up.mass
+    )
+    return problem.coupling > 0 and heavy_pair and problem.n_particles <= 4
+
+
 def two_pairs_can_bind(problem: Problem) -> bool:
     """g < 0 with at least two fermions of each species: two or more pairs can bind at once."""
     return problem.coupling < 0 and problem.up.count >= 2 and problem.down.count >= 2
@@ -566,8 +577,24 @@ def basis_lengths(problem: Problem, choice: str, kind: str, cutoff: int, paritie
     (default) and 0.708913 +- 1.8e-3 (cutoff 32), both within 0.1 bar of lattice-dmrg; at g = -1 both
     choices cover it (2.660215 +- 2.6e-4 trap, 2.660357 +- 6.4e-4 optimized, lattice-dmrg 2.660256 +-
     6e-4). The price: bars 2-8x wider and 2-3x the CPU time (the length search).
+
+    ``auto`` also optimizes for g > 0 where two or more fermions are heavier than their partners, up to four
+    particles (``heavy_majority_repels``): the chosen orbitals are narrower for the light particle (2+1, mass
+    ratio 20/3, g = 2: lengths 0.370 and 0.661 against the trap's 0.387 and 1). Measured with defaults against
+    ``three-body`` (2+1 and its mirror 1+2 at mass ratios 2 and 20/3, g = 0.5, 2, 5, 20; three levels): ground
+    states 1.0e-4 -> 2.1e-5 (mass ratio 2, g = 2), 8.2e-4 -> 1.8e-5 (20/3, g = 2), 1.5e-3 -> 1.1e-4 (20/3,
+    g = 20); over the whole 2+1 grid the median error of the 90 levels falls from 8.3e-5 to 3.3e-5, ground
+    states within 1e-4 from 19 to 25 of 30, all 90 within 2 bars (with ``GuardedPowerLaw``'s floor guard:
+    the first excited level at 20/3 gets worse, 3e-5 -> 1.2e-3, and is covered by the guard alone). On the
+    N = 4 grid (3+1 at mass ratios 2 and 20/3, 2+2 at 2 and 20/3, g > 0, against lattice-dmrg and
+    lattice-ed): median error of the 34 levels with a lattice value 8.1e-4 -> 5.3e-4, 3+1 at mass ratio 2,
+    g = 2, ground state -1.5e-2 +- 2e-2 -> 2.3e-4 +- 8e-4, all within twice the combined bars; 2+2 at 20/3,
+    g = 2, ground state worse (1.7e-3 -> 8.6e-3, bar 1e-2). Not applied beyond four particles: at the
+    default cutoff 16 of 3+3 (mass ratio 20/3, g = 2) the optimized ladder's bar was 0.56. Where the masses
+    are equal or the heavy species is a single particle (2+1 measured), the trap orbitals did better (they hold the
+    centre-of-mass excitations exactly, ``com_copies``). CPU time 1.2-2x (the search).
     """
-    binds = heavy_light_trimer_possible(problem) or two_pairs_can_bind(problem)
+    binds = heavy_light_trimer_possible(problem) or two_pairs_can_bind(problem) or heavy_majority_repels(problem)
     if choice == "trap" or (choice == "auto" and not binds):
         return trap_lengths(problem), {}
     truncation = Truncation(kind, cutoff)
@@ -615,6 +642,14 @@ class GuardedPowerLaw:
     missed by 2.2-2.4 times that variation: two error terms of opposite sign are both still active and
     the remainder is not bounded by the excursion so far; the bar is twice the total variation.
 
+    Third guard, at the other end of the scan: a running coupling removes the bare contact's c^(-1/2) error
+    term, so a fitted exponent below 1/2 (``power_floor``) is no power law either -- the ladder is still
+    nearly linear in c and the fit extrapolates far beyond it. The bar is then at least the whole
+    correction |E_last - E_inf|. Measured (2+1, pair mass ratio 20/3, g = 2, orbitals of optimized lengths,
+    cutoffs 16-28, first excited level): successive changes -5.2e-5, -5.4e-5, -4.9e-5, p = 0.2, E_inf
+    1.5e-3 below the last value with a bar of 5.3e-4 (from the change of E_inf); the true level lies
+    1.2e-3 below E_inf's fit, inside the correction.
+
     ``change_factor`` (``DriftingPowerLaw``: the bar is at least this times the change of E_inf between the
     fits to the last three and the three cutoffs before) stays 2. Measured with
     ``bench/benchmarks/bench_oscillator_bars.py`` on default ladders against other methods: a factor 1 would
@@ -626,6 +661,7 @@ class GuardedPowerLaw:
     minimum_points: int = 3
     change_factor: float = 2.0
     power_ceiling: float = 5.4  # 90 % of the exponent scan's upper end (6)
+    power_floor: float = 0.5  # the bare contact's exponent (see above)
     two_rung_power: float = 2.0 / 3.0  # see cutoff_model
 
     def __call__(self, steps, values) -> Extrapolation:
@@ -633,11 +669,22 @@ class GuardedPowerLaw:
         variation = float(np.sum(np.abs(np.diff(np.asarray(values, dtype=float)))))
         if fit.warning:  # turned around
             return replace(fit, error=max(fit.error, 2.0 * variation))
-        if fit.parameters.get("power", 0.0) >= self.power_ceiling:
+        power = fit.parameters.get("power")
+        if power is None:
+            return fit
+        if power >= self.power_ceiling:
             return replace(
                 fit,
                 error=max(fit.error, variation),
                 warning="the fitted exponent reached the top of its scan (no power law yet): error bar >= total variation",
+            )
+        if power < self.power_floor:
+            correction = abs(float(values[-1]) - fit.value)
+            return replace(
+                fit,
+                error=max(fit.error, correction),
+                warning=f"the fitted exponent {power:.2f} is below the bare contact's 1/2 (no power law yet):"
+                " error bar >= the whole extrapolation",
             )
         return fit
 
@@ -665,7 +712,7 @@ def derived_scalar_errors(problem: Problem, energy_error, trap_error, delta_erro
 
 class OscillatorEDBackend(Backend):
     name = "oscillator-ed"
-    version = "8"
+    version = "9"
     summary = (
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
@@ -709,7 +756,8 @@ class OscillatorEDBackend(Backend):
             "auto",
             "orbital length per species: 'trap' (each species' trap length), 'optimize' (lowest bare energy at"
             " the ladder's first cutoff, for bound pairs) or 'auto' (optimize when g < 0 and a heavy-heavy-light"
-            " trimer or two pairs can bind)",
+            " trimer or two pairs can bind, and for g > 0 up to four particles when two or more fermions are the"
+            " heavier species)",
             choices=("auto", "trap", "optimize"),
         ),
         Parameter("ladder", int, 4, "number of cutoffs solved (>= 3 extrapolates; 2 bounds the rest by the slowest"

@@ -49,3 +49,29 @@ def test_the_bar_is_at_least_twice_the_change_of_the_extrapolated_limit():
     fit = GuardedPowerLaw()(cutoffs, values)
     assert fit.value == last.value and fit.error == pytest.approx(2 * change, rel=1e-12)
     assert GuardedPowerLaw(change_factor=1.0)(cutoffs, values).error == pytest.approx(change, rel=1e-12)
+
+
+def test_a_nearly_linear_ladder_gets_its_whole_extrapolation_as_bar():
+    """Made up: a ladder still linear in c (an asymptotic c^-1.5 tail sets in later); the fit runs to the bottom
+    of its exponent scan, below the bare contact's 1/2, and the bar must cover the whole extrapolation."""
+    values = 1.0 + 1e-3 * (1.0 - CUTOFFS / 28.0) + 0.05 * CUTOFFS**-1.5
+    fit = GuardedPowerLaw()(CUTOFFS, values)
+    assert fit.parameters["power"] < GuardedPowerLaw().power_floor
+    assert fit.warning
+    assert fit.error >= abs(values[-1] - fit.value)
+
+
+def test_the_floor_guard_covers_a_measured_ladder_against_three_body():
+    """oscillator-ed's raw ladder (version 8, optimized orbital lengths, cutoffs 16-28) for the first excited
+    level of 2+1 with the pair heavy (mass ratio 20/3) at g = 2; reference: the shipped dataset's level, which
+    comes from the ``three-body`` backend (spectral elements, uncertainty ~3e-12)."""
+    from trapbench.problems import dataset
+
+    values = np.array([3.698286639856129, 3.6982349935249, 3.698181274729285, 3.698132386672612])
+    entry = dataset.load().index[dataset.physics_key(2, 1, 20 / 3, 1.0, 2.0)]
+    level = entry.levels[1]
+    assert level.methods[0].backend == "three-body" and level.uncertainty < 1e-9
+    fit = GuardedPowerLaw()(CUTOFFS, values)
+    unguarded = GuardedPowerLaw(power_floor=0.0)(CUTOFFS, values)
+    assert abs(unguarded.value - level.value) > 2 * unguarded.error  # the defect the guard removes
+    assert abs(fit.value - level.value) <= 2 * fit.error
