@@ -5,8 +5,8 @@ a trap; e.g. Sowinski et al., Phys. Rev. A 88, 033607 (2013); Grining et al., Ne
 115001 (2015)). Species s uses oscillator orbitals phi_n(x; b_s): by default those of its own trap,
 b_s = 1/sqrt(m_s omega_s), one-body energies omega_s (n + 1/2); where a heavy-heavy-light trimer can
 bind (g < 0, a pair species heavier than its partner) or two pairs can (g < 0, two or more fermions of
-each species) narrower lengths chosen by minimizing the bare
-energy at a small cutoff (``basis_lengths``; ``oscillator_scaling``: the one-body term is then a
+each species), and for g > 0 up to four particles where two or more fermions are the heavier species,
+narrower lengths chosen by minimizing the bare energy at a small cutoff (``basis_lengths``; ``oscillator_scaling``: the one-body term is then a
 pentadiagonal matrix, parity is still (-1)^n). The many-body basis is Slater determinants of each species:
 
 - ``truncation = "energy"``: all determinant pairs whose non-interacting energy is <= E_0 + cutoff
