@@ -6,8 +6,8 @@ a trap; e.g. Sowinski et al., Phys. Rev. A 88, 033607 (2013); Grining et al., Ne
 b_s = 1/sqrt(m_s omega_s), one-body energies omega_s (n + 1/2); where a heavy-heavy-light trimer can
 bind (g < 0, a pair species heavier than its partner) or two pairs can (g < 0, two or more fermions of
 each species), and for g > 0 up to four particles where two or more fermions are the heavier species,
-narrower lengths chosen by minimizing the bare energy at a small cutoff (``basis_lengths``; ``oscillator_scaling``: the one-body term is then a
-pentadiagonal matrix, parity is still (-1)^n). The many-body basis is Slater determinants of each species:
+narrower lengths chosen by minimizing the bare energy at a small cutoff (``basis_lengths``;
+``oscillator_scaling``: the one-body term is then a pentadiagonal matrix, parity is still (-1)^n). The many-body basis is Slater determinants of each species:
 
 - ``truncation = "energy"``: all determinant pairs whose non-interacting energy is <= E_0 + cutoff
   (cutoff in hbar omega_ref; counted as sum_s omega_s x quanta_s whatever the orbitals' length), the
@@ -532,24 +532,24 @@ def com_copies(energies, errors, states, steady=None) -> tuple[list[float], list
     return energies, errors, records
 
 
-def heavy_light_trimer_possible(problem: Problem) -> bool:
-    """g < 0 and a species of at least two fermions is heavier than the other (occupied) species."""
+def heavy_pair_present(problem: Problem) -> bool:
+    """A species of at least two fermions is heavier than the other (occupied) species."""
     up, down = problem.up, problem.down
-    heavy_pair = (up.count >= 2 and down.count >= 1 and up.mass > down.mass) or (
+    return (up.count >= 2 and down.count >= 1 and up.mass > down.mass) or (
         down.count >= 2 and up.count >= 1 and down.mass > up.mass
     )
-    return problem.coupling < 0 and heavy_pair
+
+
+def heavy_light_trimer_possible(problem: Problem) -> bool:
+    """g < 0 and a species of at least two fermions is heavier than the other (occupied) species."""
+    return problem.coupling < 0 and heavy_pair_present(problem)
 
 
 def heavy_majority_repels(problem: Problem) -> bool:
     """g > 0, at most four particles, and a species of at least two fermions heavier than the other (occupied)
     species: the case where orbitals of optimized lengths were measured better than the trap's
     (``basis_lengths``)."""
-    up, down = problem.up, problem.down
-    heavy_pair = (up.count >= 2 and down.count >= 1 and up.mass > down.mass) or (
-        down.count >= 2 and up.count >= 1 and down.mass > up.mass
-    )
-    return problem.coupling > 0 and heavy_pair and problem.n_particles <= 4
+    return problem.coupling > 0 and heavy_pair_present(problem) and problem.n_particles <= 4
 
 
 def two_pairs_can_bind(problem: Problem) -> bool:
@@ -669,9 +669,7 @@ class GuardedPowerLaw:
         variation = float(np.sum(np.abs(np.diff(np.asarray(values, dtype=float)))))
         if fit.warning:  # turned around
             return replace(fit, error=max(fit.error, 2.0 * variation))
-        power = fit.parameters.get("power")
-        if power is None:
-            return fit
+        power = fit.parameters["power"]  # set on every fit that did not turn around
         if power >= self.power_ceiling:
             return replace(
                 fit,
