@@ -587,9 +587,10 @@ def basis_lengths(problem: Problem, choice: str, kind: str, cutoff: int, paritie
     states within 1e-4 from 19 to 25 of 30, all 90 within 2 bars (with ``GuardedPowerLaw``'s floor guard:
     the first excited level at 20/3 gets worse, 3e-5 -> 1.2e-3, and is covered by the guard alone). On the
     N = 4 grid (3+1 at mass ratios 2 and 20/3, 2+2 at 2 and 20/3, g > 0, against lattice-dmrg and
-    lattice-ed): median error of the 34 levels with a lattice value 8.1e-4 -> 5.3e-4, 3+1 at mass ratio 2,
+    lattice-ed, whose own uncertainties, 3e-4 to 3e-3, make these distances agreement rather than verified
+    accuracy): median distance of the 34 levels with a lattice value 8.1e-4 -> 5.3e-4, 3+1 at mass ratio 2,
     g = 2, ground state -1.5e-2 +- 2e-2 -> 2.3e-4 +- 8e-4, all within twice the combined bars; 2+2 at 20/3,
-    g = 2, ground state worse (1.7e-3 -> 8.6e-3, bar 1e-2). Not applied beyond four particles: at the
+    g = 2, ground state farther (1.7e-3 -> 8.6e-3, bar 1e-2). Not applied beyond four particles: at the
     default cutoff 16 of 3+3 (mass ratio 20/3, g = 2) the optimized ladder's bar was 0.56. Where the masses
     are equal or the heavy species is a single particle (2+1 measured), the trap orbitals did better (they hold the
     centre-of-mass excitations exactly, ``com_copies``). CPU time 1.2-2x (the search).
