@@ -28,7 +28,8 @@ quadrature points or basis blocks):
   rectangles (up range x down range) with disjoint up ranges. An energy-truncated basis with up
   configurations grouped by energy and down configurations sorted by energy is such a union
   ("staircase"); so is one parity sector when orbitals have definite parity.
-- ``ProductHamiltonian``: the matrix-free H acting on the padded coefficient matrix Psi[i_up, i_down]:
+- ``ProductHamiltonian``: H acting on the padded coefficient matrix Psi[i_up, i_down] (or, for small bases
+  on request, an explicit CSR matrix, ``fock_assembly``):
   H Psi = h_up Psi + Psi h_down^T + g sum_q w_q D_up(q) Psi D_down(q)^T (masked to the basis), or
   with ``InteractionFactors`` g sum_k O_up(A_k) Psi O_down(B_k)^T,
   with a diagonal fast path when every D(q) is diagonal (lattice) and parity folding of the points
@@ -58,8 +59,14 @@ import scipy.sparse as sp
 from scipy.sparse.linalg import LinearOperator, eigsh
 from scipy.special import comb
 
+from . import fock_assembly
+
 DENSE_LIMIT = 120  # below this dimension the dense eigensolver is used (robust; cheap at this size)
 SCRATCH_ELEMENTS = 2.5e7  # bound on intermediate arrays of the matvec (8 bytes each)
+# an explicit matrix is tried only up to this dimension (its terms are then built all at once; 2e7 nonzeros,
+# the oscillator backend's limit, are 1.25 % of such a matrix: the energy-truncated oscillator sectors
+# measured 5-27 %, bench/benchmarks/bench_assembly.py)
+ASSEMBLY_MAX_DIM = 40000
 
 
 # ----------------------------------------------------------------------------- single species
@@ -398,6 +405,9 @@ class ProductHamiltonian:
     h_up, h_down: M_s x M_s one-body matrices (kinetic + trap) in the orbital basis.
     ``terms_per_chunk`` bounds the intermediate memory to terms x dim_up x dim_down x 8 bytes
     (default: as many terms as fit in SCRATCH_ELEMENTS).
+    ``assemble_limit`` > 0: up to ``ASSEMBLY_MAX_DIM``, H is built as an explicit CSR matrix (``matrix``,
+    ``fock_assembly``) when it has at most that many nonzeros; products then use it (a tenth of the
+    matrix-free cost on small oscillator bases), otherwise the kernels below.
     """
 
     def __init__(
@@ -408,6 +418,7 @@ class ProductHamiltonian:
         g: float,
         contact: ContactFactorization | InteractionFactors | None,
         terms_per_chunk: int | None = None,
+        assemble_limit: float = 0,
     ):
         self.basis = basis
         self.g = float(g)
@@ -422,17 +433,36 @@ class ProductHamiltonian:
             self._h_down_t = basis.down.one_body(h_down).T.tocsr()
         self._interaction_diag = None
         self._chunks: list = []
+        self.matrix: sp.csr_matrix | None = None
+        terms = []
         if isinstance(contact, InteractionFactors) and self.g != 0.0:
-            self._prepare_factors(contact, terms_per_chunk)
+            terms = self._factor_terms(contact)
         elif contact is not None and self.g != 0.0:
-            self._prepare_contact(contact, terms_per_chunk)
+            terms = self._contact_terms(contact)
+        if terms and assemble_limit and basis.dim <= ASSEMBLY_MAX_DIM:
+            self.matrix = self._assemble(terms, assemble_limit)
+        if terms and self.matrix is None:
+            self._prepare_terms(terms, terms_per_chunk)
         mask = np.zeros(n_u * n_d, bool)
         mask[basis.flat] = True
         self._mask = mask.reshape(n_u, n_d)
         self.matvec_count = 0
 
     # -------------------------------------------------------------- setup
-    def _prepare_contact(self, c: ContactFactorization, per_chunk: int) -> None:
+    def _assemble(self, terms: list, limit: float) -> sp.csr_matrix | None:
+        """The explicit CSR matrix (``fock_assembly``) of one-body part plus g sum_k U_k (x) D_k, or None."""
+        n_u, n_d = self.basis.shape
+        pairs = [(self.g, *term()) for term in terms]
+        if not self._diag_one_body:
+            pairs += [(1.0, self._h_up, sp.identity(n_d, format="csr")), (1.0, sp.identity(n_u, format="csr"), self._h_down_t.T)]
+        matrix = fock_assembly.assemble(self.basis, pairs, limit)
+        if matrix is not None and self._diag_one_body:
+            matrix = (matrix + sp.diags(self._one_body_diag.reshape(-1)[self.basis.flat])).tocsr()
+        return matrix
+
+    def _contact_terms(self, c: ContactFactorization) -> list:
+        """The contact's terms (callables returning (up operator, down operator)); none when every D(q) is
+        diagonal (lattice): that case is kept as the dense array ``_interaction_diag``."""
         vu, vd, w = np.asarray(c.values_up), np.asarray(c.values_down), np.asarray(c.weights, float)
         if np.iscomplexobj(vu) or np.iscomplexobj(vd):
             raise ValueError("the contact factorization needs real orbital values at the points")
@@ -441,7 +471,7 @@ class ProductHamiltonian:
             du = self.basis.up.occupations @ (vu**2).T
             dd = self.basis.down.occupations @ (vd**2).T
             self._interaction_diag = self.g * (du * w[None, :]) @ dd.T
-            return
+            return []
         terms = []  # (weight, values_up row, values_down row, parity sector)
         x = np.asarray(c.points, float)
         fold = (
@@ -467,17 +497,14 @@ class ProductHamiltonian:
                 _density_operator(self.basis.down, rd, pd, sector),
             )
 
-        self._prepare_terms([lambda t=t: operators(*t) for t in terms], per_chunk)
+        return [lambda t=t: operators(*t) for t in terms]
 
-    def _prepare_factors(self, f: InteractionFactors, per_chunk: int) -> None:
+    def _factor_terms(self, f: InteractionFactors) -> list:
         """Terms O_up(A_k) (x) O_down(B_k), each a one-body operator of its species (``FockSpace.one_body`` on
         the space's full hop list)."""
         up, down = self.basis.up, self.basis.down
         hops_up, hops_down = up.hops(), down.hops()
-        self._prepare_terms(
-            [lambda a=a, b=b: (up.one_body(a, hops_up), down.one_body(b, hops_down)) for a, b in zip(f.up, f.down)],
-            per_chunk,
-        )
+        return [lambda a=a, b=b: (up.one_body(a, hops_up), down.one_body(b, hops_down)) for a, b in zip(f.up, f.down)]
 
     def _prepare_terms(self, terms: list, per_chunk: int | None) -> None:
         """Stack the terms' operators chunk by chunk for the kernels; ``terms`` are callables returning
@@ -543,6 +570,9 @@ class ProductHamiltonian:
         if vectors.ndim == 1:
             vectors = vectors[:, None]
         dim, nv = vectors.shape
+        if self.matrix is not None:
+            self.matvec_count += nv
+            return self.matrix @ vectors
         n_u, n_d = self.basis.shape
         terms = max((k for k, _, _, _ in self._chunks), default=1)
         batch = max(1, int(SCRATCH_ELEMENTS // max(1, terms * n_u * n_d)))

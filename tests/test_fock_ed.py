@@ -324,3 +324,77 @@ def test_interaction_factors_match_jordan_wigner_for_a_random_tensor():
     for factors in (fe.InteractionFactors.from_tensor(tensor), fe.InteractionFactors.single_hops(tensor)):
         engine = fe.ProductHamiltonian(basis, np.zeros((m_u, m_u)), np.zeros((m_d, m_d)), 1.0, factors).to_dense()
         assert np.abs(engine - expected).max() < 1e-12
+
+
+# ----------------------------------------------------------------------------- explicit matrix
+
+
+@pytest.mark.parametrize("n_up,n_down,L", [(2, 1, 5), (1, 2, 5), (2, 2, 4)])
+def test_explicit_matrix_matches_brute_force_in_rotated_orbitals(n_up, n_down, L):
+    """The assembled CSR matrix (``fock_assembly``) of a lattice model in a rotated orbital basis (non-diagonal
+    one-body part and non-diagonal D(q)) equals the brute-force Jordan-Wigner matrix transformed to that basis:
+    its spectrum is the lattice spectrum, and the matrix itself is the matrix-free engine's."""
+    a, g = 0.7, -1.3
+    h_u, h_d = lattice_one_body(L, a, 1.0), lattice_one_body(L, a, 20 / 3)
+    expected, up, down = brute_force_two_species(h_u, h_d, g / a, n_up, n_down)
+    x = (np.arange(L) - (L - 1) / 2) * a
+    rot, _ = np.linalg.qr(np.random.default_rng(5).normal(size=(L, L)))
+    sites = np.eye(L) / math.sqrt(a)
+    contact = fe.ContactFactorization(x, np.full(L, a), sites @ rot, sites @ rot)
+    basis = fe.ProductBasis.full(up, down)
+    args = (basis, rot.T @ h_u @ rot, rot.T @ h_d @ rot, g, contact)
+    explicit = fe.ProductHamiltonian(*args, assemble_limit=1e6)
+    assert explicit.matrix is not None and not explicit._chunks
+    dense = explicit.matrix.toarray()
+    assert np.abs(dense - dense.T).max() < 1e-13
+    assert np.allclose(np.linalg.eigvalsh(dense), np.linalg.eigvalsh(expected), atol=1e-11)
+    assert np.allclose(dense, fe.ProductHamiltonian(*args).to_dense(), atol=1e-12)
+
+
+@pytest.mark.parametrize(
+    "m_u,m_d,rectangles",
+    [
+        (5, 4, [[0, 4, 1, 6], [5, 9, 0, 3]]),  # more up configurations: the up species is the outer one
+        (4, 5, [[0, 2, 0, 6], [3, 5, 2, 10]]),  # more down ones, whose up entries are not contiguous
+    ],
+)
+def test_explicit_matrix_on_a_rectangle_basis_with_interaction_factors(m_u, m_d, rectangles):
+    """A random tensor's factors on a truncated (rectangle) basis: the assembled matrix is the restriction of
+    the brute-force matrix (Jordan-Wigner) plus the one-body part."""
+    rng = np.random.default_rng(11)
+    n_u, n_d = 2, 2
+    tensor = rng.normal(size=(m_u, m_d, m_u, m_d))
+    tensor = 0.5 * (tensor + tensor.transpose(2, 3, 0, 1))
+    h_u, h_d = rng.normal(size=(m_u, m_u)), rng.normal(size=(m_d, m_d))
+    h_u, h_d = h_u + h_u.T, h_d + h_d.T
+    up, down = fe.FockSpace(m_u, n_u), fe.FockSpace(m_d, n_d)
+    c = jordan_wigner_annihilators(m_u + m_d)
+    full = sum(
+        tensor[a, b, cc, d] * c[a].T @ c[cc] @ c[m_u + b].T @ c[m_u + d]
+        for a in range(m_u) for b in range(m_d) for cc in range(m_u) for d in range(m_d)
+    )
+    full = full + sum(h_u[a, b] * c[a].T @ c[b] for a in range(m_u) for b in range(m_u))
+    full = full + sum(h_d[a, b] * c[m_u + a].T @ c[m_u + b] for a in range(m_d) for b in range(m_d))
+    states = [su + sd for su in fixed_number_states(m_u, up.occupied) for sd in fixed_number_states(m_d, down.occupied, m_u)]
+    basis = fe.ProductBasis(up, down, np.array(rectangles))
+    expected = full[np.ix_(states, states)][np.ix_(basis.flat, basis.flat)]
+    explicit = fe.ProductHamiltonian(basis, h_u, h_d, 1.0, fe.InteractionFactors.from_tensor(tensor), assemble_limit=1e6)
+    assert explicit.matrix is not None
+    assert np.abs(explicit.matrix.toarray() - expected).max() < 1e-12
+
+
+def test_explicit_matrix_above_its_limit_stays_matrix_free():
+    """Above the nonzero limit the engine keeps the matrix-free kernels, with the same product."""
+    rng = np.random.default_rng(2)
+    M = 6
+    up, down = fe.FockSpace(M, 2), fe.FockSpace(M, 1)
+    values = rng.normal(size=(7, M))
+    contact = fe.ContactFactorization(np.linspace(-1, 1, 7), rng.uniform(0.1, 1, 7), values, values)
+    h = np.diag(np.arange(M) + 0.5)
+    basis = fe.ProductBasis.full(up, down)
+    small = fe.ProductHamiltonian(basis, h, h, 0.8, contact, assemble_limit=10)
+    large = fe.ProductHamiltonian(basis, h, h, 0.8, contact, assemble_limit=1e6)
+    assert small.matrix is None and small._chunks and large.matrix is not None
+    v = rng.normal(size=basis.dim)
+    assert np.allclose(small.matvec(v), large.matvec(v), atol=1e-12)
+    assert small.matvec_count == large.matvec_count == 1
