@@ -181,12 +181,15 @@ def extrapolate_power_law(
     values: Sequence[float],
     power_bounds: tuple[float, float] = (0.2, 6.0),
     floor_fraction: float = 0.05,
+    exponent_shift: float = 0.25,
 ) -> Extrapolation:
     """Limit n -> inf of values(n) = E_inf + A n^(-p), p fitted within ``power_bounds``.
 
     Needs at least three cutoffs. With exactly three the model is solved exactly; with more the
     exponent minimizes the least-squares residual over a fine scan of p, weighting the largest
-    cutoffs most (the asymptotic regime).
+    cutoffs most (the asymptotic regime). The error bar is the largest of ``floor_fraction`` times the
+    correction |values[-1] - E_inf|, the change of E_inf without the smallest cutoff (four or more), and
+    the change of E_inf when p is scaled by 1 -+ ``exponent_shift``.
     """
     n = np.asarray(cutoffs, dtype=float)
     y = np.asarray(values, dtype=float)
@@ -217,8 +220,8 @@ def extrapolate_power_law(
     candidates = [floor_fraction * abs(y[-1] - value)]
     if len(n) >= 4:
         candidates.append(abs(fit(n[1:], y[1:])[0] - value))
-    # the exponent is the least certain ingredient: shift it by 25% either way
-    for scale in (0.75, 1.25):
+    # the exponent is the least certain ingredient: shift it either way
+    for scale in (1 - exponent_shift, 1 + exponent_shift):
         p = power * scale
         design = np.column_stack([np.ones_like(n[-3:]), n[-3:] ** (-p)])
         coef, *_ = np.linalg.lstsq(design, y[-3:], rcond=None)
@@ -261,19 +264,20 @@ class PolynomialModel:
 class DriftingPowerLaw:
     """E(c) = E_inf + A c^(-p), p fitted to the last three cutoffs, for an exponent still drifting.
 
-    Fitted by ``extrapolate_power_law`` (its error bar shifts p by 25%). Where p still drifts along
+    Fitted by ``extrapolate_power_law`` (its error bar shifts p by ``exponent_shift``). Where p still drifts along
     the reachable cutoffs (2+2, g = 2 in a renormalized oscillator basis: p = 0.66 at c = 8-16, 1.76
     at 24-32, 1.67 at 36-44), the error bar is also at least ``change_factor`` times the change of E_inf
     from the previous three cutoffs, and it is the whole correction |E_last - E_inf| when p moved by more than
     25% or fewer than four cutoffs were given. Values that turn around along the ladder (not
     monotonic, e.g. a non-variational renormalized energy) follow no power law: the last value is
     returned with the total variation along the ladder as its error bar, and a ``warning``.
-    ``change_factor`` is 2 by default; a backend that measured its ladders against references may set
-    its own.
+    ``change_factor`` is 2 by default and ``exponent_shift`` (``extrapolate_power_law``) 0.25; a backend that
+    measured its ladders against references may set its own.
     """
 
     minimum_points: int = 3
     change_factor: float = 2.0
+    exponent_shift: float = 0.25
 
     def __call__(self, steps: Sequence[float], values: Sequence[float]) -> Extrapolation:
         cutoffs = np.asarray(steps, dtype=float)
@@ -292,11 +296,11 @@ class DriftingPowerLaw:
                     " interaction): last value, error bar = total variation along the ladder"
                 ),
             )
-        fit = extrapolate_power_law(cutoffs[-3:], energies[-3:])
+        fit = extrapolate_power_law(cutoffs[-3:], energies[-3:], exponent_shift=self.exponent_shift)
         correction = abs(energies[-1] - fit.value)
         error = max(fit.error, correction)
         if len(cutoffs) >= 4:
-            previous = extrapolate_power_law(cutoffs[-4:-1], energies[-4:-1])
+            previous = extrapolate_power_law(cutoffs[-4:-1], energies[-4:-1], exponent_shift=self.exponent_shift)
             power, earlier = fit.parameters["power"], previous.parameters["power"]
             error = max(fit.error, self.change_factor * abs(fit.value - previous.value))
             if abs(power - earlier) > 0.25 * power:

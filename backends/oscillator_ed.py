@@ -105,6 +105,13 @@ c = 8-32, then 1.67 at c = 36-44), its bar widened where the ladder is not yet a
 extrapolated the same way (``scalar_errors``); the kinetic energy and the contact derived from them
 carry the propagated error bars.
 
+Default ladders (version 10): largest cutoff 44 for three particles and 32 for four (28 and 24 before), step 4.
+A sector's H is built as an explicit CSR matrix up to ``ASSEMBLE_LIMIT`` nonzeros (``fock_assembly``), whose
+product costs a tenth of the matrix-free one on these bases (2+1 at cutoff 40: 1.9 against 17.6 ms); that
+pays for the larger cutoffs. Measured on the 2+1 dataset grid with three levels against ``three-body`` (30
+problems, one core, another job on the second): median error of the 90 levels 3.3e-5 -> 5.9e-6; ground states
+within 1e-4 / 1e-5 / 1e-6: 29 / 20 / 8 of 30 (version 9: 25 / 10 / 3); CPU s median 9.6, largest 18.
+
 Centre-of-mass copies (``com_copies``): with a common trap frequency, the energy truncation, the trap's
 orbitals and a bare or running contact coupling, N_com commutes with the truncated Hamiltonian
 (``com_separates_exactly``), so each level's <N_com> is an exact integer k (the ``com`` label). A level with
@@ -148,6 +155,9 @@ from .result import Observable, Solution
 
 COM_TOLERANCE = 1e-3  # <N_com> within this of an integer labels the centre-of-mass excitation
 SCALAR_ERROR_FLOOR = 1e-8  # relative; see the ladder call in _compute
+# nonzeros up to which a sector's H is an explicit CSR matrix (~0.5 GiB while it is built): on 2+1 a product
+# then costs about a tenth of the matrix-free one (bench/benchmarks/bench_assembly.py)
+ASSEMBLE_LIMIT = 2e7
 # basis lengths are chosen at this cutoff: the bare optimum keeps shrinking with the cutoff (it fits the
 # cusp), and lengths found at 8 gave a monotonic renormalized ladder for the 20/3 trimer where those
 # found at 16 made the energy turn around
@@ -242,12 +252,17 @@ def sector_basis(
 
 
 def hamiltonian(
-    problem: Problem, sector: SectorBasis, g: float, factors: fock_ed.InteractionFactors | None = None
+    problem: Problem,
+    sector: SectorBasis,
+    g: float,
+    factors: fock_ed.InteractionFactors | None = None,
+    assemble_limit: float = 0,
 ) -> fock_ed.ProductHamiltonian:
     """H = sum_s sum_ab (h_s)_ab c+_a c_b + g sum_q w_q rho_up(x_q) rho_down(x_q) on ``sector``;
     h_s = omega_s (n + 1/2) in the trap's orbitals, ``oscillator_scaling.one_body_matrix`` otherwise.
     With ``factors`` (an effective interaction tensor, ``effective_factors``) the interaction is
-    g sum_k O_up(A_k) O_down(B_k) instead of the contact."""
+    g sum_k O_up(A_k) O_down(B_k) instead of the contact. ``assemble_limit``: nonzeros up to which H is
+    built as an explicit CSR matrix (``fock_ed.ProductHamiltonian``; 0: always matrix-free)."""
     m_u, m_d = sector.n_orbitals
     (b_u, b_d) = sector.lengths
     if factors is None:
@@ -256,7 +271,8 @@ def hamiltonian(
             quad.points, quad.weights, quad.values_up, quad.values_down, ob.orbital_parities(m_u), ob.orbital_parities(m_d)
         )
     return fock_ed.ProductHamiltonian(
-        sector.basis, one_body_matrix(problem.up, m_u, b_u), one_body_matrix(problem.down, m_d, b_d), g, factors
+        sector.basis, one_body_matrix(problem.up, m_u, b_u), one_body_matrix(problem.down, m_d, b_d), g, factors,
+        assemble_limit=assemble_limit,
     )
 
 
@@ -442,7 +458,7 @@ def solve_cutoff(
         sector = sector_basis(problem, truncation, parity, lengths)
         if sector.basis.dim == 0:
             continue
-        ham = hamiltonian(problem, sector, g_used, factors)
+        ham = hamiltonian(problem, sector, g_used, factors, ASSEMBLE_LIMIT)
         values, vectors = fock_ed.lowest_eigenpairs(ham.as_linear_operator(), min(k, sector.basis.dim), tol=tol)
         diagnostics["dimension"][parity] = sector.basis.dim
         diagnostics["matvecs"][parity] = ham.matvec_count
@@ -651,6 +667,16 @@ class GuardedPowerLaw:
     1.5e-3 below the last value with a bar of 5.3e-4 (from the change of E_inf); the true level lies
     1.2e-3 below E_inf's fit, inside the correction.
 
+    Fourth: the fit's own bar moves the exponent by ``exponent_shift`` = 25 % either way (``extrapolate_power_law``).
+    On ladders that reach cutoff ``asymptotic_cutoff`` = 32 the exponent is settled to about 10 % (2+2, g = 2: p = 1.76
+    at c = 24-32, 1.67 at 36-44), and the shift is ``asymptotic_shift`` = 0.1. Measured with
+    ``bench/benchmarks/bench_oscillator_bars.py`` against ``three-body`` (2+1 grid, three levels, version 10 defaults,
+    cutoffs 32-44): 0.25 gave 88/88 graded levels within 2 bars and a median bar 22.8x the true error; 0.1 gives
+    88/88 and 7.6x (smallest ratio 0.85); 0.05 would miss 1. On the 1393 stored ladders of earlier versions (cutoffs
+    up to 28; N = 3 to 12) a 0.1 shift on every ladder would have missed 7 N = 3 levels (the first excited level of the
+    20/3 trimer on cutoffs 16-28) and 5 levels at N = 6 and 8 against the combined bars; with the cutoff condition
+    none of those ladders changes.
+
     ``change_factor`` (``DriftingPowerLaw``: the bar is at least this times the change of E_inf between the
     fits to the last three and the three cutoffs before) stays 2. Measured with
     ``bench/benchmarks/bench_oscillator_bars.py`` on default ladders against other methods: a factor 1 would
@@ -663,10 +689,14 @@ class GuardedPowerLaw:
     change_factor: float = 2.0
     power_ceiling: float = 5.4  # 90 % of the exponent scan's upper end (6)
     power_floor: float = 0.5  # the bare contact's exponent (see above)
+    exponent_shift: float = 0.25  # DriftingPowerLaw's, on ladders that end below asymptotic_cutoff
+    asymptotic_cutoff: float = 32.0  # see above
+    asymptotic_shift: float = 0.1
     two_rung_power: float = 2.0 / 3.0  # see cutoff_model
 
     def __call__(self, steps, values) -> Extrapolation:
-        fit = DriftingPowerLaw(change_factor=self.change_factor)(steps, values)
+        shift = self.asymptotic_shift if float(steps[-1]) >= self.asymptotic_cutoff else self.exponent_shift
+        fit = DriftingPowerLaw(change_factor=self.change_factor, exponent_shift=shift)(steps, values)
         variation = float(np.sum(np.abs(np.diff(np.asarray(values, dtype=float)))))
         if fit.warning:  # turned around
             return replace(fit, error=max(fit.error, 2.0 * variation))
@@ -711,7 +741,7 @@ def derived_scalar_errors(problem: Problem, energy_error, trap_error, delta_erro
 
 class OscillatorEDBackend(Backend):
     name = "oscillator-ed"
-    version = "9"
+    version = "10"
     summary = (
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
@@ -782,11 +812,12 @@ class OscillatorEDBackend(Backend):
     )
 
     def default_cutoff(self, problem: Problem, truncation: str) -> int:
-        """Largest cutoff of the default ladder: a few seconds of CPU per problem (see benchmarks)."""
+        """Largest cutoff of the default ladder: a few seconds to about 20 s of CPU per problem up to four particles
+        (see the module docstring and benchmarks)."""
         n = problem.n_particles
         if truncation == "orbital":
             return {2: 30, 3: 24, 4: 18, 5: 14, 6: 12}.get(n, 10)
-        return {2: 32, 3: 28, 4: 24, 5: 20, 6: 16, 7: 14, 11: 16, 12: 16}.get(n, 12)
+        return {2: 32, 3: 44, 4: 32, 5: 20, 6: 16, 7: 14, 11: 16, 12: 16}.get(n, 12)
 
     def cutoff_ladder(self, problem: Problem, params: dict[str, Any]) -> list[int]:
         """The cutoffs solved, ascending: ``cutoff``, ``cutoff - ladder_step``, ... (``ladder`` of them)."""

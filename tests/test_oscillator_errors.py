@@ -75,3 +75,41 @@ def test_the_floor_guard_covers_a_measured_ladder_against_three_body():
     unguarded = GuardedPowerLaw(power_floor=0.0)(CUTOFFS, values)
     assert abs(unguarded.value - level.value) > 2 * unguarded.error  # the defect the guard removes
     assert abs(fit.value - level.value) <= 2 * fit.error
+
+
+def test_a_ladder_reaching_the_asymptotic_cutoff_shifts_the_exponent_by_a_tenth():
+    """Made up: the same clean power law on cutoffs 16-28 and 32-44. Below ``asymptotic_cutoff`` the fit's bar moves
+    p by 25 %, from it on by 10 %; for one ladder the bar is then the change of E_inf under the smaller shift, which
+    ``extrapolate_power_law`` gives directly."""
+    from trapbench.backends.extrapolation import extrapolate_power_law
+
+    rule = GuardedPowerLaw()
+    late = CUTOFFS + 16.0
+    values = 3.0 + 0.02 * late**-1.5 + 0.3 * late**-2.5  # p drifts a little: not a pure power law
+    assert late[-1] >= rule.asymptotic_cutoff > CUTOFFS[-1]
+    fit = rule(late, values)
+    narrow = extrapolate_power_law(late[1:], values[1:], exponent_shift=rule.asymptotic_shift)
+    wide = extrapolate_power_law(late[1:], values[1:], exponent_shift=rule.exponent_shift)
+    assert narrow.error < wide.error
+    assert fit.error == pytest.approx(max(narrow.error, rule.change_factor * abs(
+        narrow.value - extrapolate_power_law(late[:3], values[:3]).value)), rel=1e-12)
+    assert abs(fit.value - 3.0) <= 2 * fit.error
+    early = rule(CUTOFFS, 3.0 + 0.02 * CUTOFFS**-1.5 + 0.3 * CUTOFFS**-2.5)
+    assert early.error >= extrapolate_power_law(CUTOFFS[1:], early.values[1:], exponent_shift=0.25).error
+
+
+def test_the_asymptotic_shift_covers_a_measured_ladder_against_three_body():
+    """oscillator-ed's raw ladder (version 10 defaults, cutoffs 32-44) for the ground state of 2+1 with equal masses at
+    g = 20; reference: the shipped dataset's level from the ``three-body`` backend (uncertainty ~1e-12). The 10 %
+    shift leaves a bar 12x the true error (37x with 25 %), still covering it."""
+    from trapbench.problems import dataset
+
+    cutoffs = np.array([32.0, 36.0, 40.0, 44.0])
+    values = np.array([4.30701503225942, 4.3065870926934, 4.306265142289509, 4.306015780885498])
+    level = dataset.load().index[dataset.physics_key(2, 1, 1.0, 1.0, 20.0)].levels[0]
+    assert level.methods[0].backend == "three-body" and level.uncertainty < 1e-9
+    fit = GuardedPowerLaw()(cutoffs, values)
+    wide = GuardedPowerLaw(asymptotic_shift=0.25)(cutoffs, values)
+    error = abs(fit.value - level.value)
+    assert error <= fit.error / 2 and fit.error < 0.5 * wide.error
+    assert error < 2e-5  # what the version-10 ladder reaches (version 9's cutoffs 16-28: 9.9e-5)

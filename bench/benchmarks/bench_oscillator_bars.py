@@ -3,6 +3,7 @@
 Run by hand (not part of the test suite):
 
     python bench/benchmarks/bench_oscillator_bars.py --store S1.sqlite [--store S2.sqlite ...] [--factor 1 --factor 2]
+        [--shift 0.1 --shift 0.25]
 
 Every successful oscillator-ed task in the stores (running coupling, four or more cutoffs) on a grid point of
 the shipped reference dataset is graded level by level against another method's value for that level: for
@@ -12,7 +13,8 @@ bar. Graded strictly (the project's rule) only where that reference's uncertaint
 that drops exactly the levels whose bar a rule narrows most, so every level with a reference is also counted
 against the combined bars, |E - reference| <= 2 (bar + reference uncertainty). The stored
 ladder (``diagnostics.energy_fits``: cutoffs and raw energies) is extrapolated again with
-``GuardedPowerLaw(change_factor=f)`` for each factor asked, so one set of solves measures every variant.
+``GuardedPowerLaw(change_factor=f, asymptotic_shift=s)`` for each factor and exponent shift (of ladders
+reaching the asymptotic cutoff) asked (defaults: the backend's), so one set of solves measures every variant.
 With ``--as-reported`` the stored energies and bars are graded as the backend reported them (no
 re-extrapolation; e.g. version 7's centre-of-mass copies, which take their parent's value and bar).
 Reported per N: levels graded, within 2 bars, the median and the smallest of bar / |E - reference|; then
@@ -81,20 +83,23 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--store", action="append", required=True)
     parser.add_argument("--factor", action="append", type=float, default=None)
+    parser.add_argument("--shift", action="append", type=float, default=None, help="exponent shift of ladders reaching the asymptotic cutoff")
     parser.add_argument("--as-reported", action="store_true", help="grade the stored energies and bars as they are")
     args = parser.parse_args()
     shipped = dataset.load()
     if args.as_reported:
         found = list(reported(args.store))
-        factors = [None]
+        variants = [None]
     else:
         found = list(ladders(args.store))
-        factors = args.factor or [1.0, 2.0]
+        backend_rule = GuardedPowerLaw()
+        variants = [(f, s) for f in args.factor or [backend_rule.change_factor]
+                    for s in args.shift or [backend_rule.asymptotic_shift]]
     print(f"ladders: {len(found)} levels from {len(args.store)} store(s); dataset version {shipped.version}\n")
-    print("| change_factor | N | graded | within 2 bars | coverage | median bar/err | smallest bar/err |"
+    print("| change_factor, exponent shift | N | graded | within 2 bars | coverage | median bar/err | smallest bar/err |"
           " all with a reference | within 2 combined bars |")
     print("|---|---|---|---|---|---|---|---|---|")
-    for factor in factors:
+    for variant in variants:
         graded, combined = defaultdict(list), defaultdict(list)
         for n, key, level, *data in found:
             entry = shipped.index.get(key)
@@ -103,10 +108,10 @@ def main() -> None:
             ref = reference(entry.levels[level], n)
             if ref is None:
                 continue
-            if factor is None:
+            if variant is None:
                 value, bar = data
             else:
-                fit = GuardedPowerLaw(change_factor=factor)(*data)
+                fit = GuardedPowerLaw(change_factor=variant[0], asymptotic_shift=variant[1])(*data)
                 value, bar = fit.value, fit.error
             combined[n].append(abs(value - ref[0]) <= 2 * (bar + ref[1]))
             if ref[1] <= 0.1 * bar:
@@ -116,7 +121,7 @@ def main() -> None:
             within = sum(r >= 0.5 for r in ratios)
             strict = (f"{len(ratios)} | {within} | {100 * within / len(ratios):.0f} % | {statistics.median(ratios):.1f} |"
                       f" {min(ratios):.2f}") if ratios else "0 | | | |"
-            print(f"| {'as reported' if factor is None else f'{factor:g}'} | {n} | {strict} | {len(combined[n])} |"
+            print(f"| {'as reported' if variant is None else f'{variant[0]:g}, {variant[1]:g}'} | {n} | {strict} | {len(combined[n])} |"
                   f" {sum(combined[n])} |")
 
 
