@@ -110,7 +110,7 @@ A sector's H is built as an explicit CSR matrix up to ``ASSEMBLE_LIMIT`` nonzero
 product costs a tenth of the matrix-free one on these bases (2+1 at cutoff 40: 1.9 against 17.6 ms); that
 pays for the larger cutoffs. Measured on the 2+1 dataset grid with three levels against ``three-body`` (30
 problems, one core, another job on the second): median error of the 90 levels 3.3e-5 -> 5.9e-6; ground states
-within 1e-4 / 1e-5 / 1e-6: 29 / 20 / 8 of 30 (version 9: 25 / 10 / 3); CPU s median 9.6, largest 18.
+within 1e-4 / 1e-5 / 1e-6: 29 / 20 / 8 of 30 (version 9: 25 / 10 / 3); CPU s median 8.9, largest 20.
 
 Centre-of-mass copies (``com_copies``): with a common trap frequency, the energy truncation, the trap's
 orbitals and a bare or running contact coupling, N_com commutes with the truncated Hamiltonian

@@ -61,7 +61,7 @@ def main() -> None:
             assert np.allclose(free.matvec(v), explicit.matvec(v), atol=1e-11)
             t_free, t_csr = product_time(free, v), product_time(explicit, v)
             print(
-                f"| {n_up}+{n_down} | {mass_up / 1.0:.3g} | {cutoff} | {sector.basis.dim} | {explicit.matrix.nnz} |"
+                f"| {n_up}+{n_down} | {mass_up:.3g} | {cutoff} | {sector.basis.dim} | {explicit.matrix.nnz} |"
                 f" {build:.2f} | {peak:.0f} | {1e3 * t_csr:.2f} | {1e3 * t_free:.2f} | {t_free / t_csr:.1f} |",
                 flush=True,
             )
