@@ -777,6 +777,8 @@ def lowest_eigenpairs(
     # Lanczos builds one Krylov space: copies of an exactly degenerate level beyond the first are
     # found only through rounding, if at all. Move the found vectors up by a shift larger than the
     # spread of the levels and search again; repeat while new vectors appear below the k-th level.
+    # Each round first asks only for the lowest level of the shifted operator: none was missed unless it
+    # lies below the k-th level (the usual case, settled at a fraction of a k-level search).
     for _ in range(k):
         if dim - k < k:
             break
@@ -787,10 +789,13 @@ def lowest_eigenpairs(
             x = np.asarray(x).reshape(dim, -1)
             return (operator @ x) + shift * (found @ (found.T @ x))
 
-        more_values, more_vectors = eigsh(
-            LinearOperator((dim, dim), matvec=deflated, matmat=deflated, dtype=float), k=k, which="SA", tol=tol, ncv=ncv
-        )
-        new = more_values < values[-1] - max(abs(tol), 1e-12) * max(1.0, abs(values[-1]))
+        shifted = LinearOperator((dim, dim), matvec=deflated, matmat=deflated, dtype=float)
+        margin = max(abs(tol), 1e-12) * max(1.0, abs(values[-1]))
+        lowest = eigsh(shifted, k=1, which="SA", tol=tol, ncv=ncv, return_eigenvectors=False)
+        if lowest[0] >= values[-1] - margin:
+            break
+        more_values, more_vectors = eigsh(shifted, k=k, which="SA", tol=tol, ncv=ncv)
+        new = more_values < values[-1] - margin
         if not np.any(new):
             break
         values = np.concatenate([values, more_values[new]])
