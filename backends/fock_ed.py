@@ -440,7 +440,9 @@ class ProductHamiltonian:
         elif contact is not None and self.g != 0.0:
             terms = self._contact_terms(contact)
         if terms and assemble_limit and basis.dim <= ASSEMBLY_MAX_DIM:
-            self.matrix = self._assemble(terms, assemble_limit)
+            built = [term() for term in terms]
+            self.matrix = self._assemble(built, assemble_limit)
+            terms = [lambda pair=pair: pair for pair in built]  # the fallback reuses them (small bases only)
         if terms and self.matrix is None:
             self._prepare_terms(terms, terms_per_chunk)
         mask = np.zeros(n_u * n_d, bool)
@@ -450,9 +452,10 @@ class ProductHamiltonian:
 
     # -------------------------------------------------------------- setup
     def _assemble(self, terms: list, limit: float) -> sp.csr_matrix | None:
-        """The explicit CSR matrix (``fock_assembly``) of one-body part plus g sum_k U_k (x) D_k, or None."""
+        """The explicit CSR matrix (``fock_assembly``) of one-body part plus g sum_k U_k (x) D_k, or None;
+        ``terms``: the built (U_k, D_k)."""
         n_u, n_d = self.basis.shape
-        pairs = [(self.g, *term()) for term in terms]
+        pairs = [(self.g, up, down) for up, down in terms]
         if not self._diag_one_body:
             pairs += [(1.0, self._h_up, sp.identity(n_d, format="csr")), (1.0, sp.identity(n_u, format="csr"), self._h_down_t.T)]
         matrix = fock_assembly.assemble(self.basis, pairs, limit)

@@ -402,8 +402,12 @@ def test_explicit_matrix_on_a_rectangle_basis_with_interaction_factors(m_u, m_d,
     assert np.abs(explicit.matrix.toarray() - expected).max() < 1e-12
 
 
-def test_explicit_matrix_above_its_limit_stays_matrix_free():
-    """Above the nonzero limit the engine keeps the matrix-free kernels, with the same product."""
+def test_explicit_matrix_above_its_limit_stays_matrix_free(monkeypatch):
+    """Above the nonzero limit the engine keeps the matrix-free kernels, with the same product, and builds each
+    term's operators once (the failed assembly's are reused)."""
+    built = []
+    density_operator = fe._density_operator
+    monkeypatch.setattr(fe, "_density_operator", lambda *args: built.append(1) or density_operator(*args))
     rng = np.random.default_rng(2)
     M = 6
     up, down = fe.FockSpace(M, 2), fe.FockSpace(M, 1)
@@ -411,9 +415,13 @@ def test_explicit_matrix_above_its_limit_stays_matrix_free():
     contact = fe.ContactFactorization(np.linspace(-1, 1, 7), rng.uniform(0.1, 1, 7), values, values)
     h = np.diag(np.arange(M) + 0.5)
     basis = fe.ProductBasis.full(up, down)
+    free = fe.ProductHamiltonian(basis, h, h, 0.8, contact)
+    once = len(built)
     small = fe.ProductHamiltonian(basis, h, h, 0.8, contact, assemble_limit=10)
+    assert len(built) == 2 * once > 0
     large = fe.ProductHamiltonian(basis, h, h, 0.8, contact, assemble_limit=1e6)
     assert small.matrix is None and small._chunks and large.matrix is not None
+    assert np.allclose(free.matvec(np.eye(basis.dim)[:, 3]), large.matrix[:, 3].toarray()[:, 0], atol=1e-12)
     v = rng.normal(size=basis.dim)
     assert np.allclose(small.matvec(v), large.matvec(v), atol=1e-12)
     assert small.matvec_count == large.matvec_count == 1
