@@ -289,6 +289,18 @@ class ProductBasis:
     def from_matrix(self, matrix: np.ndarray) -> np.ndarray:
         return np.asarray(matrix).reshape(-1)[self.flat]
 
+    def positions_in(self, larger: ProductBasis) -> np.ndarray:
+        """Where each of this basis' entries sits in ``larger`` (same particle numbers, its orbitals a subset
+        of larger's by index); ValueError if an entry is missing there."""
+        up = larger.up.index(self.up.occupied)[self.up_index]
+        down = larger.down.index(self.down.occupied)[self.down_index]
+        order = np.argsort(larger.flat)
+        wanted = up * larger.down.dim + down
+        found = order[np.minimum(np.searchsorted(larger.flat, wanted, sorter=order), larger.dim - 1)]
+        if np.any(up < 0) or np.any(down < 0) or np.any(larger.flat[found] != wanted):
+            raise ValueError("this basis is not contained in the larger one")
+        return found
+
 
 # ----------------------------------------------------------------------------- Hamiltonian
 
@@ -534,6 +546,14 @@ class ProductHamiltonian:
             rows_c0[r0:r1], rows_c1[r0:r1] = c0, c1
         self._row_columns = (rows_c0, rows_c1)
 
+    def one_body_matrix(self) -> sp.csr_matrix:
+        """The one-body part sum_s h_s on the basis as an explicit CSR matrix."""
+        if self._diag_one_body:
+            return sp.diags(self._one_body_diag.reshape(-1)[self.basis.flat]).tocsr()
+        n_u, n_d = self.basis.shape
+        pairs = [(1.0, self._h_up, sp.identity(n_d, format="csr")), (1.0, sp.identity(n_u, format="csr"), self._h_down_t.T)]
+        return fock_assembly.assemble(self.basis, pairs, np.inf)
+
     # -------------------------------------------------------------- action
     def apply_matrix(self, psi: np.ndarray) -> np.ndarray:
         """H acting on padded coefficient matrices psi[i_up, i_down, v] (zeros outside the basis)."""
@@ -749,6 +769,25 @@ def project(operator: LinearOperator, isometry: sp.spmatrix) -> LinearOperator:
     return LinearOperator(
         (isometry.shape[1], isometry.shape[1]), matvec=lambda v: vt @ (operator @ (isometry @ v)), dtype=float
     )
+
+
+class MatrixOperator:
+    """An explicit H (CSR) with ``ProductHamiltonian``'s product interface and product count."""
+
+    def __init__(self, matrix: sp.csr_matrix):
+        self.matrix = matrix
+        self.matvec_count = 0
+
+    def matmat(self, vectors: np.ndarray) -> np.ndarray:
+        vectors = np.asarray(vectors)
+        self.matvec_count += 1 if vectors.ndim == 1 else vectors.shape[1]
+        return self.matrix @ vectors
+
+    def matvec(self, vector: np.ndarray) -> np.ndarray:
+        return self.matmat(np.asarray(vector).reshape(-1))
+
+    def as_linear_operator(self, dtype=float) -> LinearOperator:
+        return LinearOperator(self.matrix.shape, matvec=self.matvec, matmat=self.matmat, dtype=dtype)
 
 
 # ----------------------------------------------------------------------------- eigensolver

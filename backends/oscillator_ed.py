@@ -108,9 +108,12 @@ carry the propagated error bars.
 Default ladders (version 10): largest cutoff 44 for three particles and 32 for four (28 and 24 before), step 4.
 A sector's H is built as an explicit CSR matrix up to ``ASSEMBLE_LIMIT`` nonzeros (``fock_assembly``), whose
 product costs a tenth of the matrix-free one on these bases (2+1 at cutoff 40: 1.9 against 17.6 ms); that
-pays for the larger cutoffs. Measured on the 2+1 dataset grid with three levels against ``three-body`` (30
-problems, one core, another job on the second): median error of the 90 levels 3.3e-5 -> 5.9e-6; ground states
-within 1e-4 / 1e-5 / 1e-6: 29 / 20 / 8 of 30 (version 9: 25 / 10 / 3); CPU s median 8.9, largest 20.
+pays for the larger cutoffs. A ladder's bases are nested, so the largest cutoff's one-body part and contact are
+assembled once per parity and each smaller cutoff takes their restriction (``NestedSectors``; same matrices to
+rounding, measured 10-20 % less CPU per default solve on 2+1 ... 3+1). Measured on the 2+1 dataset grid with
+three levels against ``three-body`` (30 problems, one core, another job on the second): median error of the 90
+levels 3.3e-5 -> 5.9e-6; ground states within 1e-4 / 1e-5 / 1e-6: 29 / 20 / 8 of 30 (version 9: 25 / 10 / 3); CPU s
+median 8.9, largest 20 (before the restriction above and the cheaper degeneracy check of ``fock_ed``).
 
 Centre-of-mass copies (``com_copies``): with a common trap frequency, the energy truncation, the trap's
 orbitals and a bare or running contact coupling, N_com commutes with the truncated Hamiltonian
@@ -142,6 +145,7 @@ from functools import lru_cache
 from typing import Any
 
 import numpy as np
+import scipy.sparse as sp
 
 from ..problems.errors import SpecError
 from ..problems.spec import Problem
@@ -265,15 +269,60 @@ def hamiltonian(
     built as an explicit CSR matrix (``fock_ed.ProductHamiltonian``; 0: always matrix-free)."""
     m_u, m_d = sector.n_orbitals
     (b_u, b_d) = sector.lengths
-    if factors is None:
-        quad = ob.contact_quadrature(m_u, b_u, m_d, b_d, sector.max_degree)
-        factors = fock_ed.ContactFactorization(
-            quad.points, quad.weights, quad.values_up, quad.values_down, ob.orbital_parities(m_u), ob.orbital_parities(m_d)
-        )
     return fock_ed.ProductHamiltonian(
-        sector.basis, one_body_matrix(problem.up, m_u, b_u), one_body_matrix(problem.down, m_d, b_d), g, factors,
-        assemble_limit=assemble_limit,
+        sector.basis, one_body_matrix(problem.up, m_u, b_u), one_body_matrix(problem.down, m_d, b_d), g,
+        contact_factorization(sector) if factors is None else factors, assemble_limit=assemble_limit,
     )
+
+
+def contact_factorization(sector: SectorBasis) -> fock_ed.ContactFactorization:
+    """delta(x_up - x_down) = sum_q w_q rho_up(x_q) rho_down(x_q) on the sector's orbitals: Gauss-Hermite
+    points exact up to the polynomial degree the sector's hops need (``sector.max_degree``)."""
+    m_u, m_d = sector.n_orbitals
+    (b_u, b_d) = sector.lengths
+    quad = ob.contact_quadrature(m_u, b_u, m_d, b_d, sector.max_degree)
+    return fock_ed.ContactFactorization(
+        quad.points, quad.weights, quad.values_up, quad.values_down, ob.orbital_parities(m_u), ob.orbital_parities(m_d)
+    )
+
+
+class NestedSectors:
+    """The one-body part and the contact (at g = 1) of a ladder's largest cutoff, per parity, as explicit CSR
+    matrices, restricted to each smaller cutoff's basis.
+
+    A ladder's bases are nested (energy or orbital truncation, one set of orbital lengths) and neither the
+    orbitals nor the exact contact elements depend on the cutoff, so H(c) = H_1|c + g_used(c) V|c: one
+    assembly per parity instead of one per cutoff (built on first use; a parity whose largest sector exceeds
+    ``limit`` nonzeros is left to the per-cutoff path, matrix-free there).
+    """
+
+    def __init__(self, problem: Problem, truncation: Truncation, lengths, limit: float):
+        self.problem, self.truncation, self.lengths, self.limit = problem, truncation, lengths, limit
+        self._parts: dict[int, tuple | None] = {}
+
+    def _largest(self, parity: int):
+        if parity not in self._parts:
+            sector = sector_basis(self.problem, self.truncation, parity, self.lengths)
+            parts = None
+            if sector.basis.dim:
+                m_u, m_d = sector.n_orbitals
+                contact = fock_ed.ProductHamiltonian(
+                    sector.basis, np.zeros((m_u, m_u)), np.zeros((m_d, m_d)), 1.0, contact_factorization(sector),
+                    assemble_limit=self.limit,
+                ).matrix
+                if contact is not None:
+                    parts = (sector, hamiltonian(self.problem, sector, 0.0).one_body_matrix(), contact)
+            self._parts[parity] = parts
+        return self._parts[parity]
+
+    def restricted(self, sector: SectorBasis, parity: int) -> tuple[sp.csr_matrix, sp.csr_matrix] | None:
+        """(H_1, V) on ``sector`` (a basis of this ladder at a cutoff <= its largest), or None."""
+        parts = self._largest(parity)
+        if parts is None:
+            return None
+        largest, one_body, contact = parts
+        positions = sector.basis.positions_in(largest.basis)
+        return one_body[positions][:, positions], contact[positions][:, positions]
 
 
 def one_body_matrix(species, n_orbitals: int, length: float) -> np.ndarray:
@@ -438,17 +487,30 @@ def effective_derivative_factors(problem: Problem, truncation: Truncation, g: fl
 
 @dataclass
 class Level:
+    """One eigenstate at one cutoff; ``contact``: <psi| sum delta |psi> in the truncated basis when the solve
+    had the contact's matrix at hand (else None: computed on request)."""
+
     energy: float
     parity: int
     vector: np.ndarray
     sector: SectorBasis
+    contact: float | None = None
 
 
 def solve_cutoff(
-    problem: Problem, truncation: Truncation, g_used: float, k: int, parities, tol: float, lengths=None, factors=None
+    problem: Problem,
+    truncation: Truncation,
+    g_used: float,
+    k: int,
+    parities,
+    tol: float,
+    lengths=None,
+    factors=None,
+    nested: NestedSectors | None = None,
 ):
     """The k lowest levels in each requested parity sector, merged and sorted (interaction: the contact
-    g_used delta, or g_used times the two-body operator ``factors``).
+    g_used delta, or g_used times the two-body operator ``factors``). ``nested``: the ladder's matrices
+    (``NestedSectors``, contact interaction only), restricted to this cutoff where they exist.
 
     (Seeding Lanczos with the previous cutoff's eigenvector was tried: no fewer matvecs for k >= 3.)
     """
@@ -458,11 +520,17 @@ def solve_cutoff(
         sector = sector_basis(problem, truncation, parity, lengths)
         if sector.basis.dim == 0:
             continue
-        ham = hamiltonian(problem, sector, g_used, factors, ASSEMBLE_LIMIT)
+        parts = nested.restricted(sector, parity) if nested is not None and factors is None else None
+        if parts is None:
+            ham = hamiltonian(problem, sector, g_used, factors, ASSEMBLE_LIMIT)
+        else:
+            ham = fock_ed.MatrixOperator((parts[0] + g_used * parts[1]).tocsr())
         values, vectors = fock_ed.lowest_eigenpairs(ham.as_linear_operator(), min(k, sector.basis.dim), tol=tol)
         diagnostics["dimension"][parity] = sector.basis.dim
         diagnostics["matvecs"][parity] = ham.matvec_count
-        levels += [Level(float(e), parity, vectors[:, i], sector) for i, e in enumerate(values)]
+        for i, e in enumerate(values):
+            contact = None if parts is None else float(vectors[:, i] @ (parts[1] @ vectors[:, i]))
+            levels.append(Level(float(e), parity, vectors[:, i], sector, contact))
     levels.sort(key=lambda lv: lv.energy)
     return levels, diagnostics
 
@@ -879,6 +947,7 @@ class OscillatorEDBackend(Backend):
         # the effective interaction is built in the trap orbitals ('auto' means them here; it binds pairs itself)
         length_choice = "trap" if effective else params["basis_lengths"]
         lengths, length_search = basis_lengths(problem, length_choice, kind, search_cutoff, parities)
+        nested = None if effective else NestedSectors(problem, Truncation(kind, cutoffs[-1]), lengths, ASSEMBLE_LIMIT)
 
         def solve_rung(c: int, final: bool) -> Rung:
             trunc = Truncation(kind, c)
@@ -888,7 +957,7 @@ class OscillatorEDBackend(Backend):
                 derivative = lambda trunc=trunc: effective_derivative_factors(problem, trunc, g)  # noqa: E731
             g_used, slope = effective_coupling(problem, trunc, g, lengths) if interaction == "renormalized" else (g, 1.0)
             levels, diag = solve_cutoff(
-                problem, trunc, 1.0 if effective else g_used, k, parities, params["tolerance"], lengths, factors
+                problem, trunc, 1.0 if effective else g_used, k, parities, params["tolerance"], lengths, factors, nested
             )
             diag["g_used"] = g_used
             # degeneracy: size of the cluster (spacings < tolerance) among every level of this cutoff
@@ -1001,7 +1070,9 @@ class OscillatorEDBackend(Backend):
         m_u, m_d = level.sector.n_orbitals
         rho_u, rho_d = fock_ed.one_body_density_matrices(level.sector.basis, level.vector)
         vector = level.vector
-        if derivative is None:
+        if derivative is None and level.contact is not None:
+            delta_trunc = level.contact
+        elif derivative is None:
             delta_trunc = float(
                 vector @ hamiltonian(problem, level.sector, 1.0).matvec(vector)
                 - vector @ hamiltonian(problem, level.sector, 0.0).matvec(vector)

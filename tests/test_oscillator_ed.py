@@ -350,6 +350,27 @@ def test_reduced_contact_quadrature_is_exact_inside_the_energy_basis(mass_down, 
         assert np.allclose(reduced, full, atol=1e-12)
 
 
+@pytest.mark.parametrize("truncation, cutoffs", [("energy", (8, 14)), ("orbital", (6, 9))])
+@pytest.mark.parametrize("mass_up, lengths", [(1.0, None), (20 / 3, (0.37, 0.66))])
+def test_a_ladders_matrices_restricted_to_a_smaller_cutoff_equal_that_cutoffs_own(truncation, cutoffs, mass_up, lengths):
+    """The bases of a ladder are nested and the orbitals and exact contact elements do not depend on the cutoff,
+    so the largest cutoff's one-body part and contact, restricted to a smaller basis, must be that basis' own
+    H(g) (trap orbitals, and scaled orbitals whose one-body part is not diagonal), entry by entry."""
+    problem = Problem.create(2, 1, -1.5, mass_up=mass_up)
+    small, large = (oed.Truncation(truncation, c) for c in cutoffs)
+    nested = oed.NestedSectors(problem, large, lengths, 1e7)
+    for parity in (+1, -1):
+        sector = oed.sector_basis(problem, small, parity, lengths)
+        one_body, contact = nested.restricted(sector, parity)
+        own = oed.hamiltonian(problem, sector, -1.5).to_dense()
+        assert sector.basis.dim < oed.sector_basis(problem, large, parity, lengths).basis.dim
+        assert np.allclose((one_body - 1.5 * contact).toarray(), own, atol=1e-12)
+        unit = oed.hamiltonian(problem, sector, 1.0).to_dense() - oed.hamiltonian(problem, sector, 0.0).to_dense()
+        assert np.allclose(contact.toarray(), unit, atol=1e-12)
+    with pytest.raises(ValueError, match="not contained"):
+        oed.sector_basis(problem, large, +1, lengths).basis.positions_in(oed.sector_basis(problem, small, +1, lengths).basis)
+
+
 def test_bad_parameters_and_unsupported_problems():
     problem = Problem.create(1, 1, 1.0)
     with pytest.raises(SpecError, match="param.truncation"):
