@@ -265,6 +265,10 @@ class Backend:
     check_params: ClassVar[dict[str, Any]] = {}
     # Extra libraries whose versions belong in the provenance (e.g. ("quspin",)).
     libraries: ClassVar[tuple[str, ...]] = ()
+    # Modules the sweep's task server imports once before its first task, besides this backend's own, so that
+    # every forked task inherits what they load (heavy imports; a module whose import warms compiled kernels).
+    # Their import must not raise: an error would stop the server.
+    preload: ClassVar[tuple[str, ...]] = ()
 
     # ------------------------------------------------------------------ to implement
     def supports(self, problem: Problem, params: dict[str, Any] | None = None) -> Support:

@@ -826,6 +826,7 @@ class OscillatorEDBackend(Backend):
         calibrated_on=((1, 1),),
     )
     check_params = {"cutoff": 12, "ladder": 3}
+    preload = ("trapbench.backends.oscillator_warmup",)
     parameters = (
         Parameter("truncation", str, "energy", "basis cutoff: 'energy' (E <= E_0 + cutoff) or 'orbital'", choices=("energy", "orbital")),
         Parameter(

@@ -162,23 +162,33 @@ def main(argv: list[str] | None = None) -> int:
 # ----------------------------------------------------------------------------- the parent
 
 _CONTEXT = None
+_PRELOAD: list[str] = list(BASE_PRELOAD)
 
 
 def context(preload: tuple[str, ...] = ()) -> multiprocessing.context.BaseContext:
-    """The forkserver context; ``preload`` (module names) is honoured until the server first starts."""
+    """The forkserver context; ``preload`` (module names) is added to what earlier calls asked for (a later call
+    without it, e.g. a task starting, keeps them), honoured until the server first starts."""
     global _CONTEXT
     if _CONTEXT is None:
         _CONTEXT = multiprocessing.get_context("forkserver")
-    _CONTEXT.set_forkserver_preload(list(dict.fromkeys(BASE_PRELOAD + tuple(preload))))
+    _PRELOAD.extend(name for name in preload if name not in _PRELOAD)
+    _CONTEXT.set_forkserver_preload(list(_PRELOAD))
     return _CONTEXT
 
 
 def backend_modules(names: list[str]) -> tuple[str, ...]:
-    """Module names of the installed backends among ``names`` (for the forkserver preload)."""
+    """Module names of the installed backends among ``names`` and the modules each declares in its ``preload``
+    (for the forkserver preload)."""
     from ..backends import registry
 
     targets = registry._targets()
-    return tuple(targets[n].split(":")[0] for n in names if n in targets)
+    modules = []
+    for name in names:
+        if name in targets:
+            modules.append(targets[name].split(":")[0])
+            with contextlib.suppress(Exception):  # a backend that fails to load fails in its task, with its message
+                modules += list(getattr(registry.get(name), "preload", ()))
+    return tuple(dict.fromkeys(modules))
 
 
 def default_method() -> str:

@@ -129,6 +129,17 @@ class RaisingToy(SleepToy):
         return 1 / 0
 
 
+class PreloadToy(SleepToy):
+    """Declares a module for the task server to preload; reports whether it was imported before its task began."""
+    name = "toy-preload"
+    parameters = ()
+    preload = ("trapbench_toys_warm",)
+
+    def compute(self, problem, params):
+        import sys
+        return Solution(energies=[0.0], diagnostics={"preloaded": "trapbench_toys_warm" in sys.modules})
+
+
 class ThreadsToy(SleepToy):
     """Reports the BLAS thread limit in force while it computes (diagnostics["blas_threads"])."""
     name = "toy-threads"
@@ -149,6 +160,7 @@ toy-flaky = trapbench_toys:FlakyToy
 toy-ranged = trapbench_toys:RangedToy
 toy-raise = trapbench_toys:RaisingToy
 toy-threads = trapbench_toys:ThreadsToy
+toy-preload = trapbench_toys:PreloadToy
 """
 
 
@@ -157,6 +169,7 @@ def toy_path(tmp_path_factory) -> Path:
     """A folder holding the toy backends as an installed distribution, put on sys.path for this module."""
     folder = tmp_path_factory.mktemp("toys")
     (folder / "trapbench_toys.py").write_text(TOY_SOURCE)
+    (folder / "trapbench_toys_warm.py").write_text('"""Preloaded by the task server for toy-preload."""\n')
     info = folder / "trapbench_toys-0.0.dist-info"
     info.mkdir()
     (info / "METADATA").write_text("Metadata-Version: 2.1\nName: trapbench-toys\nVersion: 0.0\n")

@@ -470,6 +470,44 @@ def test_a_fresh_interpreter_gives_the_forkserver_guarantees(toy_path):
         assert dead.status == "crashed" and "SIGABRT" in dead.error, (method, dead)
 
 
+def test_the_task_server_preloads_each_backends_module_and_its_declared_warm_up():
+    """``backend_modules`` lists a backend's module, then the modules its ``preload`` declares (oscillator-ed: a
+    warm-up whose import loads the ED engine's compiled kernels), each once; unknown names are skipped (their
+    tasks fail with their own message)."""
+    from trapbench.bench.runner import backend_modules
+
+    modules = backend_modules(["oscillator-ed", "two-body", "oscillator-ed", "no-such-backend"])
+    assert modules == ("trapbench.backends.oscillator_ed", "trapbench.backends.oscillator_warmup",
+                       "trapbench.backends.two_body")
+    # in a fresh interpreter (this one may have loaded the kernels already): the import alone loads them
+    probe = ("import trapbench.backends.oscillator_warmup; from trapbench.backends import fock_assembly;"
+             " print(len(fock_assembly._FILL.signatures) if fock_assembly._FILL else 0)")
+    loaded = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=300, check=True)
+    assert int(loaded.stdout.split()[-1]) >= 1
+
+
+def test_a_backends_preload_reaches_the_task_server_in_a_fresh_interpreter(toy_path):
+    """The task server imports each backend's declared ``preload`` before its first task: a task starting later
+    (which asks for the context again, without modules) must not reset the list. Checked in a fresh interpreter,
+    where the server starts for the first time."""
+    code = "\n".join([
+        "import sys",
+        f"sys.path.insert(0, {str(toy_path)!r})",
+        "from trapbench.bench.executor import Limits",
+        "from trapbench.bench.runner import FORKSERVER, backend_modules, context, run_isolated",
+        "from trapbench.problems.spec import Problem",
+        "context(backend_modules(['toy-preload']))",
+        "payload = {'backend': 'toy-preload', 'problem': Problem.create(1, 1, 0.0).to_dict(), 'params': {}}",
+        "outcome = run_isolated(payload, Limits(), method=FORKSERVER)",
+        "print(outcome.status, outcome.result['diagnostics']['preloaded'])",
+    ])
+    # the server is a new interpreter: it finds the toys through PYTHONPATH, as it would an installed backend
+    paths = [str(toy_path), *filter(None, [os.environ.get("PYTHONPATH")])]
+    env = os.environ | {"PYTHONPATH": os.pathsep.join(paths)}
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300, env=env)
+    assert done.stdout.split()[-2:] == ["ok", "True"], done.stderr[-2000:]
+
+
 def test_blas_thread_limit_reaches_the_backend_and_the_ed_engine(toy_path, tmp_path, monkeypatch):
     import numpy as np
     from threadpoolctl import threadpool_info, threadpool_limits
