@@ -137,6 +137,10 @@ def _forked_main(conn, payload: dict, sys_path: list[str] | None) -> None:
     _end_with(payload["watcher_pid"])
     if sys_path is not None:
         sys.path[:] = sys_path
+    with contextlib.suppress(Exception):  # a backend the server did not preload is imported before measuring too
+        from ..backends import registry
+
+        registry.get(payload["backend"])
     answer = _measured_solve(payload)  # a task that exits or dies here closes the pipe unanswered: "crashed"
     conn.send(answer)
     conn.close()
