@@ -466,13 +466,12 @@ class ProductHamiltonian:
     def _assemble(self, terms: list, limit: float) -> sp.csr_matrix | None:
         """The explicit CSR matrix (``fock_assembly``) of one-body part plus g sum_k U_k (x) D_k, or None;
         ``terms``: the built (U_k, D_k)."""
-        n_u, n_d = self.basis.shape
         pairs = [(self.g, up, down) for up, down in terms]
         if not self._diag_one_body:
-            pairs += [(1.0, self._h_up, sp.identity(n_d, format="csr")), (1.0, sp.identity(n_u, format="csr"), self._h_down_t.T)]
+            pairs += self._one_body_terms()
         matrix = fock_assembly.assemble(self.basis, pairs, limit)
         if matrix is not None and self._diag_one_body:
-            matrix = (matrix + sp.diags(self._one_body_diag.reshape(-1)[self.basis.flat])).tocsr()
+            matrix = (matrix + self.one_body_matrix()).tocsr()
         return matrix
 
     def _contact_terms(self, c: ContactFactorization) -> list:
@@ -550,9 +549,12 @@ class ProductHamiltonian:
         """The one-body part sum_s h_s on the basis as an explicit CSR matrix."""
         if self._diag_one_body:
             return sp.diags(self._one_body_diag.reshape(-1)[self.basis.flat]).tocsr()
+        return fock_assembly.assemble(self.basis, self._one_body_terms(), np.inf)
+
+    def _one_body_terms(self) -> list:
+        """h_up (x) 1 + 1 (x) h_down as assembly terms (s, O_up, O_down), for a one-body part that is not diagonal."""
         n_u, n_d = self.basis.shape
-        pairs = [(1.0, self._h_up, sp.identity(n_d, format="csr")), (1.0, sp.identity(n_u, format="csr"), self._h_down_t.T)]
-        return fock_assembly.assemble(self.basis, pairs, np.inf)
+        return [(1.0, self._h_up, sp.identity(n_d, format="csr")), (1.0, sp.identity(n_u, format="csr"), self._h_down_t.T)]
 
     # -------------------------------------------------------------- action
     def apply_matrix(self, psi: np.ndarray) -> np.ndarray:

@@ -85,7 +85,12 @@ def _status_kib(key: str) -> int:
 
 
 def _measured_solve(payload: dict) -> tuple:
-    """(status, error, error_type, result, cpu seconds, peak bytes) of the solve in this process."""
+    """(status, error, error_type, result, cpu seconds, peak bytes) of the solve in this process; the backend is
+    imported before measuring (a no-op where the task server preloaded it), so no task is charged for its import."""
+    with contextlib.suppress(Exception):  # a backend that fails to load fails in the measured solve, with its message
+        from ..backends import registry
+
+        registry.get(payload["backend"])
     _reset_peak_rss()
     before = resource.getrusage(resource.RUSAGE_SELF)
     status, error, error_type, result = solve_payload(payload["backend"], payload["problem"], payload["params"],
@@ -137,10 +142,6 @@ def _forked_main(conn, payload: dict, sys_path: list[str] | None) -> None:
     _end_with(payload["watcher_pid"])
     if sys_path is not None:
         sys.path[:] = sys_path
-    with contextlib.suppress(Exception):  # a backend the server did not preload is imported before measuring too
-        from ..backends import registry
-
-        registry.get(payload["backend"])
     answer = _measured_solve(payload)  # a task that exits or dies here closes the pipe unanswered: "crashed"
     conn.send(answer)
     conn.close()
@@ -152,10 +153,6 @@ def main(argv: list[str] | None = None) -> int:
     payload_path, answer_path = argv if argv is not None else sys.argv[1:3]
     payload = json.loads(Path(payload_path).read_text(encoding="utf-8"))
     _end_with(payload["watcher_pid"])
-    with contextlib.suppress(Exception):  # import the backend before measuring, as the forkserver does
-        from ..backends import registry
-
-        registry.get(payload["backend"])
     answer = _measured_solve(payload)
     partial = Path(answer_path + ".part")
     partial.write_text(json.dumps(answer), encoding="utf-8")
