@@ -483,9 +483,17 @@ def regraded_table(table: pd.DataFrame, suites=None) -> pd.DataFrame:
 
     The shipped table keeps each measurement (energy, error bar, cost) with the grade it had when it was built;
     when the reference dataset grows, the same measurements can be graded again without the stores they came
-    from. Each row's problem is found by name, species and coupling among the points of ``suites`` (default:
-    every built-in suite, since the map is built from stores that also hold other suites' runs); a row that no
-    suite describes raises ``ValueError``.
+    from (``table_measurements``).
+    """
+    return measurement_table(graded_frame(table_measurements(table, suites)))
+
+
+def table_measurements(table: pd.DataFrame, suites=None) -> pd.DataFrame:
+    """The ungraded measurements behind a method-map table, as rows of a results frame.
+
+    Each row's problem is found by name, species and coupling among the points of ``suites`` (default: every
+    built-in suite, since the map is built from stores that also hold other suites' runs); a row that no suite
+    describes raises ``ValueError``.
     """
     from .suite import builtin_suites, load_suite
 
@@ -508,7 +516,22 @@ def regraded_table(table: pd.DataFrame, suites=None) -> pd.DataFrame:
     frame["error_estimate"] = table["error_bar"].to_numpy()  # the bar as graded (energy_error, else an estimate)
     frame["problem"] = [p.to_dict() for p in problems]
     frame["problem_key"] = [p.key for p in problems]
-    return measurement_table(graded_frame(frame))
+    return frame
+
+
+def updated_table(store_frame: pd.DataFrame, table: pd.DataFrame, suites=None) -> tuple[pd.DataFrame, list[str]]:
+    """A method-map table with the backends of ``store_frame`` measured anew and the others' rows of ``table`` kept.
+
+    For a backend that changed (a new version, a faster engine) only its tasks need to run again: every row of
+    ``table`` whose backend appears in ``store_frame`` is dropped (a backend's rows then come from one run), the
+    rest are pooled with the new results, and the whole is graded again (``graded_frame``), so that the dataset's
+    agreement rule sees the kept and the new values together. Returns the table and the kept backends' names.
+    """
+    replaced = set(store_frame["backend"])
+    kept = table[~table["backend"].isin(replaced)].reset_index(drop=True)
+    parts = [store_frame] + ([table_measurements(kept, suites)] if not kept.empty else [])
+    pooled = pd.concat(parts, ignore_index=True)
+    return measurement_table(graded_frame(pooled)), sorted(set(kept["backend"]))
 
 
 def measurement_table(frame: pd.DataFrame) -> pd.DataFrame:

@@ -48,7 +48,7 @@ import json
 import math
 import tomllib
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from importlib import resources
 from pathlib import Path
 from typing import Any
@@ -165,6 +165,18 @@ class Suite:
                         task = Task(pname, point, plan.name, dict(params), plan.timeout_s, plan.memory_mib)
                         tasks.setdefault(task.key, task)
         return list(tasks.values())
+
+    def restricted_to(self, backends: list[str]) -> "Suite":
+        """The same suite with only the named backends' plans (e.g. to run again what one backend changed);
+        the tasks keep their keys, so their results land beside the suite's other results in a store."""
+        named = {plan.name for plan in self.backends}
+        for name in backends:
+            if name not in named:
+                close = difflib.get_close_matches(name, sorted(named), n=1, cutoff=0.4)
+                hint = f"; did you mean '{close[0]}'?" if close else ""
+                raise SpecError("--backend", f"suite '{self.name}' runs no backend '{name}' (it runs "
+                                             f"{', '.join(sorted(named))}){hint}")
+        return replace(self, backends=tuple(plan for plan in self.backends if plan.name in backends))
 
     def tolerance(self, quantity: str, backend: str | None = None) -> Tolerance:
         """The tolerance for ``quantity`` (a backend's own entry first, then the suite's, then the default)."""

@@ -344,3 +344,62 @@ def test_regrading_the_shipped_map_reproduces_its_grades_and_refuses_unknown_row
     stranger = part.iloc[[0]].assign(problem_name="a problem of no suite")
     with pytest.raises(ValueError, match="no built-in suite has this problem.*trapbench map --store"):
         regraded_table(stranger)
+
+
+def test_map_update_replaces_only_the_rerun_backends_and_grades_kept_rows_with_the_new_ones(tmp_path, monkeypatch,
+                                                                                           capsys):
+    """`trapbench map --store NEW --keep-shipped`: the backends NEW holds are measured anew (all their old rows go),
+    every other backend's shipped rows stay as they were measured, and the pooled table is graded again together.
+    The kept oscillator-ed 2+1 rows at mass ratio 20/3 are graded by the shipped reference dataset at its couplings
+    (-3, -1, 2), by the new three-body results at g = -2, and at g = 10, where the three-body rows are gone, by
+    the kept lattice-dmrg rows (the dataset's agreement rule on the pooled results): never by themselves."""
+    import textwrap
+
+    from trapbench.bench.advisor import shipped_table, table_to_json
+    from trapbench.bench.cli import main
+    from trapbench.bench.commands import method_map
+    from trapbench.bench.suite import load_suite
+    from trapbench.bench.sweep import SweepOptions, run_sweep
+
+    shipped = shipped_table()
+    if shipped.empty:
+        pytest.skip("this installation ships no method map")
+    base = shipped[shipped["problem_name"] == "2+1 m=20/3"].drop(columns=["measurement_source"])
+    assert {"three-body", "oscillator-ed", "lattice-dmrg"} <= set(base["backend"])
+    base_path = tmp_path / "shipped.json"
+    base_path.write_text(json.dumps(table_to_json(base, ["old.sqlite"]), default=str))
+    monkeypatch.setattr(method_map, "default_output", lambda: base_path)
+
+    suite_path = tmp_path / "rerun.toml"
+    suite_path.write_text(textwrap.dedent("""
+        name = "map"
+        [[problems]]
+        name = "2+1 m=20/3"
+        up = { count = 2, mass = 6.666666666666667 }
+        down = { count = 1, mass = 1.0 }
+        interaction = { g = [-2.0] }
+        [[backends]]
+        name = "three-body"
+        ladder = [{ order = 10 }, { order = 14 }]
+        """))
+    store = tmp_path / "rerun.sqlite"
+    assert set(run_sweep(load_suite(suite_path), SweepOptions(store_path=store, progress=False)).statuses) == {"ok"}
+    output = tmp_path / "updated.json"
+    assert main(["map", "--store", str(store), "--keep-shipped", "--output", str(output)]) == 0
+    assert "measured anew: three-body" in capsys.readouterr().out
+    data = json.loads(output.read_text())
+    assert data["built_from"][0] == "rerun.sqlite" and "built from old.sqlite" in data["built_from"][1]
+    table = table_from_json(data)
+    new = table[table["backend"] == "three-body"]
+    assert len(new) == 2 and (new["g"] == -2.0).all()  # the old three-body rows at other couplings are gone
+    kept = table[table["backend"] != "three-body"].sort_values(["backend", "g", "params_text"]).reset_index(drop=True)
+    old = base[base["backend"] != "three-body"].sort_values(["backend", "g", "params_text"]).reset_index(drop=True)
+    assert list(kept["energy"]) == list(old["energy"]) and list(kept["solve_cpu_s"]) == list(old["solve_cpu_s"])
+    oscillator = kept[kept["backend"] == "oscillator-ed"].set_index("g")["ref_source"]
+    assert oscillator.loc[[-3.0, -1.0, 2.0]].str.contains("reference dataset v").all()
+    assert oscillator.loc[[-2.0]].str.contains("results of three-body in the same store").all()
+    assert oscillator.loc[[10.0]].str.contains("results of lattice-dmrg in the same store").all()
+    old_grades = base[base["backend"] == "oscillator-ed"].set_index("g")["ref_source"]
+    assert old_grades.loc[[10.0]].str.contains("results of three-body").all()  # before: the dropped rows graded it
+    assert main(["map", "--regrade", "--keep-shipped", "--dry-run"]) == 2
+    assert "--keep-shipped: pools stores with the shipped table" in capsys.readouterr().err

@@ -256,6 +256,26 @@ def test_malformed_suites_name_the_field(toy_path, body, field):
     assert info.value.field == field, str(info.value)
 
 
+def test_a_suite_restricted_to_some_backends_keeps_their_tasks_and_keys(toy_path):
+    """`trapbench sweep SUITE --backend NAME`: only that backend's plans run, under the task keys the whole suite
+    gives them (so their results pool with the rest in a store); an unknown name is refused with a suggestion."""
+    suite = parse_suite(suite_text(FREE_PROBLEMS + """
+        [[backends]]
+        name = "toy-exact"
+        ladder = [{ cutoff = 2 }, { cutoff = 4 }]
+        [[backends]]
+        name = "toy-sleep"
+        """))
+    whole = {t.key: t for t in suite.tasks()}
+    only = suite.restricted_to(["toy-exact"]).tasks()
+    assert len(only) == 4 and {t.backend for t in only} == {"toy-exact"}
+    assert all(whole[t.key] == t for t in only)
+    assert len(whole) > len(only)
+    with pytest.raises(SpecError, match="runs no backend 'toy-exac'.*did you mean 'toy-exact'") as info:
+        suite.restricted_to(["toy-exac"])
+    assert info.value.field == "--backend"
+
+
 def test_unknown_builtin_suite_lists_the_builtin_ones():
     with pytest.raises(SpecError, match="built-in"):
         load_suite("no-such-suite")
@@ -734,6 +754,10 @@ def test_sweep_export_and_advise_commands(toy_path, tmp_path, capsys):
     assert "Recommended: toy-exact with cutoff=3, work=0" in out and "| 0.04444 |" in out
     assert main(["advise", *store, "--no-shipped", "--up", "2", "--down", "1", "--g", "0", "--accuracy", "1e-9"]) == 1
     assert main(["sweep", str(tmp_path / "absent.toml"), *store]) == 2
+    capsys.readouterr()
+    assert main(["sweep", str(suite_path), *store, "--no-progress", "--backend", "toy-exact", "--tables", "none"]) == 0
+    assert main(["sweep", str(suite_path), *store, "--backend", "toy-exac"]) == 2
+    assert "--backend: suite" in capsys.readouterr().err
 
 
 @pytest.mark.slow  # three pytest sessions in subprocesses, ~13 s

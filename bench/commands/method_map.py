@@ -3,12 +3,16 @@
     trapbench sweep map --store map.sqlite --workers 2
     trapbench map --store map.sqlite [--store more.sqlite ...]   # writes problems/data/method_map.json
     trapbench map --regrade                                       # grade the shipped rows again (dataset grew)
+    trapbench map --store osc.sqlite --keep-shipped               # one backend rerun, the other rows kept
 
 Every successful ground-state result of the stores is graded (``advisor.graded_frame``: exact references,
 the shipped reference dataset, and the dataset's agreement rule applied to the stores' own results, never
 grading a method by its own family) and written as one compact JSON table with its version, the neighbour
 rule and the stores it came from. ``--regrade`` grades the rows of the shipped table again against today's
 references (``advisor.regraded_table``), e.g. after the reference dataset gained points, without the stores.
+``--keep-shipped`` replaces only the backends the stores hold and keeps the shipped rows of the others
+(``advisor.updated_table``), e.g. after one backend changed version and only its tasks of the map suite ran
+again; everything is graded again together, and the file names the kept backends among its sources.
 """
 
 from __future__ import annotations
@@ -28,6 +32,9 @@ def register(parser: argparse.ArgumentParser) -> None:
                         help="a results store of the map sweep (repeatable: every store's results are pooled)")
     source.add_argument("--regrade", action="store_true",
                         help="grade the shipped table's measurements again against today's references (no store needed)")
+    parser.add_argument("--keep-shipped", action="store_true",
+                        help="with --store: keep the shipped rows of every backend the stores do not hold (rerun one"
+                             " backend's tasks of the map suite, keep the rest)")
     parser.add_argument("--suite", default=None,
                         help="use only the results of this suite (default: every stored result)")
     parser.add_argument("--output", metavar="PATH",
@@ -47,18 +54,17 @@ def run(args: argparse.Namespace) -> int:
     import pandas as pd
 
     from ...problems.errors import SpecError
-    from ..advisor import graded_frame, measurement_table, regraded_table, table_from_json
+    from ..advisor import graded_frame, measurement_table, regraded_table, updated_table
     from ..store import Store
 
     if args.regrade:
         if args.suite:
             raise SpecError("--suite", "selects results of a store; --regrade grades every row of the shipped table,"
                                        " drop --suite")
-        path = default_output()
-        if not path.is_file():
-            raise SpecError("--regrade", "this installation ships no method map; build one with --store")
-        data = json.loads(path.read_text(encoding="utf-8"))
-        shipped = table_from_json(data)
+        if args.keep_shipped:
+            raise SpecError("--keep-shipped", "pools stores with the shipped table; --regrade already grades every"
+                                              " shipped row, drop --keep-shipped")
+        data, shipped = _shipped("--regrade")
         before = (shipped["error_basis"] == "reference").sum()
         table = regraded_table(shipped)
         print(f"regraded {len(table)} rows: {(table['error_basis'] == 'reference').sum()} judged against a reference"
@@ -74,11 +80,33 @@ def run(args: argparse.Namespace) -> int:
     if frame is None:
         raise SpecError("--suite" if args.suite else "--store", "the stores hold no results"
                         + (f" of suite '{args.suite}'" if args.suite else ""))
-    table = measurement_table(graded_frame(frame))
+    sources = [Path(p).name for p in args.store]
+    if args.keep_shipped:
+        data, shipped = _shipped("--keep-shipped")
+        table, kept = updated_table(frame, shipped)
+        if kept:
+            sources.append(f"rows of {', '.join(kept)} from the method map of {data.get('created', '?')}, built from "
+                           + ", ".join(data.get("built_from", [])))
+        print(f"kept the shipped rows of {', '.join(kept) or 'no backend'}; measured anew: "
+              f"{', '.join(sorted(set(frame['backend'])))}")
+    else:
+        table = measurement_table(graded_frame(frame))
     if table.empty:
         print("no successful ground-state result in these stores")
         return 1
-    return _write(table, [Path(p).name for p in args.store], args)
+    return _write(table, sources, args)
+
+
+def _shipped(option: str):
+    """The shipped method map's file contents and rows; a clear error where this installation ships none."""
+    from ...problems.errors import SpecError
+    from ..advisor import table_from_json
+
+    path = default_output()
+    if not path.is_file():
+        raise SpecError(option, "this installation ships no method map; build one with --store")
+    data = json.loads(path.read_text(encoding="utf-8"))
+    return data, table_from_json(data)
 
 
 def _write(table, sources: list[str], args: argparse.Namespace) -> int:

@@ -47,6 +47,8 @@ def register(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("suite", help="a built-in suite name (quick, full) or a suite TOML file")
     add_store_argument(parser)
     add_execution_arguments(parser)
+    parser.add_argument("--backend", action="append", metavar="NAME",
+                        help="run only this backend's tasks of the suite (repeatable; default: every backend)")
     parser.add_argument("--tables", choices=("markdown", "none"), default="markdown",
                         help="print the agreement and accuracy-vs-cost tables after the sweep (default markdown)")
 
@@ -78,6 +80,8 @@ def run(args: argparse.Namespace) -> int:
     from ..tables import suite_tables_markdown
 
     suite = load_suite(args.suite)
+    if args.backend:
+        suite = suite.restricted_to(args.backend)
     report = run_sweep(suite, options_from(args))
     print(report.summary(), file=sys.stderr)
     if args.tables == "markdown":
