@@ -306,12 +306,12 @@ class NestedSectors:
             parts = None
             if sector.basis.dim:
                 m_u, m_d = sector.n_orbitals
+                factors = contact_factorization(sector)
                 contact = fock_ed.ProductHamiltonian(
-                    sector.basis, np.zeros((m_u, m_u)), np.zeros((m_d, m_d)), 1.0, contact_factorization(sector),
-                    assemble_limit=self.limit,
+                    sector.basis, np.zeros((m_u, m_u)), np.zeros((m_d, m_d)), 1.0, factors, assemble_limit=self.limit,
                 ).matrix
                 if contact is not None:
-                    parts = (sector, hamiltonian(self.problem, sector, 0.0).one_body_matrix(), contact)
+                    parts = (sector, hamiltonian(self.problem, sector, 0.0, factors).one_body_matrix(), contact)
             self._parts[parity] = parts
         return self._parts[parity]
 
