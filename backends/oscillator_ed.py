@@ -114,6 +114,10 @@ rounding, measured 10-20 % less CPU per default solve on 2+1 ... 3+1). Measured 
 three levels against ``three-body`` (30 problems, one core, another job on the second): median error of the 90
 levels 3.3e-5 -> 5.9e-6; ground states within 1e-4 / 1e-5 / 1e-6: 29 / 20 / 8 of 30 (version 9: 25 / 10 / 3); CPU s
 median 8.9, largest 20 (before the restriction above and the cheaper degeneracy check of ``fock_ed``).
+Version 11 searches the orbital lengths at cutoff 12 instead of 8 where a heavy majority at least 4 times
+heavier than its partner is repelled (``length_search_cutoff``); elsewhere it is version 10. On the same grid:
+median error 5.5e-6, ground states within 1e-4 / 1e-5 / 1e-6: 29 / 23 / 9 of 30, all 90 levels within twice their
+bars (median bar 7.6x the error); CPU s median 4.4, largest 11.1.
 
 Centre-of-mass copies (``com_copies``): with a common trap frequency, the energy truncation, the trap's
 orbitals and a bare or running contact coupling, N_com commutes with the truncated Hamiltonian
@@ -166,6 +170,10 @@ ASSEMBLE_LIMIT = 2e7
 # cusp), and lengths found at 8 gave a monotonic renormalized ladder for the 20/3 trimer where those
 # found at 16 made the energy turn around
 LENGTH_SEARCH_CUTOFF = 8
+# ... except where a heavy majority at least this many times heavier than its partner is repelled: there lengths
+# found at 12 hold the light particle's narrower distribution better (``length_search_cutoff``)
+REPELLED_SEARCH_CUTOFF = 12
+REPELLED_SEARCH_MASS_RATIO = 4.0
 
 
 # ----------------------------------------------------------------------------- basis
@@ -641,6 +649,25 @@ def two_pairs_can_bind(problem: Problem) -> bool:
     return problem.coupling < 0 and problem.up.count >= 2 and problem.down.count >= 2
 
 
+def length_search_cutoff(problem: Problem) -> int:
+    """The cutoff at which 'auto' searches the orbitals' lengths: 12 where a heavy majority at least 4 times heavier
+    than its partner is repelled (``heavy_majority_repels``), else 8.
+
+    Measured with defaults, three levels each, against ``three-body`` on 2+1 with the pair heavier (searches at 8
+    and at 12 side by side, 2026-12-04): at mass ratios 4, 5, 20/3 and 10, g = 0.5, 2, 5, 20, the search at 12
+    lowered most errors (ground states, 20/3: 1.3e-6 / 1.3e-5 / 2.5e-5 / 3.3e-5 -> 2.4e-7 / 2.3e-6 / 5.3e-6 /
+    7.2e-6 for g = 0.5 / 2 / 5 / 20, first excited at g = 5 / 20: 1.4e-4 / 2.4e-4 -> 2.2e-5 / 4.0e-5; 10, g = 20:
+    5.2e-5 -> 2.2e-5, first excited 8.5e-4 -> 2.4e-4) with every level within twice its bar; at mass ratio 2 it
+    raised them (g = 5: 1.9e-8 -> 6.7e-6), and 3 was mixed (g = 2 worse, g = 5 and 20 better), hence the
+    threshold. Not for g < 0: a search at 12 put a level of the 20/3 trimer 2.6 bars off
+    (``bench_oscillator_results.md``), and a search at 20 gave a bar 13x too narrow at g = 0.5.
+    """
+    if not heavy_majority_repels(problem):
+        return LENGTH_SEARCH_CUTOFF
+    heavy, light = (problem.up, problem.down) if problem.up.mass > problem.down.mass else (problem.down, problem.up)
+    return REPELLED_SEARCH_CUTOFF if heavy.mass >= REPELLED_SEARCH_MASS_RATIO * light.mass else LENGTH_SEARCH_CUTOFF
+
+
 def basis_lengths(problem: Problem, choice: str, kind: str, cutoff: int, parities) -> tuple[tuple[float, float], dict]:
     """The orbitals' length per species: the trap lengths, or those minimizing the bare ground energy
     at ``cutoff`` (``oscillator_scaling.choose_lengths``).
@@ -809,7 +836,7 @@ def derived_scalar_errors(problem: Problem, energy_error, trap_error, delta_erro
 
 class OscillatorEDBackend(Backend):
     name = "oscillator-ed"
-    version = "10"
+    version = "11"
     summary = (
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
@@ -944,7 +971,7 @@ class OscillatorEDBackend(Backend):
                 "a heavy-heavy-light trimer may bind here and the trap orbitals describe it poorly;"
                 " basis_lengths = 'auto' chooses narrower orbitals"
             )
-        search_cutoff = min(cutoffs[0], LENGTH_SEARCH_CUTOFF)
+        search_cutoff = min(cutoffs[0], length_search_cutoff(problem))
         # the effective interaction is built in the trap orbitals ('auto' means them here; it binds pairs itself)
         length_choice = "trap" if effective else params["basis_lengths"]
         lengths, length_search = basis_lengths(problem, length_choice, kind, search_cutoff, parities)

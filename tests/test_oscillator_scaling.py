@@ -152,6 +152,28 @@ def test_default_lengths_bring_a_repelled_heavy_pair_within_1e_4_of_three_body()
 
 
 @pytest.mark.slow
+def test_default_lengths_bring_a_repelled_pair_of_mass_ratio_20_3_within_1e_5_of_three_body():
+    """2+1 with the pair 20/3 times as heavy, g = 5, default parameters: reference the shipped dataset's level from
+    ``three-body``. The lengths are searched at cutoff 12 there (``length_search_cutoff``): measured 5.3e-6 off,
+    against 2.5e-5 with the search at cutoff 8 (version 10). The default result must be within 1e-5 and within
+    twice its bar."""
+    from trapbench.backends.oscillator_ed import length_search_cutoff
+    from trapbench.problems import dataset
+
+    level = dataset.load().index[dataset.physics_key(2, 1, 20 / 3, 1.0, 5.0)].levels[0]
+    assert level.methods[0].backend == "three-body" and level.uncertainty < 1e-9
+    problem = Problem.create(2, 1, 5.0, mass_up=20 / 3, states=1)
+    assert length_search_cutoff(problem) == 12
+    assert length_search_cutoff(Problem.create(2, 1, -3.0, mass_up=20 / 3)) == 8  # the trimer keeps the search at 8
+    assert length_search_cutoff(Problem.create(2, 1, 5.0, mass_up=2.0)) == 8  # and a pair only twice as heavy
+    assert length_search_cutoff(Problem.create(1, 2, 5.0, mass_down=20 / 3)) == 12  # the mirror problem
+    with threadpool_limits(1):
+        result = get("oscillator-ed").solve(problem)
+    assert result.diagnostics["basis_length_search"]["cutoff"] == 12
+    assert abs(result.energies[0] - level.value) <= min(1e-5, 2 * result.energy_errors[0])
+
+
+@pytest.mark.slow
 def test_two_bound_pairs_are_found_within_their_error_bar():
     """2+2, equal masses, g = -3 (two pairs bound): with default parameters the ground energy lies within twice its
     error bar of the reference dataset's value for oscillator-ed, which comes from the other method family only
