@@ -297,7 +297,7 @@ def test_command_reads_the_store_and_empty_store_says_what_to_run(built, tmp_pat
                  "--output", str(partial), "--from-store"]) == 0
     text = (partial / "report.md").read_text()
     total = len(set(built["keys"])) + 1
-    assert f"**Partial: 1 of the suites' {total} tasks have not been run yet (`trapbench report --suite" in text
+    assert f"**Partial: 1 of the suites' {total} tasks (two-body 1) have not been run yet (`trapbench report --suite" in text
     empty = tmp_path / "empty"
     code = main(["report", "--suite", str(built["suite_path"]), "--store", str(tmp_path / "none.sqlite"),
                  "--output", str(empty), "--from-store"])

@@ -42,15 +42,16 @@ def run(args: argparse.Namespace) -> int:
     suites = [load_suite(name) for name in (args.suite or list(DEFAULT_SUITES))]
     options = options_from(args)
     start = time.perf_counter()
-    keys: set[str] = set()
+    keys: dict[str, str] = {}  # task key -> backend, so that a partial report can say whose tasks are missing
     interrupted = False
     for suite in suites:
+        backends = {t.key: t.backend for t in limited_tasks(suite, options)}
         if args.from_store:
-            keys |= {t.key for t in limited_tasks(suite, options)}
+            keys.update(backends)
             continue
         sweep = run_sweep(suite, options)
         print(sweep.summary(), file=sys.stderr)
-        keys |= set(sweep.task_keys)
+        keys.update({key: backends.get(key, "") for key in sweep.task_keys})
         if sweep.interrupted:
             interrupted = True
             break

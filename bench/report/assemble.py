@@ -8,6 +8,8 @@ Every judgement of accuracy follows ``bench.verdicts``.
 
 from __future__ import annotations
 
+from collections import Counter
+from collections.abc import Iterable, Mapping
 import datetime as _dt
 import json
 from pathlib import Path
@@ -38,19 +40,25 @@ def _targets_text(targets=MAP_TARGETS) -> str:
     return ", ".join(target_label(t) for t in targets)
 
 
-def coverage_text(frame: pd.DataFrame, task_keys: set[str] | None, command: str | None) -> str:
-    """How much of the suites the store holds: a report of a partial sweep says so, with the way to finish it."""
+def coverage_text(frame: pd.DataFrame, task_keys: Iterable[str] | None, command: str | None) -> str:
+    """How much of the suites the store holds: a report of a partial sweep says so, with the way to finish it.
+    ``task_keys`` may map each key to its backend; the missing tasks are then counted per backend."""
     if task_keys is None:
         return ""
-    missing = len(set(task_keys) - set(frame["task_key"]))
+    stored = set(frame["task_key"])
+    missing = [key for key in task_keys if key not in stored]
     if not missing:
         return f" The store holds every one of the suites' {len(task_keys)} tasks."
+    whose = ""
+    if isinstance(task_keys, Mapping):
+        counts = Counter(task_keys[key] for key in missing)
+        whose = " (" + ", ".join(f"{backend} {n}" for backend, n in sorted(counts.items())) + ")"
     finish = f" (`{command}` without `--from-store` runs them; stored results are kept)" if command else ""
-    return (f" **Partial: {missing} of the suites' {len(task_keys)} tasks have not been run yet{finish};"
+    return (f" **Partial: {len(missing)} of the suites' {len(task_keys)} tasks{whose} have not been run yet{finish};"
             " every table below covers only the stored ones.**")
 
 
-def introduction(frame: pd.DataFrame, store, command: str | None, task_keys: set[str] | None = None) -> Paragraph:
+def introduction(frame: pd.DataFrame, store, command: str | None, task_keys: Iterable[str] | None = None) -> Paragraph:
     statuses = frame.drop_duplicates("task_key")["status"].value_counts()
     return Paragraph(
         f"Generated {_dt.datetime.now(_dt.UTC).strftime('%Y-%m-%d %H:%M UTC')} from the results store"
@@ -192,7 +200,7 @@ def failures_section(document: Document, frame: pd.DataFrame) -> None:
         document.add(Table(failures, "Status and first line of the error of each task that did not succeed.", "failures"))
 
 
-def machine_table(store, task_keys: set[str] | None) -> pd.DataFrame:
+def machine_table(store, task_keys: Iterable[str] | None) -> pd.DataFrame:
     """The runs that produced the results shown: host, CPU, cores, git commit, library versions."""
     runs = store.runs_frame()
     tasks = store.tasks_frame()
@@ -211,7 +219,7 @@ def machine_table(store, task_keys: set[str] | None) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def provenance_section(document: Document, store, task_keys: set[str] | None) -> None:
+def provenance_section(document: Document, store, task_keys: Iterable[str] | None) -> None:
     document.add(Heading(2, "Machine, library versions and source revision"),
                  Table(machine_table(store, task_keys), "The sweeps whose results this report shows (recorded by the"
                        " store with each run).", "machine"))
@@ -223,12 +231,13 @@ def provenance_section(document: Document, store, task_keys: set[str] | None) ->
                            f" {library_version('matplotlib')}."))
 
 
-def build_document(store, folder: Path, suite=None, task_keys: set[str] | None = None,
+def build_document(store, folder: Path, suite=None, task_keys: Iterable[str] | None = None,
                    title: str | None = None, command: str | None = None) -> Document:
     """Compose the report, writing its figures into ``folder/figures``.
 
     ``suite`` supplies the tolerances (and the title unless ``title`` is given); ``task_keys`` limits
-    the report to those tasks (None: every stored result); ``command`` is the command line that
+    the report to those tasks (None: every stored result; a mapping key -> backend lets a partial report say
+    whose tasks are missing); ``command`` is the command line that
     regenerates the report, quoted at its top.
     """
     raw = store.results_frame(keys=list(task_keys) if task_keys is not None else None)
@@ -259,7 +268,7 @@ def _clear(folder: Path, pattern: str) -> None:
             old.unlink()
 
 
-def write_report(store, output: str | Path, suite=None, task_keys: set[str] | None = None,
+def write_report(store, output: str | Path, suite=None, task_keys: Iterable[str] | None = None,
                  title: str | None = None, command: str | None = None) -> list[Path]:
     """Write report.md, report.html, figures/*.png and tables/*.csv into ``output``; returns the paths."""
     folder = Path(output)
