@@ -9,7 +9,7 @@ Every judgement of accuracy follows ``bench.verdicts``.
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Iterable, Mapping
+from collections.abc import Collection, Mapping
 import datetime as _dt
 import json
 from pathlib import Path
@@ -40,7 +40,7 @@ def _targets_text(targets=MAP_TARGETS) -> str:
     return ", ".join(target_label(t) for t in targets)
 
 
-def coverage_text(frame: pd.DataFrame, task_keys: Iterable[str] | None, command: str | None) -> str:
+def coverage_text(frame: pd.DataFrame, task_keys: Collection[str] | None, command: str | None) -> str:
     """How much of the suites the store holds: a report of a partial sweep says so, with the way to finish it.
     ``task_keys`` may map each key to its backend; the missing tasks are then counted per backend."""
     if task_keys is None:
@@ -58,7 +58,7 @@ def coverage_text(frame: pd.DataFrame, task_keys: Iterable[str] | None, command:
             " every table below covers only the stored ones.**")
 
 
-def introduction(frame: pd.DataFrame, store, command: str | None, task_keys: Iterable[str] | None = None) -> Paragraph:
+def introduction(frame: pd.DataFrame, store, command: str | None, task_keys: Collection[str] | None = None) -> Paragraph:
     statuses = frame.drop_duplicates("task_key")["status"].value_counts()
     return Paragraph(
         f"Generated {_dt.datetime.now(_dt.UTC).strftime('%Y-%m-%d %H:%M UTC')} from the results store"
@@ -200,7 +200,7 @@ def failures_section(document: Document, frame: pd.DataFrame) -> None:
         document.add(Table(failures, "Status and first line of the error of each task that did not succeed.", "failures"))
 
 
-def machine_table(store, task_keys: Iterable[str] | None) -> pd.DataFrame:
+def machine_table(store, task_keys: Collection[str] | None) -> pd.DataFrame:
     """The runs that produced the results shown: host, CPU, cores, git commit, library versions."""
     runs = store.runs_frame()
     tasks = store.tasks_frame()
@@ -219,7 +219,7 @@ def machine_table(store, task_keys: Iterable[str] | None) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def provenance_section(document: Document, store, task_keys: Iterable[str] | None) -> None:
+def provenance_section(document: Document, store, task_keys: Collection[str] | None) -> None:
     document.add(Heading(2, "Machine, library versions and source revision"),
                  Table(machine_table(store, task_keys), "The sweeps whose results this report shows (recorded by the"
                        " store with each run).", "machine"))
@@ -231,7 +231,7 @@ def provenance_section(document: Document, store, task_keys: Iterable[str] | Non
                            f" {library_version('matplotlib')}."))
 
 
-def build_document(store, folder: Path, suite=None, task_keys: Iterable[str] | None = None,
+def build_document(store, folder: Path, suite=None, task_keys: Collection[str] | None = None,
                    title: str | None = None, command: str | None = None) -> Document:
     """Compose the report, writing its figures into ``folder/figures``.
 
@@ -268,7 +268,7 @@ def _clear(folder: Path, pattern: str) -> None:
             old.unlink()
 
 
-def write_report(store, output: str | Path, suite=None, task_keys: Iterable[str] | None = None,
+def write_report(store, output: str | Path, suite=None, task_keys: Collection[str] | None = None,
                  title: str | None = None, command: str | None = None) -> list[Path]:
     """Write report.md, report.html, figures/*.png and tables/*.csv into ``output``; returns the paths."""
     folder = Path(output)
