@@ -520,18 +520,30 @@ def table_measurements(table: pd.DataFrame, suites=None) -> pd.DataFrame:
 
 
 def updated_table(store_frame: pd.DataFrame, table: pd.DataFrame, suites=None) -> tuple[pd.DataFrame, list[str]]:
-    """A method-map table with the backends of ``store_frame`` measured anew and the others' rows of ``table`` kept.
+    """A method-map table with the results of ``store_frame`` in place of the rows of ``table`` they measure anew.
 
-    For a backend that changed (a new version, a faster engine) only its tasks need to run again: every row of
-    ``table`` whose backend appears in ``store_frame`` is dropped (a backend's rows then come from one run), the
-    rest are pooled with the new results, and the whole is graded again (``graded_frame``), so that the dataset's
-    agreement rule sees the kept and the new values together. Returns the table and the kept backends' names.
+    A row of ``table`` is dropped where the stores hold the same task (backend, species, masses, g, parameters)
+    or hold its backend at another version (a backend that changed leaves none of its old rows behind); every
+    other row is kept as it was measured. The pool is graded again as a whole (``graded_frame``), so the dataset's
+    agreement rule sees the kept and the new values together. So after one backend changed only its tasks need
+    to run again, and a rerun of part of a backend's tasks keeps its other rows. Returns the table and the
+    backends some of whose rows were kept.
     """
-    replaced = set(store_frame["backend"])
-    kept = table[~table["backend"].isin(replaced)].reset_index(drop=True)
+    versions = store_frame.groupby("backend")["backend_version"].agg(lambda v: set(map(str, v))).to_dict()
+    measured = {_task_identity(row) for row in store_frame.itertuples(index=False)}
+    stale = [row.backend in versions and str(row.backend_version) not in versions[row.backend]
+             for row in table.itertuples(index=False)]
+    again = [_task_identity(row) in measured for row in table.itertuples(index=False)]
+    kept = table[~(pd.Series(stale, index=table.index) | pd.Series(again, index=table.index))].reset_index(drop=True)
     parts = [store_frame] + ([table_measurements(kept, suites)] if not kept.empty else [])
     pooled = pd.concat(parts, ignore_index=True)
     return measurement_table(graded_frame(pooled)), sorted(set(kept["backend"]))
+
+
+def _task_identity(row) -> tuple:
+    """What makes two results the same computation: backend, species, masses, g and parameters."""
+    return (row.backend, int(row.n_up), int(row.n_down), float(row.mass_up), float(row.mass_down), float(row.g),
+            json.dumps(_params_dict(row.params), sort_keys=True))
 
 
 def measurement_table(frame: pd.DataFrame) -> pd.DataFrame:

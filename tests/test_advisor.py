@@ -346,13 +346,14 @@ def test_regrading_the_shipped_map_reproduces_its_grades_and_refuses_unknown_row
         regraded_table(stranger)
 
 
-def test_map_update_replaces_only_the_rerun_backends_and_grades_kept_rows_with_the_new_ones(tmp_path, monkeypatch,
-                                                                                           capsys):
-    """`trapbench map --store NEW --keep-shipped`: the backends NEW holds are measured anew (all their old rows go),
-    every other backend's shipped rows stay as they were measured, and the pooled table is graded again together.
-    The kept oscillator-ed 2+1 rows at mass ratio 20/3 are graded by the shipped reference dataset at its couplings
-    (-3, -1, 2), by the new three-body results at g = -2, and at g = 10, where the three-body rows are gone, by
-    the kept lattice-dmrg rows (the dataset's agreement rule on the pooled results): never by themselves."""
+def test_map_update_replaces_what_the_store_measures_anew_and_grades_the_pool_again(tmp_path, monkeypatch, capsys):
+    """`trapbench map --store NEW --keep-shipped`: a shipped row goes where NEW holds the same task, or its backend at
+    another version; every other row stays as it was measured, and the pool is graded again as a whole.
+    Here NEW reruns two of three-body's three 2+1 orders at mass ratio 20/3, g = -2. At the same version the third
+    order and the other couplings' rows stay, and they grade oscillator-ed at g = 10. Where the shipped three-body
+    rows are of another version, all of them go: oscillator-ed at g = 10 is then graded by the kept lattice-dmrg
+    rows (the dataset's agreement rule on the pool), at g = -2 by the new three-body rows, at -3, -1, 2 by the
+    shipped reference dataset; never by itself."""
     import textwrap
 
     from trapbench.bench.advisor import shipped_table, table_to_json
@@ -364,11 +365,10 @@ def test_map_update_replaces_only_the_rerun_backends_and_grades_kept_rows_with_t
     shipped = shipped_table()
     if shipped.empty:
         pytest.skip("this installation ships no method map")
-    base = shipped[shipped["problem_name"] == "2+1 m=20/3"].drop(columns=["measurement_source"])
+    base = shipped[shipped["problem_name"] == "2+1 m=20/3"].drop(columns=["measurement_source"]).reset_index(drop=True)
+    three_body = base["backend"] == "three-body"
     assert {"three-body", "oscillator-ed", "lattice-dmrg"} <= set(base["backend"])
-    base_path = tmp_path / "shipped.json"
-    base_path.write_text(json.dumps(table_to_json(base, ["old.sqlite"]), default=str))
-    monkeypatch.setattr(method_map, "default_output", lambda: base_path)
+    assert set(base.loc[three_body, "params_text"]) == {"order=10", "order=14", "order=18"}
 
     suite_path = tmp_path / "rerun.toml"
     suite_path.write_text(textwrap.dedent("""
@@ -384,22 +384,39 @@ def test_map_update_replaces_only_the_rerun_backends_and_grades_kept_rows_with_t
         """))
     store = tmp_path / "rerun.sqlite"
     assert set(run_sweep(load_suite(suite_path), SweepOptions(store_path=store, progress=False)).statuses) == {"ok"}
-    output = tmp_path / "updated.json"
-    assert main(["map", "--store", str(store), "--keep-shipped", "--output", str(output)]) == 0
-    assert "measured anew: three-body" in capsys.readouterr().out
-    data = json.loads(output.read_text())
-    assert data["built_from"][0] == "rerun.sqlite" and "built from old.sqlite" in data["built_from"][1]
-    table = table_from_json(data)
-    new = table[table["backend"] == "three-body"]
-    assert len(new) == 2 and (new["g"] == -2.0).all()  # the old three-body rows at other couplings are gone
-    kept = table[table["backend"] != "three-body"].sort_values(["backend", "g", "params_text"]).reset_index(drop=True)
-    old = base[base["backend"] != "three-body"].sort_values(["backend", "g", "params_text"]).reset_index(drop=True)
-    assert list(kept["energy"]) == list(old["energy"]) and list(kept["solve_cpu_s"]) == list(old["solve_cpu_s"])
-    oscillator = kept[kept["backend"] == "oscillator-ed"].set_index("g")["ref_source"]
+
+    def update(table, name):
+        base_path = tmp_path / f"{name}.json"
+        base_path.write_text(json.dumps(table_to_json(table, ["old.sqlite"]), default=str))
+        monkeypatch.setattr(method_map, "default_output", lambda: base_path)
+        output = tmp_path / f"{name}-updated.json"
+        assert main(["map", "--store", str(store), "--keep-shipped", "--output", str(output)]) == 0
+        data = json.loads(output.read_text())
+        assert data["built_from"][0] == "rerun.sqlite" and "built from old.sqlite" in data["built_from"][1]
+        return table_from_json(data)
+
+    def grades(table):
+        return table[table["backend"] == "oscillator-ed"].set_index("g")["ref_source"]
+
+    # the same version: only the two rerun tasks are replaced
+    same = update(base, "same")
+    rows = same[same["backend"] == "three-body"]
+    assert len(rows) == int(three_body.sum())
+    assert sorted(rows.loc[rows["g"] == -2.0, "params_text"]) == ["order=10", "order=14", "order=18"]
+    assert "three-body; from the stores: three-body" in capsys.readouterr().out
+    others = same[same["backend"] != "three-body"].sort_values(["backend", "g", "params_text"]).reset_index(drop=True)
+    before = base[~three_body].sort_values(["backend", "g", "params_text"]).reset_index(drop=True)
+    assert list(others["energy"]) == list(before["energy"]) and list(others["solve_cpu_s"]) == list(before["solve_cpu_s"])
+    assert grades(same).loc[[10.0]].str.contains("results of three-body in the same store").all()
+
+    # another version: every old three-body row goes
+    older = base.assign(backend_version=np.where(three_body, "1", base["backend_version"]))
+    changed = update(older, "older")
+    rows = changed[changed["backend"] == "three-body"]
+    assert len(rows) == 2 and (rows["g"] == -2.0).all()
+    oscillator = grades(changed)
     assert oscillator.loc[[-3.0, -1.0, 2.0]].str.contains("reference dataset v").all()
     assert oscillator.loc[[-2.0]].str.contains("results of three-body in the same store").all()
     assert oscillator.loc[[10.0]].str.contains("results of lattice-dmrg in the same store").all()
-    old_grades = base[base["backend"] == "oscillator-ed"].set_index("g")["ref_source"]
-    assert old_grades.loc[[10.0]].str.contains("results of three-body").all()  # before: the dropped rows graded it
     assert main(["map", "--regrade", "--keep-shipped", "--dry-run"]) == 2
     assert "--keep-shipped: pools stores with the shipped table" in capsys.readouterr().err

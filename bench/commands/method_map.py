@@ -10,9 +10,10 @@ the shipped reference dataset, and the dataset's agreement rule applied to the s
 grading a method by its own family) and written as one compact JSON table with its version, the neighbour
 rule and the stores it came from. ``--regrade`` grades the rows of the shipped table again against today's
 references (``advisor.regraded_table``), e.g. after the reference dataset gained points, without the stores.
-``--keep-shipped`` replaces only the backends the stores hold and keeps the shipped rows of the others
-(``advisor.updated_table``), e.g. after one backend changed version and only its tasks of the map suite ran
-again; everything is graded again together, and the file names the kept backends among its sources.
+``--keep-shipped`` pools the stores with the shipped rows they do not measure anew (``advisor.updated_table``:
+a shipped row goes where the stores hold the same task or its backend at another version), e.g. after one
+backend changed version and only its tasks of the map suite ran again; everything is graded again together,
+and the file names the kept rows' origin among its sources.
 """
 
 from __future__ import annotations
@@ -33,8 +34,8 @@ def register(parser: argparse.ArgumentParser) -> None:
     source.add_argument("--regrade", action="store_true",
                         help="grade the shipped table's measurements again against today's references (no store needed)")
     parser.add_argument("--keep-shipped", action="store_true",
-                        help="with --store: keep the shipped rows of every backend the stores do not hold (rerun one"
-                             " backend's tasks of the map suite, keep the rest)")
+                        help="with --store: keep the shipped rows the stores do not measure anew (same task, same"
+                             " backend version), e.g. after rerunning one backend's tasks of the map suite")
     parser.add_argument("--suite", default=None,
                         help="use only the results of this suite (default: every stored result)")
     parser.add_argument("--output", metavar="PATH",
@@ -87,7 +88,7 @@ def run(args: argparse.Namespace) -> int:
         if kept:
             sources.append(f"rows of {', '.join(kept)} from the method map of {data.get('created', '?')}, built from "
                            + ", ".join(data.get("built_from", [])))
-        print(f"kept the shipped rows of {', '.join(kept) or 'no backend'}; measured anew: "
+        print(f"kept shipped rows of {', '.join(kept) or 'no backend'}; from the stores: "
               f"{', '.join(sorted(set(frame['backend'])))}")
     else:
         table = measurement_table(graded_frame(frame))
