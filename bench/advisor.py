@@ -531,10 +531,9 @@ def updated_table(store_frame: pd.DataFrame, table: pd.DataFrame, suites=None) -
     """
     versions = store_frame.groupby("backend")["backend_version"].agg(lambda v: set(map(str, v))).to_dict()
     measured = {_task_identity(row) for row in store_frame.itertuples(index=False)}
-    stale = [row.backend in versions and str(row.backend_version) not in versions[row.backend]
-             for row in table.itertuples(index=False)]
-    again = [_task_identity(row) in measured for row in table.itertuples(index=False)]
-    kept = table[~(pd.Series(stale, index=table.index) | pd.Series(again, index=table.index))].reset_index(drop=True)
+    keep = [not (row.backend in versions and str(row.backend_version) not in versions[row.backend])
+            and _task_identity(row) not in measured for row in table.itertuples(index=False)]
+    kept = table[keep].reset_index(drop=True)
     parts = [store_frame] + ([table_measurements(kept, suites)] if not kept.empty else [])
     pooled = pd.concat(parts, ignore_index=True)
     return measurement_table(graded_frame(pooled)), sorted(set(kept["backend"]))

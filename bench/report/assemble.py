@@ -8,10 +8,10 @@ Every judgement of accuracy follows ``bench.verdicts``.
 
 from __future__ import annotations
 
-from collections import Counter
-from collections.abc import Collection, Mapping
 import datetime as _dt
 import json
+from collections import Counter
+from collections.abc import Collection, Mapping
 from pathlib import Path
 
 import pandas as pd
@@ -237,8 +237,7 @@ def build_document(store, folder: Path, suite=None, task_keys: Collection[str] |
 
     ``suite`` supplies the tolerances (and the title unless ``title`` is given); ``task_keys`` limits
     the report to those tasks (None: every stored result; a mapping key -> backend lets a partial report say
-    whose tasks are missing); ``command`` is the command line that
-    regenerates the report, quoted at its top.
+    whose tasks are missing); ``command`` is the command line that regenerates the report, quoted at its top.
     """
     raw = store.results_frame(keys=list(task_keys) if task_keys is not None else None)
     document = Document(f"trapbench report: {title or (suite.name if suite is not None else 'all stored results')}")
