@@ -3,6 +3,8 @@
 A command module defines ``NAME``, ``HELP`` and ``register(parser)`` (add its arguments) and
 ``run(args) -> int`` (the exit code). Errors of user input (SpecError, unknown backend,
 unsupported problem) print one line and exit with status 2; failed computations exit with 1.
+SIGTERM is handled as Ctrl-C (exit status 130, a sweep keeps its finished tasks): a job started in
+the background by a non-interactive shell ignores SIGINT, so ``kill PID`` is how it is stopped.
 """
 
 from __future__ import annotations
@@ -70,6 +72,7 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return EXIT_INPUT_ERROR
+    previous = signal.signal(signal.SIGTERM, signal.default_int_handler)  # raises KeyboardInterrupt
     try:
         return runners[args.command](args)
     except (SpecError, UnknownBackend, Unsupported) as exc:
@@ -84,6 +87,8 @@ def main(argv: list[str] | None = None) -> int:
     except BrokenPipeError:  # the reader of our output (e.g. `| head`) closed early: not a fault to report
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())  # no second error at interpreter exit
         return 128 + signal.SIGPIPE
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 if __name__ == "__main__":

@@ -11,9 +11,9 @@ What runs again (``Store.why_run``): tasks not stored, tasks that failed or cras
 ``keep_failures``), timeouts and out-of-memory kills when the limit was raised, stale backend
 versions, everything with ``rerun``. The summary says how many were retried and what they were before.
 
-Ctrl-C (KeyboardInterrupt) kills the tasks in flight, marks the run ``interrupted`` and keeps every
-finished task; a Dask sweep that lost its workers or stopped making progress stops the same way
-(``stalled``). Running the same suite again resumes where it stopped.
+Ctrl-C (KeyboardInterrupt; the command turns SIGTERM into one too) kills the tasks in flight, marks
+the run ``interrupted`` and keeps every finished task; a Dask sweep that lost its workers or stopped
+making progress stops the same way (``stalled``). Running the same suite again resumes where it stopped.
 """
 
 from __future__ import annotations

@@ -251,6 +251,39 @@ def test_a_second_sweep_on_a_busy_store_is_refused_and_a_killed_run_is_marked(to
         assert list(store.runs_frame()["status"]) == ["interrupted"]
 
 
+def test_sigterm_stops_a_background_dask_sweep_like_ctrl_c(toy_path, tmp_path):
+    """`kill PID` stops a sweep running in the background as Ctrl-C would: a non-interactive shell starts background
+    jobs with SIGINT ignored (POSIX, Shell Command Language 2.11), so SIGTERM is the way in. The tasks in flight and
+    the Dask workers end, the run is marked interrupted, and the finished tasks are kept."""
+    import psutil
+
+    suite_path = write_sleep_suite(tmp_path, count=12, seconds=1.0)
+    store_path = tmp_path / "terminated.sqlite"
+    command = [sys.executable, "-m", "trapbench.bench.cli", "sweep", str(suite_path), "--store", str(store_path),
+               "--workers", "2", "--no-progress", "--tables", "none"]
+    sweep = subprocess.Popen(command, env=toy_env(toy_path), stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+                             preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_IGN))
+    try:
+        deadline = time.monotonic() + 120
+        while time.monotonic() < deadline and not (store_path.exists() and len(stored_rows(store_path)) >= 2):
+            time.sleep(0.1)
+        family = psutil.Process(sweep.pid).children(recursive=True)
+        assert sweep.poll() is None and family, "the signal must land mid-sweep, with workers running"
+        sweep.send_signal(signal.SIGTERM)
+        code = sweep.wait(timeout=90)
+    finally:
+        if sweep.poll() is None:
+            sweep.kill()
+            sweep.wait()
+    assert code == 130, sweep.stderr.read().decode()
+    _, alive = psutil.wait_procs(family, timeout=30)
+    assert not alive, f"left behind: {[p.cmdline() for p in alive]}"
+    with Store.open(store_path) as store:
+        assert list(store.runs_frame()["status"]) == ["interrupted"]
+    kept = stored_rows(store_path)
+    assert 2 <= len(kept) < 12 and all(row["status"] == "ok" for row in kept.values())
+
+
 def test_a_reader_holding_the_lock_for_a_moment_does_not_refuse_a_sweep(toy_path, tmp_path):
     """A reader opening the store takes the writer lock for one UPDATE; a sweep starting then must wait, not fail."""
     suite_path = ladder_suite(tmp_path, rungs=2, work=0)

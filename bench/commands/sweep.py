@@ -2,7 +2,7 @@
 
 Exit status: 0 when every task of the suite has an ok result, 1 when any does not (failed, crashed,
 timed out, out of memory, unsupported, or not run because the Dask cluster stalled) -- the tables are
-printed and the results stored all the same -- 2 for bad input, 130 when interrupted.
+printed and the results stored all the same -- 2 for bad input, 130 when interrupted (Ctrl-C or SIGTERM).
 """
 
 from __future__ import annotations
