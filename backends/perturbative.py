@@ -24,6 +24,7 @@ nothing there).
 
 from __future__ import annotations
 
+import functools
 import itertools
 from typing import Any
 
@@ -41,14 +42,16 @@ MAX_EXCITATION_STEPS = 40
 MAX_MANIFOLD_PAIRS = 1500
 
 
-def configurations(count: int, max_excitation: int) -> list[tuple[tuple[int, ...], int]]:
+@functools.lru_cache(maxsize=64)
+def configurations(count: int, max_excitation: int) -> tuple[tuple[tuple[int, ...], int], ...]:
     """(occupied orbitals, excitation) of ``count`` fermions with excitation sum(n) - count(count-1)/2 <= max."""
     ground = count * (count - 1) // 2
     found = []
     for occ in itertools.combinations(range(count + max_excitation), count):
-        if sum(occ) - ground <= max_excitation:
-            found.append((occ, sum(occ) - ground))
-    return found
+        excitation = sum(occ) - ground
+        if excitation <= max_excitation:
+            found.append((occ, excitation))
+    return tuple(found)
 
 
 def density_matrix_elements(left: tuple, right: tuple, orbitals: np.ndarray) -> np.ndarray | None:
@@ -149,8 +152,9 @@ class PerturbativeBackend(Backend):
         ground = up.omega * up.count**2 / 2 + down.omega * down.count**2 / 2
         groups: dict[tuple[float, int], list] = {}
         slack = 1e-9 * max(1.0, cut)
+        downs = configurations(down.count, int((cut + slack) // down.omega))
         for occ_up, m_up in configurations(up.count, int((cut + slack) // up.omega)):
-            for occ_down, m_down in configurations(down.count, int((cut + slack) // down.omega)):
+            for occ_down, m_down in downs:
                 excitation = up.omega * m_up + down.omega * m_down
                 if excitation > cut + slack:
                     continue
@@ -163,21 +167,33 @@ class PerturbativeBackend(Backend):
 
     @staticmethod
     def _interaction_matrix(problem: Problem, pairs: list) -> np.ndarray:
-        """W_IJ = <I| sum_{i up, j down} delta(x_i - x_j) |J> within one manifold, exactly."""
+        """W_IJ = <I| sum_{i up, j down} delta(x_i - x_j) |J> within one manifold, exactly.
+
+        With I = (u, d) and J = (u', d'): W_IJ = sum_q w_q <u|rho_up(x_q)|u'> <d|rho_down(x_q)|d'>. The
+        one-species elements are formed once per pair of distinct configurations of that species, and W is
+        summed over the quadrature points as whole matrices.
+        """
+        size = len(pairs)
+        if problem.up.count == 0 or problem.down.count == 0:
+            return np.zeros((size, size))
         n_orbitals = max(max(u + d, default=0) for u, d in pairs) + 1
         quad = contact_quadrature(n_orbitals, problem.up.oscillator_length, n_orbitals, problem.down.oscillator_length)
-        orbitals_up, orbitals_down, weights = quad.values_up.T, quad.values_down.T, quad.weights
-        size = len(pairs)
+        rho_up, index_up = _species_elements([u for u, _ in pairs], quad.values_up.T)
+        rho_down, index_down = _species_elements([d for _, d in pairs], quad.values_down.T)
         matrix = np.zeros((size, size))
-        if problem.up.count == 0 or problem.down.count == 0:
-            return matrix
-        for i, j in itertools.combinations_with_replacement(range(size), 2):
-            rho_up = density_matrix_elements(pairs[i][0], pairs[j][0], orbitals_up)
-            if rho_up is None:
-                continue
-            rho_down = density_matrix_elements(pairs[i][1], pairs[j][1], orbitals_down)
-            if rho_down is None:
-                continue
-            matrix[i, j] = matrix[j, i] = float(np.dot(weights, rho_up * rho_down))
+        for q, weight in enumerate(quad.weights):
+            matrix += weight * rho_up[q][np.ix_(index_up, index_up)] * rho_down[q][np.ix_(index_down, index_down)]
         return matrix
 
+
+def _species_elements(configurations_of_pairs: list, orbitals: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """<a|rho(x_q)|b> for the distinct configurations a, b of one species (shape: points x n x n) and
+    each pair's index among them."""
+    distinct = sorted(set(configurations_of_pairs))
+    position = {occ: i for i, occ in enumerate(distinct)}
+    elements = np.zeros((orbitals.shape[1], len(distinct), len(distinct)))
+    for i, j in itertools.combinations_with_replacement(range(len(distinct)), 2):
+        value = density_matrix_elements(distinct[i], distinct[j], orbitals)
+        if value is not None:
+            elements[:, i, j] = elements[:, j, i] = value
+    return elements, np.array([position[occ] for occ in configurations_of_pairs])
