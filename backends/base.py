@@ -22,7 +22,6 @@ never printed over a progress bar.
 
 from __future__ import annotations
 
-import difflib
 import logging
 import math
 import time
@@ -31,7 +30,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, ClassVar
 
-from ..problems.errors import SpecError
+from ..problems.errors import SpecError, did_you_mean
 from ..problems.spec import OBSERVABLES, Problem
 from .provenance import provenance
 from .result import OBSERVABLE_NAMES, SCALAR_NAMES, Result, Solution
@@ -285,10 +284,8 @@ class Backend:
         resolved = {p.name: p.default for p in self.parameters}
         for key, value in params.items():
             if key not in known:
-                close = difflib.get_close_matches(key, list(known), n=1, cutoff=0.5)
-                hint = f"did you mean '{close[0]}'?" if close else (
-                    "known: " + ", ".join(known) if known else f"{self.name} takes no parameters"
-                )
+                hint = did_you_mean(key, known, otherwise="known: " + ", ".join(known) if known
+                                    else f"{self.name} takes no parameters")
                 raise SpecError(f"param.{key}", f"unknown parameter of backend '{self.name}'; {hint}")
             resolved[key] = known[key].coerce(value, f"param.{key}")
         return resolved

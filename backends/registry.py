@@ -11,9 +11,10 @@ their backend is asked for, so listing backends does not import quspin or tenpy.
 
 from __future__ import annotations
 
-import difflib
 import importlib
 from importlib import metadata
+
+from ..problems.errors import did_you_mean
 
 ENTRY_POINT_GROUP = "trapbench.backends"
 
@@ -59,8 +60,7 @@ def get(name: str):
     """An instance of the backend called ``name``."""
     targets = _targets()
     if name not in targets:
-        close = difflib.get_close_matches(name, list(targets), n=1, cutoff=0.4)
-        hint = f"did you mean '{close[0]}'?" if close else "installed: " + ", ".join(targets)
+        hint = did_you_mean(name, targets, otherwise="installed: " + ", ".join(targets), cutoff=0.4)
         raise UnknownBackend(f"backend: no backend named '{name}'; {hint}")
     module_name, attribute = targets[name].split(":")
     obj = getattr(importlib.import_module(module_name), attribute)

@@ -41,7 +41,6 @@ problem the backend refuses whatever the parameters stays in the suite and is re
 
 from __future__ import annotations
 
-import difflib
 import hashlib
 import itertools
 import json
@@ -53,7 +52,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
-from ..problems.errors import SpecError, reject_unknown_keys, show
+from ..problems.errors import SpecError, did_you_mean, reject_unknown_keys, show
 from ..problems.spec import Problem
 
 DEFAULT_TIMEOUT_S = 600.0
@@ -172,10 +171,9 @@ class Suite:
         named = {plan.name for plan in self.backends}
         for name in backends:
             if name not in named:
-                close = difflib.get_close_matches(name, sorted(named), n=1, cutoff=0.4)
-                hint = f"; did you mean '{close[0]}'?" if close else ""
+                hint = did_you_mean(name, sorted(named), cutoff=0.4)
                 raise SpecError("--backend", f"suite '{self.name}' runs no backend '{name}' (it runs "
-                                             f"{', '.join(sorted(named))}){hint}")
+                                             f"{', '.join(sorted(named))}){'; ' + hint if hint else ''}")
         return replace(self, backends=tuple(plan for plan in self.backends if plan.name in backends))
 
     def tolerance(self, quantity: str, backend: str | None = None) -> Tolerance:
@@ -329,8 +327,7 @@ def _installed_backend(name: str, where: str):
         return registry.get(name)
     except registry.UnknownBackend:
         installed = registry.names()
-        close = difflib.get_close_matches(name, installed, n=1, cutoff=0.4)
-        hint = f"did you mean '{close[0]}'?" if close else "installed: " + ", ".join(installed)
+        hint = did_you_mean(name, installed, otherwise="installed: " + ", ".join(installed), cutoff=0.4)
         raise SpecError(where, f"no backend named {show(name)}; {hint} (see `trapbench backends`)") from None
     except ImportError as exc:
         raise SpecError(where, f"backend '{name}' cannot be imported here ({exc}); install its dependencies") from None

@@ -18,12 +18,11 @@ g = +inf levels. Every point of the shipped dataset is also an entry of its own,
 
 from __future__ import annotations
 
-import difflib
 from dataclasses import dataclass
 from functools import lru_cache
 
 from . import dataset
-from .errors import SpecError
+from .errors import SpecError, did_you_mean
 from .references import Reference, references_for
 from .spec import Problem
 
@@ -101,6 +100,5 @@ def get(name: str) -> CatalogueEntry:
         if entry.name == name:
             return entry
     known = [e.name for e in _entries()]
-    close = difflib.get_close_matches(name, known, n=1, cutoff=0.5)
-    hint = f"did you mean '{close[0]}'?" if close else "see trapbench.problems.catalogue.entries()"
+    hint = did_you_mean(name, known, otherwise="see trapbench.problems.catalogue.entries()")
     raise SpecError("catalogue", f"no entry named '{name}'; {hint}")

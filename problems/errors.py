@@ -26,12 +26,18 @@ def show(value: Any) -> str:
     return text if len(text) <= 60 else text[:57] + "..."
 
 
+def did_you_mean(name: str, candidates: Iterable[str], otherwise: str = "", cutoff: float = 0.5) -> str:
+    """"did you mean 'X'?" for the candidate closest to a mistyped ``name`` (``difflib`` similarity at
+    least ``cutoff``), else ``otherwise``."""
+    close = difflib.get_close_matches(str(name), list(candidates), n=1, cutoff=cutoff)
+    return f"did you mean '{close[0]}'?" if close else otherwise
+
+
 def reject_unknown_keys(table: dict, allowed: Iterable[str], where: str) -> None:
     """Raise SpecError for the first key of ``table`` not in ``allowed``, suggesting the closest."""
     allowed = list(allowed)
     for key in table:
         if key not in allowed:
             field = f"{where}.{key}" if where else str(key)
-            close = difflib.get_close_matches(str(key), allowed, n=1, cutoff=0.5)
-            hint = f"did you mean '{close[0]}'?" if close else "allowed keys: " + ", ".join(sorted(allowed))
+            hint = did_you_mean(key, allowed, otherwise="allowed keys: " + ", ".join(sorted(allowed)))
             raise SpecError(field, f"unknown key; {hint}")
