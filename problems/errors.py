@@ -27,8 +27,8 @@ def show(value: Any) -> str:
 
 
 def did_you_mean(name: str, candidates: Iterable[str], otherwise: str = "", cutoff: float = 0.5) -> str:
-    """"did you mean 'X'?" for the candidate closest to a mistyped ``name`` (``difflib`` similarity at
-    least ``cutoff``), else ``otherwise``."""
+    """The hint "did you mean 'X'?" for the candidate X closest to a mistyped ``name`` (``difflib``
+    similarity at least ``cutoff``), else ``otherwise``."""
     close = difflib.get_close_matches(str(name), list(candidates), n=1, cutoff=cutoff)
     return f"did you mean '{close[0]}'?" if close else otherwise
 
