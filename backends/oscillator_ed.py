@@ -118,6 +118,14 @@ Version 11 searches the orbital lengths at cutoff 12 instead of 8 where a heavy 
 heavier than its partner is repelled (``length_search_cutoff``); elsewhere it is version 10. On the same grid:
 median error 5.5e-6, ground states within 1e-4 / 1e-5 / 1e-6: 29 / 23 / 9 of 30, all 90 levels within twice their
 bars (median bar 7.6x the error); CPU s median 4.4, largest 11.1.
+Version 12 raises the default largest cutoff to 28 for five particles and 24 for six (20 and 16 before: about a
+second of CPU, and ground-state bars of 1e-2 to 1 at moderate g). Measured on the 3+2 and 3+3 dataset grids (mass
+ratios 1, 2, 20/3 and, for 3+2, 1/2 and 3/20; g = -3 ... 20; three levels; other jobs on both cores): median
+ground-state bar 2.7e-2 -> 4.6e-3 (3+2, 30 points; equal masses at g = 5: 0.85 -> 0.014) and 0.26 -> 0.034 (3+3, 18
+points), wider at 3 of the 3+2 and 5 of the 3+3 points (3+3 at g = -3, where the ladder has not settled: equal
+masses 0.047 -> 0.68); CPU s 5.5-12.7 (3+2, at most 483 MiB) and 5.0-9.7 (3+3, 453 MiB). Against lattice-dmrg's
+continuum limits (20 3+2 ground states at g = -1, 0.5, 2, 5; 3 3+3 at g = 2) every one lies within twice its bar
+plus the reference's uncertainty, at most 1.8 bars off (``bench/benchmarks/bench_oscillator_results.md``).
 
 Centre-of-mass copies (``com_copies``): with a common trap frequency, the energy truncation, the trap's
 orbitals and a bare or running contact coupling, N_com commutes with the truncated Hamiltonian
@@ -836,7 +844,7 @@ def derived_scalar_errors(problem: Problem, energy_error, trap_error, delta_erro
 
 class OscillatorEDBackend(Backend):
     name = "oscillator-ed"
-    version = "11"
+    version = "12"
     summary = (
         "Exact diagonalization in harmonic-oscillator Slater determinants (energy or orbital cutoff,"
         " exact Gauss-Hermite contact elements, optional two-body renormalized g, cutoff extrapolation)"
@@ -913,7 +921,7 @@ class OscillatorEDBackend(Backend):
         n = problem.n_particles
         if truncation == "orbital":
             return {2: 30, 3: 24, 4: 18, 5: 14, 6: 12}.get(n, 10)
-        return {2: 32, 3: 44, 4: 32, 5: 20, 6: 16, 7: 14, 11: 16, 12: 16}.get(n, 12)
+        return {2: 32, 3: 44, 4: 32, 5: 28, 6: 24, 7: 14, 11: 16, 12: 16}.get(n, 12)
 
     def cutoff_ladder(self, problem: Problem, params: dict[str, Any]) -> list[int]:
         """The cutoffs solved, ascending: ``cutoff``, ``cutoff - ladder_step``, ... (``ladder`` of them)."""

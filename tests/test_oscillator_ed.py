@@ -439,3 +439,21 @@ def test_density_error_bars_cover_the_precision_solver(mass_up, g, interaction):
         assert reference[name].error <= 0.1 * bar, name  # the reference is ten times sharper than the bar judged
         assert error <= 2 * bar, name
         assert bar <= 20 * error, name
+
+
+@pytest.mark.slow
+def test_five_particles_with_default_parameters_against_the_lattice_continuum_limit():
+    """3+2, equal masses, g = 2, default parameters (version 12: largest cutoff 28): the ground energy lies within
+    twice its bar, plus the reference's uncertainty, of the dataset's value for oscillator-ed, which comes from the
+    other method family only (lattice-dmrg's continuum limit; ``DatasetLevel.reference_for``), and the bar is below
+    5e-3 (version 11's largest cutoff 20 gave 8.5903 +- 3.0e-2). Measured: 8.59835 +- 2.0e-3 against
+    8.59876 +- 7.5e-4."""
+    from trapbench.problems.references import references_for
+
+    problem = Problem.create(3, 2, 2.0, states=1)
+    (reference,) = [r for r in references_for(problem, for_backend="oscillator-ed") if r.quantity == "energy"]
+    assert reference.methods == ("lattice-dmrg",) and reference.uncertainty < 1e-3
+    assert ED.cutoff_ladder(problem, ED.resolve_params({}))[-1] == 28
+    result = ED.solve(problem)
+    assert abs(result.energies[0] - reference.value) <= 2 * result.energy_errors[0] + reference.uncertainty
+    assert result.energy_errors[0] < 5e-3
