@@ -15,6 +15,7 @@ import os
 import pkgutil
 import signal
 import sys
+import threading
 
 from ..backends.base import SolverError, Unsupported
 from ..backends.registry import UnknownBackend
@@ -72,7 +73,8 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return EXIT_INPUT_ERROR
-    previous = signal.signal(signal.SIGTERM, signal.default_int_handler)  # raises KeyboardInterrupt
+    in_main_thread = threading.current_thread() is threading.main_thread()  # only there may handlers be set
+    previous = signal.signal(signal.SIGTERM, signal.default_int_handler) if in_main_thread else None
     try:
         return runners[args.command](args)
     except (SpecError, UnknownBackend, Unsupported) as exc:
@@ -88,7 +90,8 @@ def main(argv: list[str] | None = None) -> int:
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())  # no second error at interpreter exit
         return 128 + signal.SIGPIPE
     finally:
-        signal.signal(signal.SIGTERM, previous)
+        if in_main_thread:
+            signal.signal(signal.SIGTERM, previous)
 
 
 if __name__ == "__main__":

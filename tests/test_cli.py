@@ -83,3 +83,16 @@ def test_bad_input_exits_2_with_one_line(args, field):
     lines = completed.stderr.strip().splitlines()
     assert len(lines) == 1 and field in lines[0]
     assert "Traceback" not in completed.stderr
+
+
+def test_the_command_runs_from_a_thread_other_than_the_main_one(capsys):
+    """An application may call ``main`` from a worker thread; only the main thread may install the SIGTERM
+    handler (Python's ``signal.signal`` raises ValueError elsewhere), so there it is left alone."""
+    import threading
+
+    codes = []
+    worker = threading.Thread(target=lambda: codes.append(main(["backends"])))
+    worker.start()
+    worker.join()
+    assert codes == [0]
+    assert "oscillator-ed" in capsys.readouterr().out
