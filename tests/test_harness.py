@@ -619,8 +619,10 @@ def test_agreement_and_accuracy_vs_cost_tables(toy_path, tmp_path):
 
         [[backends]]
         name = "toy-exact"
+        # costs ten times apart, so that CPU-time noise on a busy machine cannot reorder the rungs (with 1e6
+        # against 2e6 iterations a CI run once measured cutoff 900 as the cheaper)
         ladder = [{ cutoff = 3, work = 0 }, { cutoff = 30, work = 100000 }, { cutoff = 300, work = 1000000 },
-                  { cutoff = 900, work = 2000000 }]
+                  { cutoff = 900, work = 10000000 }]
 
         [[backends]]
         name = "toy-abort"
