@@ -45,13 +45,11 @@ def run(args: argparse.Namespace) -> int:
     keys: dict[str, str] = {}  # task key -> backend, so that a partial report can say whose tasks are missing
     interrupted = False
     for suite in suites:
-        backends = {t.key: t.backend for t in limited_tasks(suite, options)}
+        keys.update({t.key: t.backend for t in limited_tasks(suite, options)})  # the tasks a sweep runs, too
         if args.from_store:
-            keys.update(backends)
             continue
         sweep = run_sweep(suite, options)
         print(sweep.summary(), file=sys.stderr)
-        keys.update({key: backends.get(key, "") for key in sweep.task_keys})
         if sweep.interrupted:
             interrupted = True
             break
