@@ -85,6 +85,8 @@ def main() -> None:
     parser.add_argument("--factor", action="append", type=float, default=None)
     parser.add_argument("--shift", action="append", type=float, default=None, help="exponent shift of ladders reaching the asymptotic cutoff")
     parser.add_argument("--as-reported", action="store_true", help="grade the stored energies and bars as they are")
+    parser.add_argument("--without-turn-remainder", action="store_true",
+                        help="a turned-around ladder's bar without the remainder of its last change (before version 13)")
     args = parser.parse_args()
     shipped = dataset.load()
     if args.as_reported:
@@ -111,7 +113,9 @@ def main() -> None:
             if variant is None:
                 value, bar = data
             else:
-                fit = GuardedPowerLaw(change_factor=variant[0], asymptotic_shift=variant[1])(*data)
+                rule = GuardedPowerLaw(change_factor=variant[0], asymptotic_shift=variant[1],
+                                       turn_remainder=not args.without_turn_remainder)
+                fit = rule(*data)
                 value, bar = fit.value, fit.error
             combined[n].append(abs(value - ref[0]) <= 2 * (bar + ref[1]))
             if ref[1] <= 0.1 * bar:
