@@ -184,18 +184,18 @@ def pair_interaction_tensor(
     shells = talmi_brackets(max_quanta, float(mass_up), float(mass_down))
     relative = _relative_matrices(lam, max_quanta, effective)
     pairs = [(a, q - a) for q in range(max_quanta + 1) for a in range(q + 1) if a < n_up and q - a < n_down]
-    index = {p: i for i, p in enumerate(pairs)}
+    shell_of = np.array([a + b for a, b in pairs], dtype=np.int64)
+    up_of = np.array([a for a, _ in pairs], dtype=np.int64)
     matrix = np.zeros((len(pairs), len(pairs)))
     for big_n in range(max_quanta + 1):
-        rel = np.arange(0, max_quanta - big_n + 1, 2)
-        # C[pair, n] = <N n | a b> for pairs in shell N + n
-        coeff = np.zeros((len(pairs), len(rel)))
-        for j, n in enumerate(rel):
-            q = big_n + n
-            for a in range(q + 1):
-                if (a, q - a) in index:
-                    coeff[index[(a, q - a)], j] = shells[q][big_n, a]
-        matrix += coeff @ relative[big_n] @ coeff.T
+        # C[pair, n] = <N n | a b> for the pairs of shells N + n, n even (every other pair has C = 0)
+        rows = np.flatnonzero((shell_of >= big_n) & ((shell_of - big_n) % 2 == 0))
+        if not len(rows):
+            continue
+        coeff = np.zeros((len(rows), (max_quanta - big_n) // 2 + 1))
+        for r, (q, a) in enumerate(zip(shell_of[rows], up_of[rows])):
+            coeff[r, (q - big_n) // 2] = shells[q][big_n, a]
+        matrix[np.ix_(rows, rows)] += coeff @ relative[big_n] @ coeff.T
     tensor = np.zeros((n_up, n_down, n_up, n_down))
     a_idx = np.array([p[0] for p in pairs])
     b_idx = np.array([p[1] for p in pairs])

@@ -30,14 +30,14 @@ def assemble(basis, terms, limit: float) -> sp.csr_matrix | None:
     the dense inner stack would exceed ``DENSE_STACK_LIMIT``, or an operator is complex.
     """
     n_u, n_d = basis.shape
-    outer_is_up = n_u >= n_d
-    n_outer, n_inner = (n_u, n_d) if outer_is_up else (n_d, n_u)
+    up_is_outer = outer_is_up(basis)
+    n_inner = n_d if up_is_outer else n_u
     if len(terms) * n_inner * n_inner > DENSE_STACK_LIMIT:
         return None
     rows, cols, term_index, values = [], [], [], []
     inner_stack = np.zeros((len(terms), n_inner, n_inner))
     for k, (scale, op_up, op_down) in enumerate(terms):
-        outer_op, inner_op = (op_up, op_down) if outer_is_up else (op_down, op_up)
+        outer_op, inner_op = (op_up, op_down) if up_is_outer else (op_down, op_up)
         coo = sp.coo_matrix(outer_op)
         dense = inner_op.toarray() if sp.issparse(inner_op) else np.asarray(inner_op)
         if np.iscomplexobj(coo.data) or np.iscomplexobj(dense):
@@ -48,12 +48,31 @@ def assemble(basis, terms, limit: float) -> sp.csr_matrix | None:
         term_index.append(np.full(int(keep.sum()), k))
         values.append(scale * coo.data[keep])
         inner_stack[k] = dense
-    rows, cols = np.concatenate(rows).astype(np.int64), np.concatenate(cols).astype(np.int64)
-    term_index, values = np.concatenate(term_index).astype(np.int64), np.concatenate(values)
+    entries = (np.concatenate(rows), np.concatenate(cols), np.concatenate(term_index), np.concatenate(values))
+    return assemble_stacked(basis, entries, inner_stack, limit)
+
+
+def outer_is_up(basis) -> bool:
+    """Whether the up species is the outer one (module docstring): the one with more configurations."""
+    n_u, n_d = basis.shape
+    return n_u >= n_d
+
+
+def assemble_stacked(basis, outer_entries, inner_stack: np.ndarray, limit: float) -> sp.csr_matrix | None:
+    """The CSR matrix of sum_k O_outer(k) (x) O_inner(k) on ``basis`` from the terms' operators given whole:
+    ``outer_entries`` = (row, column, term k, value) of the outer species' operators (``outer_is_up``; scales
+    folded into the values; entries repeated on one (row, column, k) are summed), ``inner_stack`` the inner
+    species' operators as a dense K x n_inner x n_inner array. None when there are more than ``limit`` nonzeros."""
+    n_u, n_d = basis.shape
+    up_is_outer = outer_is_up(basis)
+    n_outer = n_u if up_is_outer else n_d
+    rows, cols, term_index, values = outer_entries
+    rows, cols = np.asarray(rows).astype(np.int64), np.asarray(cols).astype(np.int64)
+    term_index, values = np.asarray(term_index).astype(np.int64), np.asarray(values, dtype=float)
 
     # basis entries of each outer configuration: their inner configuration and position in the basis
     flat = basis.flat
-    outer, inner = (flat // n_d, flat % n_d) if outer_is_up else (flat % n_d, flat // n_d)
+    outer, inner = (flat // n_d, flat % n_d) if up_is_outer else (flat % n_d, flat // n_d)
     order = np.lexsort((inner, outer))
     entry_ptr = np.zeros(n_outer + 1, np.int64)
     np.cumsum(np.bincount(outer, minlength=n_outer), out=entry_ptr[1:])

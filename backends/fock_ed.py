@@ -211,6 +211,24 @@ class FockSpace:
         keep = data != 0
         return sp.csr_matrix((data[keep], (hops.target[keep], hops.source[keep])), shape=(self.dim, self.dim))
 
+    def one_body_entries(self, matrices: np.ndarray, hops: Hops) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """The entries of O(A_k) = sum_ab A_k[a, b] c+_a c_b for a whole stack A (K x M x M) at once, as flat arrays
+        (term k, target, source, value); ``hops``: every hop of the space (``hops()``). Entries several hops put on
+        one (target, source) -- the diagonal, sum_a A_k[a, a] n_a -- are listed apart, to be summed by the
+        consumer. The same operators as ``one_body`` per matrix, without building K sparse matrices."""
+        matrices = np.asarray(matrices, dtype=float)
+        code = hops.a.astype(np.int64) * self.n_orbitals + hops.b
+        order = np.argsort(code, kind="stable")
+        sorted_code = code[order]
+        term, a, b = np.nonzero(matrices)
+        wanted = a.astype(np.int64) * self.n_orbitals + b
+        start = np.searchsorted(sorted_code, wanted, "left")
+        counts = np.searchsorted(sorted_code, wanted, "right") - start
+        offsets = np.cumsum(counts) - counts
+        hop = order[np.repeat(start - offsets, counts) + np.arange(int(counts.sum()))]
+        value = np.repeat(matrices[term, a, b], counts) * hops.sign[hop]
+        return np.repeat(term, counts), hops.target[hop], hops.source[hop], value
+
     def transform(self, orbital_map: Sequence[int], orbital_phase: Sequence[float]) -> tuple[np.ndarray, np.ndarray]:
         """U c+_a U^-1 = phase[a] c+_{map[a]}: returns (target index, sign) for every configuration.
 
@@ -448,10 +466,13 @@ class ProductHamiltonian:
         self.matrix: sp.csr_matrix | None = None
         terms = []
         if isinstance(contact, InteractionFactors) and self.g != 0.0:
-            terms = self._factor_terms(contact)
+            if assemble_limit and basis.dim <= ASSEMBLY_MAX_DIM:
+                self.matrix = self._assemble_factors(contact, assemble_limit)
+            if self.matrix is None:
+                terms = self._factor_terms(contact)
         elif contact is not None and self.g != 0.0:
             terms = self._contact_terms(contact)
-        if terms and assemble_limit and basis.dim <= ASSEMBLY_MAX_DIM:
+        if terms and self.matrix is None and assemble_limit and basis.dim <= ASSEMBLY_MAX_DIM:
             built = [term() for term in terms]
             self.matrix = self._assemble(built, assemble_limit)
             terms = [lambda pair=pair: pair for pair in built]  # the fallback reuses them (small bases only)
@@ -512,6 +533,27 @@ class ProductHamiltonian:
             )
 
         return [lambda t=t: operators(*t) for t in terms]
+
+    def _assemble_factors(self, f: InteractionFactors, limit: float) -> sp.csr_matrix | None:
+        """The explicit CSR matrix of the one-body part plus g sum_k O_up(A_k) (x) O_down(B_k), or None (too many
+        nonzeros, or the dense inner stack too large; ``fock_assembly.assemble_stacked``). The factors' operators
+        come as whole stacks (``FockSpace.one_body_entries``): many factors (the effective interaction has
+        thousands) then cost no sparse matrix each. ``limit`` bounds the interaction's nonzeros."""
+        n_u, n_d = self.basis.shape
+        up_is_outer = fock_assembly.outer_is_up(self.basis)
+        outer, inner = (self.basis.up, self.basis.down) if up_is_outer else (self.basis.down, self.basis.up)
+        outer_factors, inner_factors = (f.up, f.down) if up_is_outer else (f.down, f.up)
+        count = len(outer_factors)
+        if count * inner.dim**2 > fock_assembly.DENSE_STACK_LIMIT:
+            return None
+        term, rows, cols, values = outer.one_body_entries(np.array(outer_factors), outer.hops())
+        inner_stack = np.zeros((count, inner.dim, inner.dim))
+        k, target, source, entries = inner.one_body_entries(np.array(inner_factors), inner.hops())
+        np.add.at(inner_stack, (k, target, source), entries)
+        matrix = fock_assembly.assemble_stacked(self.basis, (rows, cols, term, self.g * values), inner_stack, limit)
+        if matrix is None:
+            return None
+        return (matrix + self.one_body_matrix()).tocsr()
 
     def _factor_terms(self, f: InteractionFactors) -> list:
         """Terms O_up(A_k) (x) O_down(B_k), each a one-body operator of its species (``FockSpace.one_body`` on

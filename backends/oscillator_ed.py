@@ -1134,7 +1134,7 @@ class OscillatorEDBackend(Backend):
             )
         else:
             zero_u, zero_d = np.zeros((m_u, m_u)), np.zeros((m_d, m_d))
-            dv = fock_ed.ProductHamiltonian(level.sector.basis, zero_u, zero_d, 1.0, derivative())
+            dv = fock_ed.ProductHamiltonian(level.sector.basis, zero_u, zero_d, 1.0, derivative(), assemble_limit=ASSEMBLE_LIMIT)
             delta_trunc = float(vector @ dv.matvec(vector))
         b_u, b_d = level.sector.lengths
         trap = fock_ed.one_body_expectation(rho_u, trap_potential_matrix(problem.up, m_u, b_u)) + fock_ed.one_body_expectation(
