@@ -81,13 +81,21 @@ def test_hellmann_feynman_through_the_derivative_of_the_effective_tensor(g):
 
 
 def test_interaction_parameter_keeps_the_old_flag_and_refuses_what_it_cannot_build():
-    problem = Problem.create(2, 1, 2.0)
+    problem = Problem.create(2, 2, 2.0)
     default = ED.solve(problem, cutoff=8, ladder=1)
     flag_off = ED.solve(problem, cutoff=8, ladder=1, renormalized=False)
     assert default.diagnostics["interaction"] == "renormalized"
     assert flag_off.diagnostics["interaction"] == "bare"
     assert ED.solve(problem, cutoff=8, ladder=1, interaction="bare").energies == flag_off.energies
     assert ED.solve(problem, cutoff=8, ladder=1, interaction="renormalized").energies == default.energies
+    # 'auto' takes the effective interaction for 2+1 and 1+2 whose pair is not heavier than the third particle
+    problem = Problem.create(2, 1, 2.0)
+    assert ED.solve(problem, cutoff=8, ladder=1).energies == ED.solve(problem, cutoff=8, ladder=1, interaction="effective").energies
+    assert ED.solve(problem, cutoff=8, ladder=1, renormalized=False).diagnostics["interaction"] == "bare"
+    for n_up, n_down, mass_up, kind in ((1, 2, 20 / 3, "effective"), (1, 2, 0.5, "renormalized"), (2, 1, 2.0, "renormalized")):
+        chosen = ED.solve(Problem.create(n_up, n_down, -1.0, mass_up=mass_up), cutoff=8, ladder=1).diagnostics["interaction"]
+        assert chosen == kind, (n_up, n_down, mass_up)
+    problem = Problem.create(2, 1, 2.0)
     with pytest.raises(Unsupported, match="equal trap frequencies"):
         ED.solve(Problem.create(1, 1, 1.0, omega_down=2.0), interaction="effective", cutoff=8, ladder=1)
     with pytest.raises(Unsupported, match="truncation = 'energy'"):
