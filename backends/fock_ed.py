@@ -539,7 +539,6 @@ class ProductHamiltonian:
         nonzeros, or the dense inner stack too large; ``fock_assembly.assemble_stacked``). The factors' operators
         come as whole stacks (``FockSpace.one_body_entries``): many factors (the effective interaction has
         thousands) then cost no sparse matrix each. ``limit`` bounds the interaction's nonzeros."""
-        n_u, n_d = self.basis.shape
         up_is_outer = fock_assembly.outer_is_up(self.basis)
         outer, inner = (self.basis.up, self.basis.down) if up_is_outer else (self.basis.down, self.basis.up)
         outer_factors, inner_factors = (f.up, f.down) if up_is_outer else (f.down, f.up)
@@ -548,8 +547,10 @@ class ProductHamiltonian:
             return None
         term, rows, cols, values = outer.one_body_entries(np.array(outer_factors), outer.hops())
         inner_stack = np.zeros((count, inner.dim, inner.dim))
-        k, target, source, entries = inner.one_body_entries(np.array(inner_factors), inner.hops())
-        np.add.at(inner_stack, (k, target, source), entries)
+        per_chunk = max(1, int(SCRATCH_ELEMENTS // 10 // max(1, inner.dim**2)))  # bounds the entry lists' memory
+        for start in range(0, count, per_chunk):
+            k, target, source, entries = inner.one_body_entries(np.array(inner_factors[start:start + per_chunk]), inner.hops())
+            np.add.at(inner_stack, (start + k, target, source), entries)
         matrix = fock_assembly.assemble_stacked(self.basis, (rows, cols, term, self.g * values), inner_stack, limit)
         if matrix is None:
             return None
