@@ -354,10 +354,15 @@ class InteractionFactors:
     down: tuple
 
     @classmethod
-    def single_hops(cls, tensor: np.ndarray, tolerance: float = 1e-14) -> InteractionFactors:
+    def single_hops(cls, tensor: np.ndarray, tolerance: float = 1e-14, species: str = "up") -> InteractionFactors:
         """A_k = the single hop c+_a c_c (one unit entry), B_k = V[a, :, c, :], for every up pair (a, c) with an
         entry above ``tolerance`` x the largest: exact up to those entries, and cheap in the engine, which
-        then computes only the scratch rows the hop reads (``_select_scratch_rows``)."""
+        then computes only the scratch rows the hop reads (``_select_scratch_rows``). ``species = "down"``
+        puts the single hops on the down species instead (B_k = hop (b, d), A_k = V[:, b, :, d]): the assembly
+        is cheapest with the hops on the species of more configurations (``fock_assembly``'s outer one)."""
+        if species == "down":
+            swapped = cls.single_hops(np.asarray(tensor, dtype=float).transpose(1, 0, 3, 2), tolerance)
+            return cls(swapped.down, swapped.up)
         tensor = np.asarray(tensor, dtype=float)
         m_u = tensor.shape[0]
         largest = np.abs(tensor).max() if tensor.size else 0.0

@@ -361,7 +361,8 @@ def test_interaction_factors_match_jordan_wigner_for_a_random_tensor():
     states = [su + sd for su in fixed_number_states(m_u, up.occupied) for sd in fixed_number_states(m_d, down.occupied, m_u)]
     expected = full[np.ix_(states, states)]
     assert np.abs(expected).max() > 0.5
-    for factors in (fe.InteractionFactors.from_tensor(tensor), fe.InteractionFactors.single_hops(tensor)):
+    for factors in (fe.InteractionFactors.from_tensor(tensor), fe.InteractionFactors.single_hops(tensor),
+                    fe.InteractionFactors.single_hops(tensor, species="down")):
         engine = fe.ProductHamiltonian(basis, np.zeros((m_u, m_u)), np.zeros((m_d, m_d)), 1.0, factors).to_dense()
         assert np.abs(engine - expected).max() < 1e-12
 

@@ -10,11 +10,13 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 import pytest
 from threadpoolctl import threadpool_limits
 
 from trapbench.backends.base import Unsupported
 from trapbench.bench.check_suite import assert_check, check_cases
+from trapbench.backends import oscillator_ed as oed
 from trapbench.backends.oscillator_ed import OscillatorEDBackend
 from trapbench.backends.registry import get
 from trapbench.problems.exact.busch import two_body_levels
@@ -128,3 +130,17 @@ def test_common_check_suite_with_the_effective_interaction(check):
     """The project's common checks (contract, virial, Hellmann-Feynman, centre-of-mass tower, parity,
     species swap, g = 0, references from other methods) with the effective interaction."""
     assert_check(check)
+
+
+def test_mirrored_three_body_problems_give_the_same_levels_with_the_effective_interaction():
+    """1+2 and 2+1 with the species (counts and masses) swapped are the same Hamiltonian (common practice). The
+    effective interaction's factors carry their single hops on the species of more configurations
+    (``hop_species``), so the two orientations are built differently (hops on the pair's species in both) and
+    must give the same levels and <sum delta>."""
+    one_two = Problem.create(1, 2, 5.0, mass_up=20 / 3, mass_down=1.0, states=3)
+    two_one = Problem.create(2, 1, 5.0, mass_up=1.0, mass_down=20 / 3, states=3)
+    assert oed.hop_species(one_two, 17, 18) == "down" and oed.hop_species(two_one, 18, 17) == "up"
+    a = ED.solve(one_two, cutoff=16, ladder=1, interaction="effective")
+    b = ED.solve(two_one, cutoff=16, ladder=1, interaction="effective")
+    assert np.allclose(a.energies, b.energies, rtol=0, atol=1e-10)
+    assert a.scalars["delta"] == pytest.approx(b.scalars["delta"], abs=1e-9)
