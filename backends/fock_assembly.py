@@ -29,11 +29,11 @@ def assemble(basis, terms, limit: float) -> sp.csr_matrix | None:
     Returns None (the caller then stays matrix-free) when there are more than ``limit`` nonzeros,
     the dense inner stack would exceed ``DENSE_STACK_LIMIT``, or an operator is complex.
     """
+    if not inner_stack_fits(basis, len(terms)):
+        return None
     n_u, n_d = basis.shape
     up_is_outer = outer_is_up(basis)
     n_inner = n_d if up_is_outer else n_u
-    if len(terms) * n_inner * n_inner > DENSE_STACK_LIMIT:
-        return None
     rows, cols, term_index, values = [], [], [], []
     inner_stack = np.zeros((len(terms), n_inner, n_inner))
     for k, (scale, op_up, op_down) in enumerate(terms):
@@ -56,6 +56,13 @@ def outer_is_up(basis) -> bool:
     """Whether the up species is the outer one (module docstring): the one with more configurations."""
     n_u, n_d = basis.shape
     return n_u >= n_d
+
+
+def inner_stack_fits(basis, count: int) -> bool:
+    """Whether ``count`` terms' dense inner stack (count x n_inner^2) stays within ``DENSE_STACK_LIMIT``."""
+    n_u, n_d = basis.shape
+    n_inner = n_d if outer_is_up(basis) else n_u
+    return count * n_inner * n_inner <= DENSE_STACK_LIMIT
 
 
 def assemble_stacked(basis, outer_entries, inner_stack: np.ndarray, limit: float) -> sp.csr_matrix | None:

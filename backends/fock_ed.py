@@ -548,7 +548,7 @@ class ProductHamiltonian:
         outer, inner = (self.basis.up, self.basis.down) if up_is_outer else (self.basis.down, self.basis.up)
         outer_factors, inner_factors = (f.up, f.down) if up_is_outer else (f.down, f.up)
         count = len(outer_factors)
-        if count * inner.dim**2 > fock_assembly.DENSE_STACK_LIMIT:
+        if not fock_assembly.inner_stack_fits(self.basis, count):
             return None
         term, rows, cols, values = outer.one_body_entries(np.array(outer_factors), outer.hops())
         inner_stack = np.zeros((count, inner.dim, inner.dim))
