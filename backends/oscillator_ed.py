@@ -497,16 +497,32 @@ def effective_by_default(problem: Problem, kind: str, length_choice: str) -> boo
     return effective_refusal(problem, kind, length_choice) is None
 
 
-@lru_cache(maxsize=8)
-def _effective_tensor_factors(g, mass_up, mass_down, omega, pair_quanta, n_up, n_down, hop_species):
-    """V_eff as engine factors, single hops on ``hop_species``; a common omega scales as
-    E(g, omega) = omega E(g / sqrt(omega), 1)."""
+@lru_cache(maxsize=4)
+def _effective_tensor(g, mass_up, mass_down, omega, pair_quanta, n_up, n_down) -> np.ndarray:
+    """V_eff[a, b; c, d] on the trap orbitals; a common omega scales as E(g, omega) = omega E(g / sqrt(omega), 1)."""
     from .effective_interaction import pair_interaction_tensor
 
     try:
         tensor = omega * pair_interaction_tensor(g / math.sqrt(omega), mass_up, mass_down, pair_quanta, n_up, n_down)
     except ArithmeticError as failure:
         raise SolverError(f"oscillator-ed: the effective interaction could not be built ({failure})") from None
+    tensor.setflags(write=False)  # shared through the cache
+    return tensor
+
+
+@lru_cache(maxsize=8)
+def _effective_tensor_factors(g, mass_up, mass_down, omega, pair_quanta, n_up, n_down, hop_species):
+    """V_eff as engine factors, single hops on ``hop_species``."""
+    tensor = _effective_tensor(g, mass_up, mass_down, omega, pair_quanta, n_up, n_down)
+    return fock_ed.InteractionFactors.single_hops(tensor, species=hop_species)
+
+
+@lru_cache(maxsize=4)
+def _effective_derivative_tensor_factors(g, step, mass_up, mass_down, omega, pair_quanta, n_up, n_down, hop_species):
+    """(V_eff(g + step) - V_eff(g - step)) / (2 step) as engine factors: the difference is taken on the tensor, so
+    the derivative has as many factors as V_eff itself."""
+    args = (mass_up, mass_down, omega, pair_quanta, n_up, n_down)
+    tensor = (_effective_tensor(g + step, *args) - _effective_tensor(g - step, *args)) / (2 * step)
     return fock_ed.InteractionFactors.single_hops(tensor, species=hop_species)
 
 
@@ -530,13 +546,13 @@ def hop_species(problem: Problem, m_u: int, m_d: int) -> str:
 def effective_derivative_factors(problem: Problem, truncation: Truncation, g: float) -> fock_ed.InteractionFactors:
     """dV_eff/dg as the central difference (V_eff(g + h) - V_eff(g - h)) / 2h, h = 1e-4 max(1, |g|):
     truncation error ~ h^2 |V'''| / 6 (relative ~1e-9 for V_eff smooth on the scale of g), rounding
-    ~ 1e-16 / h ~ 1e-12."""
+    ~ 1e-16 / h ~ 1e-12. The difference is taken on the pair tensor before it is factorized: as many factors
+    as V_eff has, not twice as many."""
     step = EFFECTIVE_DERIVATIVE_STEP * max(1.0, abs(g))
-    plus, minus = effective_factors(problem, truncation, g + step), effective_factors(problem, truncation, g - step)
-    scale = 1 / (2 * step)
-    return fock_ed.InteractionFactors(
-        tuple(scale * a for a in plus.up) + tuple(-scale * a for a in minus.up), plus.down + minus.down
-    )
+    m_u, m_d = orbital_counts(problem, truncation)
+    quanta = int(math.floor(truncation.cutoff / problem.up.omega + 1e-9))
+    return _effective_derivative_tensor_factors(float(g), step, problem.up.mass, problem.down.mass, problem.up.omega,
+                                                quanta, m_u, m_d, hop_species(problem, m_u, m_d))
 
 
 # ----------------------------------------------------------------------------- one cutoff
