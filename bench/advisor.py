@@ -302,8 +302,9 @@ def _why_not(rows: pd.DataFrame, status: pd.Series, near: pd.Series, query: Quer
         own = pd.to_numeric(unverified["own_rel_error"], errors="coerce").min()
         backend = str(unverified["backend"].iloc[0])
         if backend in PRECISION_METHODS.get(query.n, ()):
-            return (f"unverified at {query.accuracy:g}: it is the reference dataset's precision method for N = {query.n}"
-                    " (its values are the references here, so nothing independent is tighter)"
+            return (f"unverified at {query.accuracy:g}: it is the reference dataset's precision method for N = {query.n},"
+                    " graded only by another method family's values of the same levels, and none on a neighbouring"
+                    f" problem is within a tenth of {query.accuracy:g}"
                     + ("" if pd.isna(own) else f"; its own error bar claims down to {own:.2g}"))
         return (f"unverified: no reference within a tenth of {query.accuracy:g}"
                 + ("" if pd.isna(own) else f"; its own error bar claims down to {own:.2g}")

@@ -32,7 +32,9 @@ taken with its bar widened until it is (``MethodValue.own_error`` keeps the bar 
 ``merge`` applies the same choice level by level: the file keeps every run behind a level (the ones not used
 in ``other_runs``), so a later sweep is judged together with the earlier ones. A reference never
 grades a method that produced it: ``DatasetLevel.reference_for(backend)`` gives a backend the value of the
-other family alone (its own error bar as the uncertainty), and nothing when no other family contributed.
+other family alone (its own error bar as the uncertainty), and nothing when no other family contributed. An
+N = 3 level's precision method is graded by another family's run of that level where the store had one
+(``DatasetLevel.independent_check``; oscillator-ed on the shipped grid), which does not change the level's value.
 """
 
 from __future__ import annotations
@@ -149,7 +151,8 @@ class DatasetLevel:
         """(value, uncertainty, contributing methods) that may grade ``backend`` (None: no independent value).
 
         A backend whose method family (``METHOD_FAMILIES``) contributed is graded by the other families'
-        best value alone, with that method's own error bar as the uncertainty."""
+        best value alone, with that method's own error bar as the uncertainty. The precision method of a
+        "precision" level is graded by ``independent_check``, where there is one."""
         if not self.published:
             return None
         names = tuple(m.backend for m in self.methods)
@@ -158,9 +161,28 @@ class DatasetLevel:
         if backend is None or len(others) == len(self.methods):  # no method of the backend's family contributed
             return self.value, self.uncertainty, names
         if not others:
-            return None
+            check = self.independent_check()
+            return None if check is None else (check.value, check.error, (check.backend,))
         best = min(others, key=lambda m: m.error)
         return best.value, best.error, (best.backend,)
+
+    def independent_check(self) -> MethodValue | None:
+        """For a "precision" level: the narrowest value of another method family among ``other_runs``, each
+        backend's value chosen from its runs as for the dataset (``choose_run``: newest version, a bar its other
+        runs confirm); None where no other family measured the level.
+
+        The precision method's value is the level's value, so nothing in ``methods`` can grade it; another
+        family's value can, at every threshold at least ten times that value's error bar (the verdict rule).
+        It is not admitted into the dataset: the level keeps the precision method's value and uncertainty."""
+        if self.status != "precision":
+            return None
+        families = {METHOD_FAMILIES.get(m.backend, m.backend) for m in self.methods}
+        by_backend: dict[str, list[MethodValue]] = {}
+        for run in self.other_runs:
+            if METHOD_FAMILIES.get(run.backend, run.backend) not in families:
+                by_backend.setdefault(run.backend, []).append(_as_reported(run))
+        chosen = [choose_run(runs) for runs in by_backend.values()]
+        return min(chosen, key=lambda m: m.error, default=None)
 
 
 @dataclass(frozen=True)
@@ -212,7 +234,8 @@ class Dataset:
 
 
 RULE_TEXT = (
-    "N = 3: the three-body backend alone (its error bar is the uncertainty). N >= 4: two methods of different"
+    "N = 3: the three-body backend alone (its error bar is the uncertainty; another family's run of the level is"
+    " kept beside it, and grades it). N >= 4: two methods of different"
     " families (oscillator basis; lattice) agreeing within the sum of their error bars; value of the more precise,"
     " uncertainty the larger bar; otherwise 'open'. Each method's value: among the successful results of the"
     " backend's newest version, the one with the smallest error bar that agrees with each other result of that"
@@ -412,16 +435,21 @@ def disagreements(dataset: Dataset) -> list[dict[str, Any]]:
 
 
 def summary_rows(dataset: Dataset) -> list[dict[str, Any]]:
-    """One row per level: where it stands against the uncertainty goal of its particle number."""
+    """One row per level: where it stands against the uncertainty goal of its particle number, and for a
+    "precision" level its ``independent_check``: the checking backend and the gap in units of that check's bar
+    (``check_sigmas``; an honest bar keeps it within 2)."""
     rows = []
     for entry in dataset.entries:
         n = entry.n_up + entry.n_down
         goal = UNCERTAINTY_GOALS.get(n)
         for level in entry.levels:
             relative = None if level.value is None else level.uncertainty / max(abs(level.value), 1.0)
+            check = level.independent_check()
+            sigmas = None if check is None else abs(check.value - level.value) / (check.error + level.uncertainty)
             rows.append({"config": f"{entry.n_up}+{entry.n_down}", "mass_up": entry.mass_up, "mass_down": entry.mass_down,
                          "g": entry.g, "state": level.state, "status": level.status, "value": level.value,
                          "uncertainty": level.uncertainty, "relative": relative, "goal": goal,
                          "goal_met": None if relative is None or goal is None else relative <= goal,
-                         "methods": ",".join(m.backend for m in level.methods)})
+                         "methods": ",".join(m.backend for m in level.methods),
+                         "checked_by": None if check is None else check.backend, "check_sigmas": sigmas})
     return rows

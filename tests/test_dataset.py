@@ -9,6 +9,7 @@ min-max principle, common practice).
 
 import json
 
+import pandas as pd
 import pytest
 
 from trapbench.bench.cli import main
@@ -55,6 +56,29 @@ def test_three_particles_come_from_the_precision_method():
     built = dataset.build([row("three-body", 4.1, 1e-10, n=(2, 1)), row("oscillator-ed", 4.2, 1e-3, n=(2, 1))])
     level = built.entries[0].levels[0]
     assert level.status == "precision" and level.value == 4.1 and [m.backend for m in level.methods] == ["three-body"]
+
+
+def test_the_precision_method_is_graded_by_another_familys_newest_confirmed_run_alone():
+    old_version = {**row("oscillator-ed", 4.1000003, 1e-8, n=(2, 1)), "backend_version": "0"}  # superseded
+    built = dataset.build([row("three-body", 4.1, 1e-10, n=(2, 1)), old_version,
+                           row("oscillator-ed", 4.1000002, 1e-6, n=(2, 1)), row("oscillator-ed", 4.10001, 1e-4, n=(2, 1))])
+    level = built.entries[0].levels[0]
+    assert level.status == "precision" and level.value == 4.1 and level.uncertainty == 1e-10  # the check is not admitted
+    assert level.reference_for("three-body") == (4.1000002, 1e-6, ("oscillator-ed",))
+    assert level.reference_for("oscillator-ed") == (4.1, 1e-10, ("three-body",))
+    alone = dataset.build([row("three-body", 4.1, 1e-10, n=(2, 1))]).entries[0].levels[0]
+    assert alone.independent_check() is None and alone.reference_for("three-body") is None
+
+
+def test_the_shipped_three_particle_levels_are_graded_by_oscillator_ed_where_it_ran():
+    problem = Problem.create(2, 1, 0.5, mass_up=1.0, mass_down=1.0, states=3)
+    for_three_body = [r for r in references_for(problem, for_backend="three-body") if r.route == "dataset"]
+    assert [r.state for r in for_three_body] == [0, 1, 2]
+    assert all(r.methods == ("oscillator-ed",) for r in for_three_body)
+    level = dataset.load().lookup(problem).levels[0]
+    check = level.independent_check()
+    # the two independent routes agree within twice the check's bar (the check's own calibration goal)
+    assert abs(check.value - level.value) <= 2 * check.error and check.error < 1e-6
 
 
 def test_results_of_one_parity_sector_are_not_taken_for_the_full_spectrum():
@@ -253,13 +277,19 @@ def test_disagreements_list_the_levels_where_two_families_exclude_each_other():
 def test_the_report_states_the_datasets_coverage_against_the_grid_and_the_goals(monkeypatch):
     from trapbench.bench.report import analysis
 
-    built = dataset.build([row("three-body", 4.1, 1e-12, n=(2, 1)), row("oscillator-ed", 10.0002, 3e-4),
+    built = dataset.build([row("three-body", 4.1, 1e-12, n=(2, 1)), row("oscillator-ed", 4.1003, 1e-4, n=(2, 1)),
+                           row("three-body", 5.1, 1e-12, n=(2, 1), g=5.0), row("oscillator-ed", 5.1, 1e-4, n=(2, 1), g=5.0),
+                           row("three-body", 6.1, 1e-12, n=(2, 1), g=20.0),
+                           row("oscillator-ed", 10.0002, 3e-4),
                            row("lattice-dmrg", 10.0, 1e-4), row("oscillator-ed", 12.0, 1e-3, g=5.0)])
     monkeypatch.setattr(dataset, "load", lambda: built)
     status = analysis.dataset_status().set_index("config")
     # the grid: 5 mass ratios x 6 g for 2+1, 3 x 6 for 2+2 (dataset_problems)
     assert status.loc["2+1", "grid points"] == 30 and status.loc["2+2", "grid points"] == 18
-    assert status.loc["2+1", ["measured", "levels published", "within goal"]].tolist() == [1, 1, 1]
+    assert status.loc["2+1", ["measured", "levels published", "within goal"]].tolist() == [3, 3, 3]
+    # two of the three precision levels checked by oscillator-ed; 3e-4 apart is 3 of its bars: outside 2
+    assert status.loc["2+1", ["precision levels checked", "checks within 2 bars"]].tolist() == [2, 1]
+    assert pd.isna(status.loc["2+2", "precision levels checked"])
     two_two = status.loc["2+2"]
     assert (two_two["measured"], two_two["levels published"], two_two["levels open"]) == (2, 1, 1)
     assert two_two["worst"] == pytest.approx(3e-4 / 10.0) and two_two["within goal"] == 0  # goal 1e-6 at N = 4

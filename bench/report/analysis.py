@@ -49,8 +49,19 @@ def dataset_status() -> pd.DataFrame:
                     "levels published": len(published), "levels open": 0 if mine.empty else int((mine["status"] == "open").sum()),
                     "median relative uncertainty": float(relative.median()) if len(relative) else None,
                     "worst": float(relative.max()) if len(relative) else None, "goal": goal,
-                    "within goal": int((relative <= goal).sum()) if len(relative) and goal else 0})
-    return pd.DataFrame(out)
+                    "within goal": int((relative <= goal).sum()) if len(relative) and goal else 0,
+                    **_precision_checks(mine)})
+    return pd.DataFrame(out).astype({"precision levels checked": "Int64", "checks within 2 bars": "Int64"})
+
+
+def _precision_checks(rows: pd.DataFrame) -> dict[str, int | None]:
+    """Precision levels checked by another method family, and how many of those checks lie within twice the
+    checking method's bar (``dataset.summary_rows``' check_sigmas); None where the configuration has none."""
+    precision = rows[rows["status"] == "precision"] if not rows.empty else rows
+    if precision.empty:
+        return {"precision levels checked": None, "checks within 2 bars": None}
+    sigmas = pd.to_numeric(precision["check_sigmas"], errors="coerce")
+    return {"precision levels checked": int(sigmas.notna().sum()), "checks within 2 bars": int((sigmas <= 2).sum())}
 
 
 def dataset_disagreements() -> pd.DataFrame:

@@ -111,7 +111,9 @@ def dataset_section(document: Document) -> None:
         f"The reference dataset v{shipped.version} shipped with the package ({dataset.SOURCE}; rule: {shipped.rule})"
         " per configuration: grid points (mass ratios x g) measured, levels published (N = 3 by the precision method,"
         " N >= 4 where two method families agree) or open (one family only, or a disagreement), and the relative"
-        " uncertainty of the published levels (uncertainty / max(|E|, 1)) against the goal for that particle number.",
+        " uncertainty of the published levels (uncertainty / max(|E|, 1)) against the goal for that particle number."
+        " A precision level is checked by another method family where one measured it: 'checks within 2 bars' counts"
+        " those whose gap is at most twice the sum of the two bars; such a check also grades the precision method.",
         "dataset_status"))
 
 
