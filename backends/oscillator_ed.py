@@ -526,13 +526,18 @@ def _effective_derivative_tensor_factors(g, step, mass_up, mass_down, omega, pai
     return fock_ed.InteractionFactors.single_hops(tensor, species=hop_species)
 
 
-def effective_factors(problem: Problem, truncation: Truncation, g: float) -> fock_ed.InteractionFactors:
-    """V_eff(g) (``effective_interaction``) as engine factors on the trap orbitals of ``truncation``, with
-    the pair cutoff Lambda = the many-body cutoff in quanta (see the module docstring for the choice)."""
+def _effective_setting(problem: Problem, truncation: Truncation) -> tuple:
+    """What V_eff's factors on ``truncation`` depend on besides g, in the cached builders' order: the masses,
+    omega, the pair cutoff Lambda = the many-body cutoff in quanta (see the module docstring for the choice),
+    the orbitals per species and ``hop_species``."""
     m_u, m_d = orbital_counts(problem, truncation)
     quanta = int(math.floor(truncation.cutoff / problem.up.omega + 1e-9))
-    return _effective_tensor_factors(float(g), problem.up.mass, problem.down.mass, problem.up.omega, quanta, m_u, m_d,
-                                     hop_species(problem, m_u, m_d))
+    return problem.up.mass, problem.down.mass, problem.up.omega, quanta, m_u, m_d, hop_species(problem, m_u, m_d)
+
+
+def effective_factors(problem: Problem, truncation: Truncation, g: float) -> fock_ed.InteractionFactors:
+    """V_eff(g) (``effective_interaction``) as engine factors on the trap orbitals of ``truncation``."""
+    return _effective_tensor_factors(float(g), *_effective_setting(problem, truncation))
 
 
 def hop_species(problem: Problem, m_u: int, m_d: int) -> str:
@@ -549,10 +554,7 @@ def effective_derivative_factors(problem: Problem, truncation: Truncation, g: fl
     ~ 1e-16 / h ~ 1e-12. The difference is taken on the pair tensor before it is factorized: as many factors
     as V_eff has, not twice as many."""
     step = EFFECTIVE_DERIVATIVE_STEP * max(1.0, abs(g))
-    m_u, m_d = orbital_counts(problem, truncation)
-    quanta = int(math.floor(truncation.cutoff / problem.up.omega + 1e-9))
-    return _effective_derivative_tensor_factors(float(g), step, problem.up.mass, problem.down.mass, problem.up.omega,
-                                                quanta, m_u, m_d, hop_species(problem, m_u, m_d))
+    return _effective_derivative_tensor_factors(float(g), step, *_effective_setting(problem, truncation))
 
 
 # ----------------------------------------------------------------------------- one cutoff
