@@ -113,3 +113,38 @@ def test_the_asymptotic_shift_covers_a_measured_ladder_against_three_body():
     error = abs(fit.value - level.value)
     assert error <= fit.error / 2 and fit.error < 0.5 * wide.error
     assert error < 2e-5  # what the version-10 ladder reaches (version 9's cutoffs 16-28: 9.9e-5)
+
+
+# ----------------------------------------------------------------------------- the effective interaction's model
+
+
+def test_a_half_power_series_is_extrapolated_exactly():
+    """Made up: E(c) = 2 + 0.3 c^-3/2 - 0.5 c^-2 + 0.2 c^-5/2, the form ``GuardedHalfPowerSeries`` assumes; four
+    cutoffs fix it exactly, and the bar (the change when the c^-5/2 term is dropped) still covers the limit."""
+    from trapbench.backends.oscillator_ed import GuardedHalfPowerSeries
+
+    cutoffs = np.array([32.0, 36.0, 40.0, 44.0])
+    values = 2.0 + 0.3 * cutoffs**-1.5 - 0.5 * cutoffs**-2.0 + 0.2 * cutoffs**-2.5
+    fit = GuardedHalfPowerSeries()(cutoffs, values)
+    assert fit.warning is None and fit.value == pytest.approx(2.0, abs=1e-12)
+    assert 0 < fit.error < abs(values[-1] - 2.0)
+    assert fit.steps == tuple(cutoffs) and fit.values == tuple(values)  # the ladder as solved, ascending
+
+
+def test_a_drifting_exponent_is_followed_by_the_series_and_not_by_one_power():
+    """Made up: a c^-3/2 tail under a larger c^-5/2 term of the other sign, so the local exponent drifts along the
+    ladder (as measured for the effective interaction); one fitted power overshoots, the series does not."""
+    from trapbench.backends.oscillator_ed import GuardedHalfPowerSeries
+
+    cutoffs = np.array([32.0, 36.0, 40.0, 44.0])
+    values = -1.0 + 0.02 * cutoffs**-1.5 - 0.9 * cutoffs**-2.5
+    series, power = GuardedHalfPowerSeries()(cutoffs, values), GuardedPowerLaw()(cutoffs, values)
+    assert abs(series.value + 1.0) < 1e-12 and abs(series.value + 1.0) <= series.error
+    assert abs(power.value + 1.0) > 1e-5  # the fitted power (3.6 here) stops short of the limit
+
+
+def test_the_series_hands_a_turned_around_ladder_to_the_power_law_guards():
+    from trapbench.backends.oscillator_ed import GuardedHalfPowerSeries
+
+    values = np.array([1.0, 1.002, 1.0025, 1.0022])
+    assert GuardedHalfPowerSeries()(CUTOFFS, values) == GuardedPowerLaw()(CUTOFFS, values)

@@ -6,6 +6,7 @@ Run by hand (not part of the test suite), one core:
     OMP_NUM_THREADS=1 python bench/benchmarks/bench_effective_interaction.py            # full table
     OMP_NUM_THREADS=1 python bench/benchmarks/bench_effective_interaction.py --quick    # cutoffs 8..16
     OMP_NUM_THREADS=1 python bench/benchmarks/bench_effective_interaction.py --survey   # 2+1 error-bar survey
+    OMP_NUM_THREADS=1 python bench/benchmarks/bench_effective_interaction.py --windows  # ladder models, cutoffs to 64
 
 Cases: 2+1 with the pair's mass ratio m_up/m_down = 1 and 20/3 at g = 2 and -1 (reference: the
 ``three-body`` backend, ~1e-8), and 2+2 equal masses at g = 2 (no reference precise enough: the agreed
@@ -20,7 +21,11 @@ its sign over those cutoffs. A refused combination (the effective interaction wh
 trimer can bind) is printed as refused and left out of the tables. The coverage table applies the
 backend's ladder rule to every four consecutive cutoffs of the 2+1 rows. ``--survey`` runs the backend
 with its default ladder (effective, then running interaction) on 2+1 over mass ratios 0.15-20/3 and g = -3 ... 20 (three levels each) against
-``three-body`` and counts the levels within twice their error bars.
+``three-body`` and counts the levels within twice their error bars. ``--windows`` solves eight 2+1 problems with
+the effective interaction at cutoffs 12, 16, ..., 64 (one ladder each, the pair not heavier than the third particle,
+g = -3 ... 20) and applies the backend's model for that interaction (``GuardedHalfPowerSeries``) and the running
+coupling's (``GuardedPowerLaw``) to every four consecutive cutoffs from 28 up, against ``three-body``; it also prints
+the local exponents log(e_k / e_k+1) / log(c_k+1 / c_k) of the raw errors.
 """
 
 from __future__ import annotations
@@ -113,7 +118,7 @@ def coverage(rows) -> list[str]:
         n_up, n_down, ratio, g = row["case"]
         c, e = row["cutoffs"], row["energies"]
         for end in range(4, len(c) + 1):
-            fit = cutoff_model(True)(c[end - 4 : end], e[end - 4 : end])
+            fit = cutoff_model(row["interaction"])(c[end - 4 : end], e[end - 4 : end])
             error = fit.value - row["reference"]
             inside = abs(error) <= 2 * fit.error
             summary.setdefault(row["interaction"], []).append((inside, fit.error / max(abs(error), 1e-15)))
@@ -174,11 +179,66 @@ def survey(interaction: str, states: int = 3) -> list[str]:
     return lines
 
 
+WINDOW_CASES = [(1.0, m, g) for m, g in ((1.0, -3.0), (2.0, -3.0), (20 / 3, -3.0), (1.0, -1.0), (1.0, 2.0), (2.0, 5.0),
+                                         (1.0, 20.0), (20 / 3, 20.0))]
+
+
+def windows(top: int = 64, first: int = 28) -> list[str]:
+    """Both ladder models on every four consecutive cutoffs of long effective-interaction ladders (module docstring)."""
+    import statistics
+
+    import numpy as np
+    from threadpoolctl import threadpool_limits
+
+    from trapbench.backends.oscillator_ed import GuardedPowerLaw, OscillatorEDBackend, cutoff_model
+    from trapbench.backends.registry import get
+    from trapbench.problems.spec import Problem
+
+    models = {"half-power series": cutoff_model("effective"), "fitted power": GuardedPowerLaw()}
+    lines = ["| pair/third | g | cutoffs | " + " | ".join(f"{name}: error, bar" for name in models) + " |",
+             "|---|---|---|" + "---|" * len(models)]
+    marks = {name: [] for name in models}
+    with threadpool_limits(limits=1):
+        for m_pair, m_third, g in WINDOW_CASES:
+            problem = Problem.create(2, 1, g, mass_up=m_pair, mass_down=m_third, states=1)
+            reference = get("three-body").solve(problem).energies[0]
+            start = time.process_time()
+            result = OscillatorEDBackend().solve(problem, interaction="effective", cutoff=top, ladder=(top - 12) // 4 + 1)
+            cpu = time.process_time() - start
+            cutoffs = np.array(result.diagnostics["cutoffs"], dtype=float)
+            raw = np.array([level[0] for level in result.diagnostics["raw_energies"]])
+            errors = raw - reference
+            local = np.log(np.abs(errors[:-1] / errors[1:])) / np.log(cutoffs[1:] / cutoffs[:-1])
+            print(f"pair/third {m_pair / m_third:.3g}, g = {g:g}: {cpu:.0f} CPU s; local exponents "
+                  + " ".join(f"{p:.2f}" for p in local), flush=True)
+            for end in range(4, len(cutoffs) + 1):
+                if cutoffs[end - 4] < first:
+                    continue
+                cells = []
+                for name, model in models.items():
+                    fit = model(cutoffs[end - 4 : end], raw[end - 4 : end])
+                    error = fit.value - reference
+                    marks[name].append((abs(error), fit.error))
+                    cells.append(f"{error:+.1e}, {fit.error:.1e}")
+                lines.append(f"| {m_pair / m_third:.3g} | {g:g} | {cutoffs[end - 4]:.0f}-{cutoffs[end - 1]:.0f} | "
+                             + " | ".join(cells) + " |")
+    for name, found in marks.items():
+        ratios = [bar / max(err, 1e-15) for err, bar in found]
+        lines.append(f"\n{name}: {sum(err <= 2 * bar for err, bar in found)}/{len(found)} within 2 bars; median |error|"
+                     f" {statistics.median(err for err, _ in found):.1e}; median bar / |error| {statistics.median(ratios):.1f},"
+                     f" smallest {min(ratios):.2f}")
+    return lines
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true")
     parser.add_argument("--survey", action="store_true", help="only the 2+1 coverage survey with default ladders")
+    parser.add_argument("--windows", action="store_true", help="only the ladder models on 2+1 ladders to cutoff 64")
     args = parser.parse_args()
+    if args.windows:
+        print("\n".join(windows()))
+        return
     if args.survey:
         for interaction in ("effective", "renormalized"):
             print("\n".join(survey(interaction)))

@@ -15,6 +15,8 @@ against the combined bars, |E - reference| <= 2 (bar + reference uncertainty). T
 ladder (``diagnostics.energy_fits``: cutoffs and raw energies) is extrapolated again with
 ``GuardedPowerLaw(change_factor=f, asymptotic_shift=s)`` for each factor and exponent shift (of ladders
 reaching the asymptotic cutoff) asked (defaults: the backend's), so one set of solves measures every variant.
+With ``--interaction effective`` the stored effective-interaction ladders are graded instead, first with the backend's
+model for them (``GuardedHalfPowerSeries``, "half-power series") and then with ``GuardedPowerLaw`` as before version 15.
 With ``--as-reported`` the stored energies and bars are graded as the backend reported them (no
 re-extrapolation; e.g. version 7's centre-of-mass copies, which take their parent's value and bar).
 Reported per N: levels graded, within 2 bars, the median and the smallest of bar / |E - reference|; then
@@ -31,7 +33,7 @@ from collections import defaultdict
 
 import numpy as np
 
-from trapbench.backends.oscillator_ed import GuardedPowerLaw
+from trapbench.backends.oscillator_ed import GuardedPowerLaw, cutoff_model
 from trapbench.problems import dataset
 
 LATTICE = ("lattice-dmrg", "lattice-ed")
@@ -68,11 +70,11 @@ def reported(stores: list[str]):
             yield n, key, level, energy, bar
 
 
-def ladders(stores: list[str]):
-    """(N, grid key, level, cutoffs, raw energies) of every stored oscillator-ed renormalized ladder."""
+def ladders(stores: list[str], interaction: str = "renormalized"):
+    """(N, grid key, level, cutoffs, raw energies) of every stored oscillator-ed ladder with ``interaction``."""
     for n, key, result in stored_results(stores):
         diagnostics = result.get("diagnostics") or {}
-        if diagnostics.get("interaction") != "renormalized":
+        if diagnostics.get("interaction") != interaction:
             continue
         for level, fit in enumerate(diagnostics.get("energy_fits") or []):
             if len(fit["steps"]) >= 4:
@@ -85,6 +87,9 @@ def main() -> None:
     parser.add_argument("--factor", action="append", type=float, default=None)
     parser.add_argument("--shift", action="append", type=float, default=None, help="exponent shift of ladders reaching the asymptotic cutoff")
     parser.add_argument("--as-reported", action="store_true", help="grade the stored energies and bars as they are")
+    parser.add_argument("--interaction", choices=("renormalized", "effective"), default="renormalized",
+                        help="which stored ladders; 'effective' grades the backend's model for them"
+                        " (GuardedHalfPowerSeries) against GuardedPowerLaw on the same ladders")
     parser.add_argument("--without-turn-remainder", action="store_true",
                         help="a turned-around ladder's bar without the remainder of its last change (before version 13)")
     args = parser.parse_args()
@@ -93,10 +98,12 @@ def main() -> None:
         found = list(reported(args.store))
         variants = [None]
     else:
-        found = list(ladders(args.store))
+        found = list(ladders(args.store, args.interaction))
         backend_rule = GuardedPowerLaw()
         variants = [(f, s) for f in args.factor or [backend_rule.change_factor]
                     for s in args.shift or [backend_rule.asymptotic_shift]]
+        if args.interaction == "effective":
+            variants.insert(0, "series")
     print(f"ladders: {len(found)} levels from {len(args.store)} store(s); dataset version {shipped.version}\n")
     print("| change_factor, exponent shift | N | graded | within 2 bars | coverage | median bar/err | smallest bar/err |"
           " all with a reference | within 2 combined bars |")
@@ -112,6 +119,9 @@ def main() -> None:
                 continue
             if variant is None:
                 value, bar = data
+            elif variant == "series":
+                fit = cutoff_model("effective")(*data)
+                value, bar = fit.value, fit.error
             else:
                 rule = GuardedPowerLaw(change_factor=variant[0], asymptotic_shift=variant[1],
                                        turn_remainder=not args.without_turn_remainder)
@@ -125,7 +135,8 @@ def main() -> None:
             within = sum(r >= 0.5 for r in ratios)
             strict = (f"{len(ratios)} | {within} | {100 * within / len(ratios):.0f} % | {statistics.median(ratios):.1f} |"
                       f" {min(ratios):.2f}") if ratios else "0 | | | |"
-            print(f"| {'as reported' if variant is None else f'{variant[0]:g}, {variant[1]:g}'} | {n} | {strict} | {len(combined[n])} |"
+            label = "as reported" if variant is None else "half-power series" if variant == "series" else f"{variant[0]:g}, {variant[1]:g}"
+            print(f"| {label} | {n} | {strict} | {len(combined[n])} |"
                   f" {sum(combined[n])} |")
 
 

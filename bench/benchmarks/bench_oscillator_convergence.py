@@ -65,7 +65,7 @@ def run_case(index: int, budget: float) -> dict:
             }
             if len(rows) >= 2:  # the backend's rule on its default ladder of (up to) four cutoffs
                 ladder = rows[-3:] + [row]
-                fit = oe.cutoff_model(True)([r["cutoff"] for r in ladder], [r["energy"] for r in ladder])
+                fit = oe.cutoff_model("renormalized")([r["cutoff"] for r in ladder], [r["energy"] for r in ladder])
                 row["extrapolated"], row["error_bar"] = fit.value, fit.error
             rows.append(row)
             cutoff += 4
