@@ -104,8 +104,9 @@ renormalized interaction E_inf + A c^-p with p fitted (2+2, g = 2: p rises from 
 c = 8-32, then 1.67 at c = 36-44), its bar widened where the ladder is not yet asymptotic
 (``GuardedPowerLaw``); effective interaction E_inf + a c^-3/2 + b c^-2 + d c^-5/2 on ladders from cutoff 24 up
 (``GuardedHalfPowerSeries``, the power law elsewhere). The solver floor is the Lanczos tolerance. <V_trap> and dE/dg
-are extrapolated with the energy's model, with the effective interaction's power law (they converge like c^-1
-there; ``scalar_errors``); the kinetic energy and the contact derived from them carry the propagated error bars.
+are extrapolated with the energy's model, for the effective interaction with the power law (their exponents differ
+from the energy's there; ``scalar_errors``); the kinetic energy and the contact derived from them carry the
+propagated error bars.
 
 Default ladders (version 10): largest cutoff 44 for three particles and 32 for four (28 and 24 before), step 4.
 A sector's H is built as an explicit CSR matrix up to ``ASSEMBLE_LIMIT`` nonzeros (``fock_assembly``), whose
@@ -919,10 +920,10 @@ class GuardedHalfPowerSeries:
     powers of 1/Lambda for a momentum cutoff Lambda is the effective-field-theory picture of the 1D contact,
     S. Szpigel and R. J. Perry, arXiv:nucl-th/9906031; the odd-power detail from memory). The effective interaction
     reproduces the two-body spectrum in the basis exactly; the working assumption, borne out by the measurements
-    below, is that this removes the c^(-1/2) and c^(-1) terms, so what is left starts at c^(-3/2). A fitted single power cannot follow that: the local exponent drifts at every reachable cutoff
-    (2+1 against ``three-body``, cutoffs 12-64: 2.11 -> 2.32 at g = -3 and 1.71 -> 1.67 at g = 20, equal
-    masses), so a three-cutoff power law overshoots (8.2e-5 at g = -3, cutoffs 32-44) or stops short. The
-    three known powers are fitted exactly on the last four cutoffs (``extrapolation.extrapolate_polynomial``:
+    below, is that this removes the c^(-1/2) and c^(-1) terms, so what is left starts at c^(-3/2). A fitted single
+    power cannot follow that: the local exponent drifts at every reachable cutoff (2+1 against ``three-body``,
+    cutoffs 12-64: 2.11 -> 2.32 at g = -3 and 1.71 -> 1.67 at g = 20, equal masses), so a three-cutoff power law
+    overshoots (8.2e-5 at g = -3, cutoffs 32-44) or stops short. The three known powers are fitted exactly on the last four cutoffs (``extrapolation.extrapolate_polynomial``:
     its bar is the largest of the change when the highest power is dropped, the change without the least
     converged cutoff when there are five or more, and 5 % of the correction); three cutoffs fit the first
     two powers.
@@ -947,8 +948,9 @@ class GuardedHalfPowerSeries:
     bars, median error 3.1e-6 -> 1.7e-6, median bar 3.3 times the error, smallest 1.06. Where a user takes the
     effective interaction for a heavier repelled pair (2+1, mass ratios 2 and 20/3, g = 0.5 ... 20, default ladders,
     24 levels; a one-off check against ``three-body``) every level lay within 1.2 bars, the series' errors no better
-    than the power law's at mass ratio 2. Not used for the energies' scalars:
-    <V_trap> and dE/dg converge like c^-1 there (their model stays ``GuardedPowerLaw``).
+    than the power law's at mass ratio 2. Not used for the energies' scalars: <V_trap> and dE/dg follow other
+    exponents (fitted 1.0-1.8 and 0.7-2.2 on the 18 effective 2+1 grid problems) and the series was not measured on
+    them, so they keep ``GuardedPowerLaw``.
     """
 
     powers: tuple[float, ...] = (3.0, 4.0, 5.0)  # in h = c^(-1/2)
@@ -1171,9 +1173,9 @@ class OscillatorEDBackend(Backend):
             return Rung(c, found, diag)
 
         # levels are followed by (parity sector, rank within the sector): level order across sectors
-        # can change with the cutoff, order within a sector cannot. <V_trap> and dE/dg converge like
-        # the energy; dg_eff/dg comes from a central difference of the exact pair energy (step 1e-4 g),
-        # good to about 1e-8 relative: their error floor.
+        # can change with the cutoff, order within a sector cannot. <V_trap> and dE/dg take the energy's model
+        # (the power law with the effective interaction, see GuardedHalfPowerSeries); dg_eff/dg comes from a
+        # central difference of the exact pair energy (step 1e-4 g), good to about 1e-8 relative: their error floor.
         model = cutoff_model(interaction)
         ladder = run_ladder(
             cutoffs,
