@@ -915,18 +915,18 @@ class GuardedPowerLaw:
 class GuardedHalfPowerSeries:
     """E(c) = E_inf + a c^(-3/2) + b c^(-2) + d c^(-5/2): the effective interaction's ladder model.
 
-    The error of a truncated oscillator expansion of a state with contact cusps is a series in powers of
-    1 / k_max ~ c^(-1/2) (the bare contact's leading term c^(-1/2) is measured above; a series in odd
-    powers of 1/Lambda for a momentum cutoff Lambda is the effective-field-theory picture of the 1D contact,
-    S. Szpigel and R. J. Perry, arXiv:nucl-th/9906031; the odd-power detail from memory). The effective interaction
-    reproduces the two-body spectrum in the basis exactly; the working assumption, borne out by the measurements
-    below, is that this removes the c^(-1/2) and c^(-1) terms, so what is left starts at c^(-3/2). A fitted single
-    power cannot follow that: the local exponent drifts at every reachable cutoff (2+1 against ``three-body``,
-    cutoffs 12-64: 2.11 -> 2.32 at g = -3 and 1.71 -> 1.67 at g = 20, equal masses), so a three-cutoff power law
-    overshoots (8.2e-5 at g = -3, cutoffs 32-44) or stops short. The three known powers are fitted exactly on the last four cutoffs (``extrapolation.extrapolate_polynomial``:
-    its bar is the largest of the change when the highest power is dropped, the change without the least
-    converged cutoff when there are five or more, and 5 % of the correction); three cutoffs fit the first
-    two powers.
+    The error of a truncated oscillator expansion of a state with contact cusps is a series in powers of 1 / k_max ~
+    c^(-1/2) (the bare contact's leading term c^(-1/2) is measured above; a series in odd powers of 1/Lambda for a
+    momentum cutoff Lambda is the effective-field-theory picture of the 1D contact, S. Szpigel and R. J. Perry,
+    arXiv:nucl-th/9906031; the odd-power detail from memory). The effective interaction reproduces the two-body
+    spectrum in the basis exactly; the working assumption, borne out by the measurements below, is that this removes
+    the c^(-1/2) and c^(-1) terms, so what is left starts at c^(-3/2). A fitted single power cannot follow that: the
+    local exponent drifts at every reachable cutoff (2+1 against ``three-body``, cutoffs 12-64: 2.11 -> 2.32 at g =
+    -3 and 1.71 -> 1.67 at g = 20, equal masses), so a three-cutoff power law overshoots (8.2e-5 at g = -3, cutoffs
+    32-44) or stops short. The three known powers are fitted exactly on the last four cutoffs
+    (``extrapolation.extrapolate_polynomial``: its bar is the largest of the change when the highest power is
+    dropped, the change without the least converged cutoff when there are five or more, and 5 % of the correction);
+    three cutoffs fit the first two powers.
 
     Guards: wherever ``GuardedPowerLaw`` warns -- a ladder that turned around, an exponent at either end of its
     scan -- or its fitted exponent is below 1 (``power_floor``: a term slower than the series' leading c^(-3/2) still
