@@ -140,7 +140,7 @@ def test_a_drifting_exponent_is_followed_by_the_series_and_not_by_one_power():
     values = -1.0 + 0.02 * cutoffs**-1.5 - 0.9 * cutoffs**-2.5
     series, power = GuardedHalfPowerSeries()(cutoffs, values), GuardedPowerLaw()(cutoffs, values)
     assert abs(series.value + 1.0) < 1e-12 and abs(series.value + 1.0) <= series.error
-    assert abs(power.value + 1.0) > 1e-5  # the fitted power (3.6 here) stops short of the limit
+    assert power.value + 1.0 > 1e-5  # the fitted power (3.6 here) overshoots the limit (the ladder rises toward -1)
 
 
 def test_the_series_hands_a_turned_around_ladder_to_the_power_law_guards():
