@@ -187,7 +187,7 @@ from . import fock_ed
 from . import oscillator_scaling as scaling
 from ..problems import exact as ob
 from .base import Backend, Capabilities, Parameter, SolverError, Support
-from .extrapolation import DriftingPowerLaw, Extrapolation, PolynomialModel, extrapolate_polynomial
+from .extrapolation import DriftingPowerLaw, Extrapolation, PolynomialModel
 from .ladder import Rung, RungLevel, grid_error, last_change_bar, rank_keys, run_ladder
 from .result import Observable, Solution
 
@@ -924,9 +924,9 @@ class GuardedHalfPowerSeries:
     local exponent drifts at every reachable cutoff (2+1 against ``three-body``, cutoffs 12-64: 2.11 -> 2.32 at g =
     -3 and 1.71 -> 1.67 at g = 20, equal masses), so a three-cutoff power law overshoots (8.2e-5 at g = -3, cutoffs
     32-44) or stops short. The three known powers are fitted exactly on the last four cutoffs
-    (``extrapolation.extrapolate_polynomial``: its bar is the largest of the change when the highest power is
-    dropped, the change without the least converged cutoff when there are five or more, and 5 % of the correction);
-    three cutoffs fit the first two powers.
+    (``extrapolation.PolynomialModel`` in h = c^(-1/2), i.e. ``extrapolate_polynomial``: its bar is the largest of
+    the change when the highest power is dropped, the change without the least converged cutoff when there are five
+    or more, and 5 % of the correction); three cutoffs fit the first two powers.
 
     Guards: wherever ``GuardedPowerLaw`` warns -- a ladder that turned around, an exponent at either end of its
     scan -- or its fitted exponent is below 1 (``power_floor``: a term slower than the series' leading c^(-3/2) still
@@ -967,12 +967,10 @@ class GuardedHalfPowerSeries:
             or float(np.min(steps)) < self.first_cutoff
         ):
             return guarded
-        h = np.asarray(steps, dtype=float) ** -0.5
-        kept = self.powers[: max(1, min(len(self.powers), len(h) - 1))]
-        fit = extrapolate_polynomial(h, values, powers=kept)
+        fit = PolynomialModel(powers=self.powers, exponent=-0.5)(steps, values)
         return replace(
             fit,
-            model="E(c) = E_inf + " + " + ".join(f"a{p:g} c^-{p / 2:g}" for p in kept),
+            model="E(c) = E_inf + " + " + ".join(f"a{p:g} c^-{p / 2:g}" for p in fit.parameters["powers"]),
             steps=tuple(float(c) for c in steps),
             values=tuple(float(v) for v in values),
         )

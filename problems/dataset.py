@@ -436,8 +436,8 @@ def disagreements(dataset: Dataset) -> list[dict[str, Any]]:
 
 def summary_rows(dataset: Dataset) -> list[dict[str, Any]]:
     """One row per level: where it stands against the uncertainty goal of its particle number, and for a
-    "precision" level its ``independent_check``: the checking backend and the gap in units of that check's bar
-    (``check_sigmas``; an honest bar keeps it within 2)."""
+    "precision" level its ``independent_check``: the checking backend and the gap in units of the sum of the check's
+    bar and the level's uncertainty (``check_sigmas``; honest bars keep it within 2)."""
     rows = []
     for entry in dataset.entries:
         n = entry.n_up + entry.n_down
