@@ -96,10 +96,15 @@ def run_on_dask(
                 done = wait(list(pending), timeout=POLL_S, return_when="FIRST_COMPLETED").done
             except TimeoutError:
                 done = set()
+            progressed = False
             for future in done:
-                finished(pending.pop(future), _outcome_of(future))
+                outcome = _outcome_of(future)
+                if outcome is None:  # its result went down with its worker; Dask runs it again
+                    continue
+                finished(pending.pop(future), outcome)
+                progressed = True
+            if progressed or not pending:
                 last_progress = time.monotonic()
-            if done or not pending:
                 continue
             now = time.monotonic()
             if _worker_count(client) == 0:
@@ -122,12 +127,19 @@ def run_on_dask(
             cluster.close(timeout=30)
 
 
-def _outcome_of(future) -> Outcome:
-    """The task's outcome, or a failure saying why Dask could not produce one (a lost worker, ...)."""
+def _outcome_of(future) -> Outcome | None:
+    """The task's outcome, a failure saying why Dask could not produce one, or None when it is gone.
+
+    A future reported done can lose its result before it is fetched (the worker holding it dies):
+    Dask then marks it lost and runs the task again, and an unbounded ``result()`` would wait for a
+    worker that may never come. The fetch is bounded; None leaves the task pending.
+    """
     try:
-        data = future.result()
+        data = future.result(timeout=QUERY_TIMEOUT_S)
         data.pop("worker_pid", None)
         return Outcome(**data)
+    except TimeoutError:
+        return None
     except Exception as exc:  # a killed worker or a serialization failure: recorded, retried next sweep
         return Outcome(status=FAILED, error=f"Dask could not run the task: {type(exc).__name__}: {exc}",
                        error_type=type(exc).__name__)

@@ -19,6 +19,7 @@ import subprocess
 import sys
 import threading
 import time
+import types
 from pathlib import Path
 
 import pytest
@@ -201,6 +202,71 @@ def test_default_dask_worker_isolates_tasks_and_a_lost_cluster_never_hangs(toy_p
     finally:
         for process in workers + [scheduler]:
             kill_tree(process)
+
+
+class _LostResultFuture:
+    """A Dask future reported done whose result then went down with its worker (Dask marks it lost)."""
+
+    def __init__(self):
+        self.fetch_timeouts = []
+
+    def result(self, timeout=None):
+        self.fetch_timeouts.append(timeout)
+        if timeout is None:  # what distributed does here: wait for a rerun on a worker that never comes
+            raise AssertionError("an unbounded fetch of a lost result waits forever")
+        raise TimeoutError
+
+
+class _ClusterWithoutWorkers:
+    """A Client whose only worker died after its task finished: no worker connected, results lost."""
+
+    def __init__(self, address):
+        self.futures = []
+
+    def submit(self, *args, **kwargs):
+        self.futures.append(_LostResultFuture())
+        return self.futures[-1]
+
+    def nthreads(self, callback_timeout=None):
+        return {}
+
+    def cancel(self, futures, force=False):
+        pass
+
+    def close(self, timeout=None):
+        pass
+
+
+def test_a_result_lost_with_its_worker_is_not_awaited_without_bound(toy_path, tmp_path, monkeypatch):
+    """The race behind a hung CI run: ``wait`` reports a task done, its worker is killed before the result
+    is fetched. The coordinator bounds the fetch, keeps the task pending and stops after the worker wait."""
+    import distributed
+
+    from trapbench.bench import distributed as on_dask
+
+    clients = []
+
+    def client(address):
+        clients.append(_ClusterWithoutWorkers(address))
+        return clients[-1]
+
+    def wait_once_done(futures, timeout, return_when):  # the first poll sees them done, later ones nothing
+        if not getattr(wait_once_done, "called", False):
+            wait_once_done.called = True
+            return types.SimpleNamespace(done=set(futures))
+        raise TimeoutError
+
+    monkeypatch.setattr(distributed, "Client", client)
+    monkeypatch.setattr(distributed, "wait", wait_once_done)
+    monkeypatch.setattr(on_dask, "QUERY_TIMEOUT_S", 0.1)
+    suite = load_suite(write_sleep_suite(tmp_path, count=2, seconds=0.0))
+    finished = []
+    began = time.monotonic()
+    with pytest.raises(on_dask.SweepStalled, match="no Dask worker connected for 0.5 s"):
+        on_dask.run_on_dask(suite.tasks(), lambda task: Limits(timeout_s=10), lambda *a: finished.append(a),
+                            scheduler="tcp://127.0.0.1:1", worker_wait_s=0.5)
+    assert time.monotonic() - began < 10 and finished == []
+    assert [f.fetch_timeouts for f in clients[0].futures] == [[0.1], [0.1]]
 
 
 def write_sleep_suite(tmp_path: Path, count: int, seconds: float) -> Path:
