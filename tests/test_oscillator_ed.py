@@ -424,6 +424,21 @@ def test_a_two_cutoff_ladder_covers_the_precision_solver(mass_up, g):
     assert abs(default.energies[0] - reference) <= 2 * default.energy_errors[0]
 
 
+def test_a_two_cutoff_ladder_beyond_four_particles_is_refused_unless_the_contact_is_bare():
+    """The two-cutoff bar rests on laws measured up to 2+2; 4+4 at cutoffs 6-8 wandered (``TWO_RUNG_MAX_PARTICLES``)."""
+    from trapbench.backends.oscillator_ed import TWO_RUNG_MAX_PARTICLES
+
+    two_rungs = {"cutoff": 8, "ladder": 2, "ladder_step": 2}
+    eight = Problem.from_dict({"up": {"count": 4, "mass": 20 / 3}, "down": {"count": 4}, "interaction": {"g": 2.0}})
+    for interaction in ("auto", "renormalized", "effective"):
+        with pytest.raises(SpecError, match=r"param\.ladder.*ladder >= 3"):
+            ED.supports(eight, {**two_rungs, "interaction": interaction})
+    assert ED.supports(eight, {**two_rungs, "interaction": "bare"}).ok
+    assert ED.supports(eight, {**two_rungs, "ladder": 3}).ok
+    four = Problem.from_dict({"up": {"count": 2}, "down": {"count": 2}, "interaction": {"g": 2.0}})
+    assert four.n_particles == TWO_RUNG_MAX_PARTICLES and ED.supports(four, two_rungs).ok
+
+
 @pytest.mark.parametrize("mass_up, g, interaction", [(1.0, 2.0, "auto"), (2.0, 10.0, "effective"), (20 / 3, 2.0, "auto")])
 def test_density_error_bars_cover_the_precision_solver(mass_up, g, interaction):
     """2+1 densities with default cutoffs against ``three-body``'s (an independent solver of the same
