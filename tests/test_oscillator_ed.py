@@ -424,19 +424,22 @@ def test_a_two_cutoff_ladder_covers_the_precision_solver(mass_up, g):
     assert abs(default.energies[0] - reference) <= 2 * default.energy_errors[0]
 
 
-def test_a_two_cutoff_ladder_beyond_four_particles_is_refused_unless_the_contact_is_bare():
-    """The two-cutoff bar rests on laws measured up to 2+2; 4+4 at cutoffs 6-8 wandered (``TWO_RUNG_MAX_PARTICLES``)."""
-    from trapbench.backends.oscillator_ed import TWO_RUNG_MAX_PARTICLES
+def test_ladders_of_two_or_three_cutoffs_beyond_four_particles_are_refused_unless_the_contact_is_bare():
+    """Their bars rest on measurements up to 2+2; at 4+4 they missed (``SHORT_LADDER_MAX_PARTICLES``)."""
+    from trapbench.backends.oscillator_ed import SHORT_LADDER_MAX_PARTICLES
 
-    two_rungs = {"cutoff": 8, "ladder": 2, "ladder_step": 2}
     eight = Problem.from_dict({"up": {"count": 4, "mass": 20 / 3}, "down": {"count": 4}, "interaction": {"g": 2.0}})
-    for interaction in ("auto", "renormalized", "effective"):
-        with pytest.raises(SpecError, match=r"param\.ladder.*ladder >= 3"):
-            ED.supports(eight, {**two_rungs, "interaction": interaction})
-    assert ED.supports(eight, {**two_rungs, "interaction": "bare"}).ok
-    assert ED.supports(eight, {**two_rungs, "ladder": 3}).ok
+    for ladder in (2, 3):
+        short = {"cutoff": 8, "ladder": ladder, "ladder_step": 2}
+        for interaction in ("auto", "renormalized", "effective"):
+            with pytest.raises(SpecError, match=r"param\.ladder.*ladder >= 4"):
+                ED.supports(eight, {**short, "interaction": interaction})
+        assert ED.supports(eight, {**short, "interaction": "bare"}).ok
+    for ladder in (1, 4):
+        assert ED.supports(eight, {"cutoff": 8, "ladder": ladder, "ladder_step": 2}).ok
     four = Problem.from_dict({"up": {"count": 2}, "down": {"count": 2}, "interaction": {"g": 2.0}})
-    assert four.n_particles == TWO_RUNG_MAX_PARTICLES and ED.supports(four, two_rungs).ok
+    assert four.n_particles == SHORT_LADDER_MAX_PARTICLES
+    assert ED.supports(four, {"cutoff": 8, "ladder": 2, "ladder_step": 2}).ok
 
 
 @pytest.mark.parametrize("mass_up, g, interaction", [(1.0, 2.0, "auto"), (2.0, 10.0, "effective"), (20 / 3, 2.0, "auto")])
