@@ -266,15 +266,17 @@ def level_runs(rows: Iterable[Mapping[str, Any]]) -> dict[str, dict[int, dict[st
 
     ``rows`` are the store's tidy result rows (``Store.results_frame``): backend, backend_version, params,
     n_up, n_down, mass_up, mass_down, g, state, energy, energy_error, status, cpu_time_s, and the task's
-    ``problem`` (its targets' parity sector). Rows without an error bar, of a parity sector (their levels are not
-    the lowest of the full spectrum), or of a failed task are ignored.
+    ``problem`` (its trap and its targets' parity sector). Rows without an error bar, of a parity sector (their
+    levels are not the lowest of the full spectrum), of another trap than the harmonic one at omega = 1 (the key
+    does not hold the trap, ``problem_key``), or of a failed task are ignored.
     """
     runs: dict[str, dict[int, dict[str, list[MethodValue]]]] = {}
     for row in rows:
         if row.get("status", "ok") != "ok" or row.get("energy") is None or row.get("energy_error") is None:
             continue
-        sector = ((row.get("problem") or {}).get("targets") or {}).get("parity", "any")
-        if sector != "any" or row["backend"] not in METHOD_FAMILIES:
+        problem = row.get("problem") or {}
+        sector = (problem.get("targets") or {}).get("parity", "any")
+        if sector != "any" or row["backend"] not in METHOD_FAMILIES or not _plain_trap(problem):
             continue
         energy, error = float(row["energy"]), float(row["energy_error"])
         if not (math.isfinite(energy) and math.isfinite(error)):
@@ -285,6 +287,12 @@ def level_runs(rows: Iterable[Mapping[str, Any]]) -> dict[str, dict[int, dict[st
             MethodValue(row["backend"], str(row.get("backend_version", "")), dict(row.get("params") or {}),
                         energy, error, row.get("cpu_time_s")))
     return runs
+
+
+def _plain_trap(problem: Mapping[str, Any]) -> bool:
+    """The stored problem's trap is the harmonic one with omega = 1 for both species (what a physics key means)."""
+    harmonic = (problem.get("trap") or {}).get("shape", "harmonic") == "harmonic"
+    return harmonic and all(float((problem.get(name) or {}).get("omega", 1.0)) == 1.0 for name in ("up", "down"))
 
 
 def _version_rank(version: str) -> tuple:
@@ -413,25 +421,43 @@ def disagreements(dataset: Dataset) -> list[dict[str, Any]]:
     so an error-bar calibration measured on the agreed levels alone cannot see it. ``sigmas`` is the gap in
     units of the combined bars (> 1 by definition of a disagreement).
     """
-    rows = []
-    for entry in dataset.entries:
-        for level in entry.levels:
-            if level.status != "open":
-                continue
-            best = _two_best_families(level.methods)
-            if len(best) < 2:
-                continue
-            a, b = best
-            gap = abs(a.value - b.value)
-            if gap <= a.error + b.error:
-                continue
-            rows.append({"config": f"{entry.n_up}+{entry.n_down}", "N": entry.n_up + entry.n_down, "n_up": entry.n_up,
-                         "n_down": entry.n_down, "mass_up": entry.mass_up, "mass_down": entry.mass_down,
-                         "mass ratio": entry.mass_up / entry.mass_down, "g": entry.g, "state": level.state,
-                         "method A": a.backend, "E_A": a.value, "bar A": a.error,
-                         "method B": b.backend, "E_B": b.value, "bar B": b.error,
-                         "gap": gap, "sigmas": gap / (a.error + b.error)})
-    return rows
+    return [row for entry in dataset.entries for level in entry.levels
+            if (row := disagreement_row(entry.n_up, entry.n_down, entry.mass_up, entry.mass_down, entry.g, level))]
+
+
+def stored_disagreements(rows: Iterable[Mapping[str, Any]]) -> list[dict[str, Any]]:
+    """``disagreements`` among a store's own results (``level_runs`` rows, any problem the rule can key): each
+    level judged by ``judge_level`` as if it were a dataset point, one row per level whose two best families
+    exclude each other. Such a level has no reference in a report either, so its miss is shown here."""
+    rows = list(rows)
+    configs = {physics_key(int(r["n_up"]), int(r["n_down"]), float(r["mass_up"]), float(r["mass_down"]), float(r["g"])):
+               (int(r["n_up"]), int(r["n_down"]), float(r["mass_up"]), float(r["mass_down"]), float(r["g"])) for r in rows}
+    found = []
+    for key, states in level_runs(rows).items():
+        n_up, n_down, mass_up, mass_down, g = configs[key]
+        for state, runs in sorted(states.items()):
+            row = disagreement_row(n_up, n_down, mass_up, mass_down, g, judge_level(state, n_up + n_down, runs))
+            if row:
+                found.append(row)
+    return found
+
+
+def disagreement_row(n_up: int, n_down: int, mass_up: float, mass_down: float, g: float,
+                     level: DatasetLevel) -> dict[str, Any] | None:
+    """The row of ``disagreements`` for one judged level, or None when its two best families do not exclude each other."""
+    if level.status != "open":
+        return None
+    best = _two_best_families(level.methods)
+    if len(best) < 2:
+        return None
+    a, b = best
+    gap = abs(a.value - b.value)
+    if gap <= a.error + b.error:
+        return None
+    return {"config": f"{n_up}+{n_down}", "N": n_up + n_down, "n_up": n_up, "n_down": n_down, "mass_up": mass_up,
+            "mass_down": mass_down, "mass ratio": mass_up / mass_down, "g": g, "state": level.state,
+            "method A": a.backend, "E_A": a.value, "bar A": a.error, "method B": b.backend, "E_B": b.value,
+            "bar B": b.error, "gap": gap, "sigmas": gap / (a.error + b.error)}
 
 
 def summary_rows(dataset: Dataset) -> list[dict[str, Any]]:

@@ -285,6 +285,23 @@ def test_disagreements_list_the_levels_where_two_families_exclude_each_other():
     assert conflict["gap"] == pytest.approx(0.01) and conflict["sigmas"] == pytest.approx(0.01 / 3e-3)
 
 
+def test_stored_disagreements_judge_any_stored_level_and_never_pool_another_trap():
+    """The same rule on a store's own rows, also off the dataset grid (4+4, mass ratio 2); a double-well run with
+    the same particles, masses and g is another problem and must not join the harmonic level's runs."""
+    double_well = {**row("lattice-dmrg", 6.0, 1e-3, n=(4, 4), masses=(2.0, 1.0), g=-2.0),
+                   "problem": {"trap": {"shape": "harmonic+gaussian", "barrier_height": 4.0}}}
+    rows = [row("oscillator-ed", 6.5068, 2.7e-3, n=(4, 4), masses=(2.0, 1.0), g=-2.0),
+            row("lattice-dmrg", 6.4705, 6.9e-3, n=(4, 4), masses=(2.0, 1.0), g=-2.0),  # gap 0.0363 > 9.6e-3
+            row("oscillator-ed", 20.985, 0.05, n=(4, 4), masses=(2.0, 1.0), g=2.0),
+            row("lattice-dmrg", 20.9514, 2.2e-3, n=(4, 4), masses=(2.0, 1.0), g=2.0),  # agreed
+            row("oscillator-ed", 7.0, 1e-4, n=(4, 4), masses=(2.0, 1.0), g=5.0), {**double_well, "g": 5.0}]
+    (conflict,) = dataset.stored_disagreements(rows)  # pooled, the double well's 6.0 would conflict at g = 5
+    assert (conflict["config"], conflict["mass ratio"], conflict["g"]) == ("4+4", 2.0, -2.0)
+    assert (conflict["method A"], conflict["method B"]) == ("oscillator-ed", "lattice-dmrg")
+    assert conflict["sigmas"] == pytest.approx(0.0363 / 9.6e-3)
+    assert dataset.level_runs([double_well]) == {}
+
+
 def test_the_report_states_the_datasets_coverage_against_the_grid_and_the_goals(monkeypatch):
     from trapbench.bench.report import analysis
 

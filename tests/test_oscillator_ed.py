@@ -424,19 +424,21 @@ def test_a_two_cutoff_ladder_covers_the_precision_solver(mass_up, g):
     assert abs(default.energies[0] - reference) <= 2 * default.energy_errors[0]
 
 
-def test_ladders_of_two_or_three_cutoffs_beyond_four_particles_are_refused_unless_the_contact_is_bare():
-    """Their bars rest on measurements up to 2+2; at 4+4 they missed (``SHORT_LADDER_MAX_PARTICLES``)."""
+def test_beyond_four_particles_only_ladders_like_the_measured_ones_are_accepted_unless_the_contact_is_bare():
+    """Bars beyond 2+2 were measured on ladders of four or more cutoffs four apart; shorter or denser ones missed
+    at 4+4 (``SHORT_LADDER_MAX_PARTICLES``, ``MEASURED_LADDER``)."""
     from trapbench.backends.oscillator_ed import SHORT_LADDER_MAX_PARTICLES
 
     eight = Problem.from_dict({"up": {"count": 4, "mass": 20 / 3}, "down": {"count": 4}, "interaction": {"g": 2.0}})
-    for ladder in (2, 3):
-        short = {"cutoff": 8, "ladder": ladder, "ladder_step": 2}
+    refused = [({"ladder": 2, "ladder_step": 4}, "ladder"), ({"ladder": 3, "ladder_step": 4}, "ladder"),
+               ({"ladder": 4, "ladder_step": 2}, "ladder_step"), ({"ladder": 2, "ladder_step": 2}, "ladder")]
+    for params, field in refused:
         for interaction in ("auto", "renormalized", "effective"):
-            with pytest.raises(SpecError, match=r"param\.ladder.*ladder >= 4"):
-                ED.supports(eight, {**short, "interaction": interaction})
-        assert ED.supports(eight, {**short, "interaction": "bare"}).ok
-    for ladder in (1, 4):
-        assert ED.supports(eight, {"cutoff": 8, "ladder": ladder, "ladder_step": 2}).ok
+            with pytest.raises(SpecError, match=rf"param\.{field}:.*ladder >= 4 and ladder_step >= 4"):
+                ED.supports(eight, {"cutoff": 16, **params, "interaction": interaction})
+        assert ED.supports(eight, {"cutoff": 16, **params, "interaction": "bare"}).ok
+    for params in ({"ladder": 1, "ladder_step": 2}, {"ladder": 4, "ladder_step": 4}, {"ladder": 5, "ladder_step": 6}):
+        assert ED.supports(eight, {"cutoff": 30, **params}).ok
     four = Problem.from_dict({"up": {"count": 2}, "down": {"count": 2}, "interaction": {"g": 2.0}})
     assert four.n_particles == SHORT_LADDER_MAX_PARTICLES
     assert ED.supports(four, {"cutoff": 8, "ladder": 2, "ladder_step": 2}).ok

@@ -72,6 +72,15 @@ def dataset_disagreements() -> pd.DataFrame:
                                                                    errors="ignore")
 
 
+def stored_disagreements(frame: pd.DataFrame) -> pd.DataFrame:
+    """``problems.dataset.stored_disagreements`` of the frame's successful levels, as a table."""
+    from ...problems import dataset
+
+    rows = frame[(frame["status"] == "ok") & (frame["state"] >= 0)].to_dict("records")
+    return pd.DataFrame(dataset.stored_disagreements(rows)).drop(columns=["n_up", "n_down", "mass_up", "mass_down"],
+                                                                 errors="ignore")
+
+
 def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) -> pd.DataFrame:
     """The backend to use, per particle number N, mass ratio m_up/m_down, g regime and relative-error target.
 

@@ -100,6 +100,14 @@ def calibration_section(document: Document, frame: pd.DataFrame) -> None:
             " ('sigmas': the gap in units of that sum). At each, at least one of the two bars misses the truth; such a"
             " level grades neither method, so the coverage above, measured on agreed levels, cannot count it.",
             "dataset_disagreements"))
+    stored = analysis.stored_disagreements(frame)
+    if not stored.empty:
+        document.add(Table(
+            stored,
+            "Levels of the results in this report where two method families differ by more than the sum of their error"
+            " bars (the dataset's agreement rule applied to the stored runs; 'sigmas' as above). Such a level has no"
+            " reference here, so the coverage above cannot count it either.",
+            "stored_disagreements"))
 
 
 def dataset_section(document: Document) -> None:
