@@ -166,7 +166,7 @@ momenta use phi~_n(p) = (-i)^n phi_n(p; 1/b_s), normalized to int n_s(p) dp = N_
 (``ladder.grid_error``). Measured on 2+1 against ``three-body`` densities (mass ratios 0.15-20/3): the
 density error falls like c^-1.5 ... c^-1.9, faster than the c^-2/3 the rule assumes, so the bars are
 wide (numbers in tests/test_oscillator_ed.py). Beyond four particles the rule is unmeasured for grids as for
-energies (``SHORT_LADDER_MAX_PARTICLES``), and no reference density there decides it. The Gaussian
+energies (``ANY_LADDER_MAX_PARTICLES``), and no reference density there decides it. The Gaussian
 tails of a finite oscillator basis cannot show the C/k^4 contact tail: the ``contact`` scalar comes
 from <sum delta> instead. The virial residual E - 2<V_trap> - (g/2) <sum delta> (virial theorem, from
 scaling x -> s x) is in ``diagnostics``; it vanishes as the basis converges.
@@ -835,8 +835,8 @@ def cutoff_model(interaction: str):
 # ratio 2, g = -2, cutoffs 10-16, 6.5068 +- 0.0027 against 6.4705 +- 0.0069), where the same 18 levels on ladders of
 # step 4 ending at 14, 16 and 20 all lie within 1.6 bars. Refused there: at least four cutoffs, step at least 4. The
 # bare contact's law (c^(-1/2), variational) is not limited, and one cutoff claims no bar.
-SHORT_LADDER_MAX_PARTICLES = 4
-MEASURED_LADDER = (4, 4)  # (cutoffs, step) beyond SHORT_LADDER_MAX_PARTICLES
+ANY_LADDER_MAX_PARTICLES = 4
+MEASURED_LADDER = (4, 4)  # (cutoffs, step) at least, beyond ANY_LADDER_MAX_PARTICLES
 
 
 @dataclass(frozen=True)
@@ -1114,16 +1114,16 @@ class OscillatorEDBackend(Backend):
         if cutoffs[0] < lowest:
             raise SpecError("param.cutoff", f"the ladder {cutoffs} goes below the smallest meaningful cutoff {lowest};"
                                             " raise cutoff or lower ladder/ladder_step")
-        if (params["ladder"] > 1 and problem.n_particles > SHORT_LADDER_MAX_PARTICLES
+        if (params["ladder"] > 1 and problem.n_particles > ANY_LADDER_MAX_PARTICLES
                 and self.interaction_kind(problem, params) != "bare"):
-            cutoffs, step = MEASURED_LADDER
-            if params["ladder"] < cutoffs or params["ladder_step"] < step:
-                field = "param.ladder" if params["ladder"] < cutoffs else "param.ladder_step"
+            rungs, step = MEASURED_LADDER
+            if params["ladder"] < rungs or params["ladder_step"] < step:
+                field = "param.ladder" if params["ladder"] < rungs else "param.ladder_step"
                 raise SpecError(
                     field,
-                    f"error bars of {problem.n_particles} particles were measured on ladders of at least {cutoffs}"
+                    f"error bars of {problem.n_particles} particles were measured on ladders of at least {rungs}"
                     f" cutoffs {step} apart (shorter or denser ladders missed 4+4 against lattice-dmrg by up to 13"
-                    f" bars): give ladder >= {cutoffs} and ladder_step >= {step}, or ladder = 1 for no error bar",
+                    f" bars): give ladder >= {rungs} and ladder_step >= {step}, or ladder = 1 for no error bar",
                 )
         if params["interaction"] == "effective":
             refusal = effective_refusal(problem, params["truncation"], params["basis_lengths"])

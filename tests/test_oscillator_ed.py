@@ -426,8 +426,8 @@ def test_a_two_cutoff_ladder_covers_the_precision_solver(mass_up, g):
 
 def test_beyond_four_particles_only_ladders_like_the_measured_ones_are_accepted_unless_the_contact_is_bare():
     """Bars beyond 2+2 were measured on ladders of four or more cutoffs four apart; shorter or denser ones missed
-    at 4+4 (``SHORT_LADDER_MAX_PARTICLES``, ``MEASURED_LADDER``)."""
-    from trapbench.backends.oscillator_ed import SHORT_LADDER_MAX_PARTICLES
+    at 4+4 (``ANY_LADDER_MAX_PARTICLES``, ``MEASURED_LADDER``)."""
+    from trapbench.backends.oscillator_ed import ANY_LADDER_MAX_PARTICLES
 
     eight = Problem.from_dict({"up": {"count": 4, "mass": 20 / 3}, "down": {"count": 4}, "interaction": {"g": 2.0}})
     refused = [({"ladder": 2, "ladder_step": 4}, "ladder"), ({"ladder": 3, "ladder_step": 4}, "ladder"),
@@ -440,7 +440,7 @@ def test_beyond_four_particles_only_ladders_like_the_measured_ones_are_accepted_
     for params in ({"ladder": 1, "ladder_step": 2}, {"ladder": 4, "ladder_step": 4}, {"ladder": 5, "ladder_step": 6}):
         assert ED.supports(eight, {"cutoff": 30, **params}).ok
     four = Problem.from_dict({"up": {"count": 2}, "down": {"count": 2}, "interaction": {"g": 2.0}})
-    assert four.n_particles == SHORT_LADDER_MAX_PARTICLES
+    assert four.n_particles == ANY_LADDER_MAX_PARTICLES
     assert ED.supports(four, {"cutoff": 8, "ladder": 2, "ladder_step": 2}).ok
 
 
