@@ -49,7 +49,7 @@ def test_exact_diagonalization_gap_approaches_first_order_quadratically():
     # Delta(g) - Delta_1(g) = O(g^2): halving g must divide the residual by about 4
     residuals = {}
     for g in (-0.1, -0.05):
-        energies = ground_energies(get("oscillator-ed"), g, range(2, 7), {"cutoff": 12, "ladder": 3, "ladder_step": 2})
+        energies = ground_energies(get("oscillator-ed"), g, range(2, 7), {"cutoff": 16, "ladder": 4, "ladder_step": 4})
         assert (energies["status"] == "ok").all()
         gaps = pairing_gaps(energies).set_index("N")
         for n, value in first_order_gaps(g).items():
