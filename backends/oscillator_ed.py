@@ -833,8 +833,9 @@ def cutoff_model(interaction: str):
 # ladders missed by 2.3 and 4.1 bars (mass ratio 20/3, g = 2, cutoffs 4-6 and 6-8), a three-cutoff ladder by 3.8
 # (equal masses, g = -2, cutoffs 8-12), and four-cutoff ladders of step 2 in 4 of 18 levels (by up to 9.7 bars: mass
 # ratio 2, g = -2, cutoffs 10-16, 6.5068 +- 0.0027 against 6.4805 +- 0.0022), where the same 18 levels on ladders of
-# step 4 ending at 14, 16 and 20 all lie within 1.6 bars (``bench/benchmarks/bench_oscillator_results.md``). Refused there: at least four cutoffs, step at least 4. The
-# bare contact's law (c^(-1/2), variational) is not limited, and one cutoff claims no bar.
+# step 4 ending at 14, 16 and 20 all lie within 1.6 bars (``bench/benchmarks/bench_oscillator_results.md``). Refused
+# there: at least four cutoffs, step at least 4. The bare contact's law (c^(-1/2), variational) is not limited, and
+# one cutoff claims no bar.
 ANY_LADDER_MAX_PARTICLES = 4
 MEASURED_LADDER = (4, 4)  # (cutoffs, step) at least, beyond ANY_LADDER_MAX_PARTICLES
 
