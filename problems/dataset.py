@@ -430,8 +430,10 @@ def stored_disagreements(rows: Iterable[Mapping[str, Any]]) -> list[dict[str, An
     level judged by ``judge_level`` as if it were a dataset point, one row per level whose two best families
     exclude each other. Such a level has no reference in a report either, so its miss is shown here."""
     rows = list(rows)
-    configs = {physics_key(int(r["n_up"]), int(r["n_down"]), float(r["mass_up"]), float(r["mass_down"]), float(r["g"])):
-               (int(r["n_up"]), int(r["n_down"]), float(r["mass_up"]), float(r["mass_down"]), float(r["g"])) for r in rows}
+    configs = {}
+    for r in rows:
+        config = (int(r["n_up"]), int(r["n_down"]), float(r["mass_up"]), float(r["mass_down"]), float(r["g"]))
+        configs[physics_key(*config)] = config
     found = []
     for key, states in level_runs(rows).items():
         n_up, n_down, mass_up, mass_down, g = configs[key]
