@@ -209,7 +209,9 @@ class LatticeDMRGBackend(Backend):
 
     def ladder(self, problem: Problem, params: dict[str, Any]) -> lattice.SpacingLadder:
         budget = Budget("max_sites", params["max_sites"], float, "sites")
-        return lattice.resolve_ladder(problem, params["spacings"], params["x_max"], SPACING_FRACTIONS, budget)
+        return lattice.resolve_ladder(
+            problem, params["spacings"], params["x_max"], SPACING_FRACTIONS, budget, params["continuum_order"]
+        )
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         chis = tuple(int(c) for c in params["chi"])

@@ -201,7 +201,9 @@ class LatticeEDBackend(Backend):
 
     def ladder(self, problem: Problem, params: dict[str, Any]) -> lattice.SpacingLadder:
         budget = dimension_budget(problem, params["max_dimension"])
-        return lattice.resolve_ladder(problem, params["spacings"], params["x_max"], budget=budget)
+        return lattice.resolve_ladder(
+            problem, params["spacings"], params["x_max"], budget=budget, continuum_order=params["continuum_order"]
+        )
 
     def compute(self, problem: Problem, params: dict[str, Any]) -> Solution:
         return lattice.solve_continuum_ladder(

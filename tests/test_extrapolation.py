@@ -14,6 +14,7 @@ from trapbench.backends.extrapolation import (
     DriftingPowerLaw,
     GeometricTail,
     PolynomialModel,
+    SixthOrderSpacingFit,
     fit_line,
     fit_linear,
 )
@@ -81,6 +82,23 @@ def test_polynomial_model_recovers_an_exact_a2_a4_series_and_drops_terms_for_two
     # two spacings: Richardson in a^2 alone, exact when there is no a^4 term
     pure = [1.25 - 0.7 * a**2 for a in spacings[:2]]
     assert PolynomialModel(powers=(2.0, 4.0))(spacings[:2], pure).value == pytest.approx(1.25, abs=1e-12)
+
+
+def test_sixth_order_fit_is_exact_on_its_series_and_its_bar_holds_the_next_term():
+    spacings = [0.4, 0.32, 0.25, 0.2, 0.16]
+    exact = [1.25 - 0.7 * a**2 + 0.9 * a**4 - 2.0 * a**6 for a in spacings]
+    fit = SixthOrderSpacingFit()(spacings, exact)
+    assert fit.value == pytest.approx(1.25, abs=1e-12)
+    # the bar is the change without the a^6 term (here the whole a^6 effect on E0), not a floor
+    without_term = PolynomialModel(powers=(2.0, 4.0))(spacings, exact)
+    assert fit.error == pytest.approx(abs(without_term.value - 1.25), rel=1e-6)
+    assert fit.error > 0
+    # an a^8 term the fit does not have: the bar must still hold the true error
+    beyond = [e + 5.0 * a**8 for e, a in zip(exact, spacings)]
+    fit = SixthOrderSpacingFit()(spacings, beyond)
+    assert abs(fit.value - 1.25) <= fit.error
+    with pytest.raises(ValueError, match="at least 5"):
+        SixthOrderSpacingFit()(spacings[:4], exact[:4])
 
 
 def test_polynomial_model_in_inverse_square_root_of_a_cutoff():

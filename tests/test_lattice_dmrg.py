@@ -266,3 +266,15 @@ def test_the_sweep_tail_follows_the_geometric_series_of_the_last_two_changes():
     assert math.isclose(sweep_tail({"last_change": 9e-7, "previous_change": 1e-6}), 2 * 9e-7 / 0.1)
     assert math.isclose(sweep_tail({"last_change": 2e-6, "previous_change": 1e-6}), 2e-5)  # not shrinking: ten times
     assert math.isclose(sweep_tail({"last_change": 3e-6, "previous_change": None}), 3e-5)
+
+
+def test_continuum_order_reaches_the_shared_ladder():
+    # the fit itself is tested with lattice-ed (tests/test_lattice_ed.py); here only that DMRG passes it on
+    from trapbench.problems.errors import SpecError
+
+    problem = Problem.create(1, 1, 2.0)
+    with pytest.raises(SpecError) as bad:
+        BACKEND.supports(problem, {"continuum_order": 8})
+    assert bad.value.field == "param.continuum_order"
+    assert BACKEND.supports(problem, {"continuum_order": 6}).ok  # the default ladder has five spacings
+    assert BACKEND.ladder(problem, BACKEND.resolve_params({"continuum_order": 6})).continuum_order == 6

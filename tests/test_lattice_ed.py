@@ -83,6 +83,31 @@ def test_continuum_limit_of_1p1_matches_busch_within_the_error_bar(mass_down, g)
         assert result.scalars["delta"] == pytest.approx(exact.scalars["delta"], rel=1e-4)
 
 
+@pytest.mark.parametrize("mass_down, g", [(1.0, 2.0), (20 / 3, -2.0)])
+def test_sixth_order_continuum_fit_holds_busch_with_a_far_narrower_bar(mass_down, g):
+    # Reference: the exact root of Busch et al., Found. Phys. 28, 549 (1998) (two-body backend).
+    problem = Problem.create(1, 1, g, mass_down=mass_down)
+    exact = get("two-body").solve(problem).energies[0]
+    scale = lattice.length_scale(problem)
+    spacings = [f * scale for f in (0.4, 0.32, 0.25, 0.2, 0.16)]
+    quartic = BACKEND.solve(problem, spacings=spacings, x_max=5.0)
+    sextic = BACKEND.solve(problem, spacings=spacings, x_max=5.0, continuum_order=6)
+    assert abs(sextic.energies[0] - exact) <= sextic.energy_errors[0]
+    assert sextic.energy_errors[0] <= quartic.energy_errors[0] / 10
+    assert sextic.diagnostics["energy_fits"][0]["model"] == "E(h) = E0 + c2 h^2 + c4 h^4 + c6 h^6"
+
+
+def test_continuum_order_is_checked_before_solving():
+    problem = Problem.create(1, 1, 2.0)
+    with pytest.raises(SpecError) as bad_order:
+        BACKEND.supports(problem, {"continuum_order": 5})
+    assert bad_order.value.field == "param.continuum_order"
+    # the default ladder has four spacings; the a^6 fit needs five
+    with pytest.raises(SpecError) as short:
+        BACKEND.supports(problem, {"continuum_order": 6})
+    assert short.value.field == "param.spacings" and "at least 5" in short.value.reason
+
+
 def test_non_harmonic_trap_free_spectrum_matches_a_spectral_one_body_solution():
     # g = 0 in a harmonic trap with a Gaussian barrier: the continuum energy is the sum of the lowest
     # one-body levels, computed here independently with the sinc discrete-variable representation
