@@ -307,16 +307,19 @@ def resolve_ladder(
 
     Without ``spacings`` the ladder is ``fractions`` of ``length_scale(problem)``. When its finest
     lattice exceeds the budget, the same ladder shape is scaled up to the finest spacing that fits
-    (``fit_to_budget``). Given spacings whose finest lattice exceeds the budget are refused, as is a
-    ``continuum_order`` other than 4 or 6, or 6 on fewer spacings than its fit needs.
+    (``fit_to_budget``). A default ladder shorter than the continuum fit needs gains coarser spacings
+    (``widened_fractions``). Given spacings whose finest lattice exceeds the budget are refused, as is a
+    ``continuum_order`` other than 4 or 6, or given spacings fewer than its fit needs.
     """
     if continuum_order not in CONTINUUM_MODELS:
         raise SpecError("param.continuum_order", f"got {continuum_order}; choose 4 or 6")
+    needed = CONTINUUM_MODELS[continuum_order].minimum_points
     half = half_width(problem) if x_max is None else float(x_max)
     if problem.trap.shape == "box" and x_max is not None and x_max != problem.trap.half_width:
         raise SpecError("param.x_max", "the box trap fixes the lattice to its walls; leave x_max unset")
     fitted = None
     if spacings is None:
+        fractions = widened_fractions(fractions, needed)
         spacings = default_spacings(problem, fractions)
         if budget is not None and not budget.fits(make_grid(problem, min(spacings), half)):
             spacings, fitted = fit_to_budget(problem, half, fractions, budget)
@@ -335,7 +338,6 @@ def resolve_ladder(
             f"param.{budget.parameter}",
             f"the finest lattice (a = {finest.spacing:.4g}): {budget.excess(finest)}; give coarser spacings or raise {budget.parameter}",
         )
-    needed = CONTINUUM_MODELS[continuum_order].minimum_points
     if len(spacings) < needed:
         raise SpecError(
             "param.spacings",
@@ -343,6 +345,15 @@ def resolve_ladder(
             " or leave continuum_order at 4",
         )
     return SpacingLadder(tuple(sorted(spacings, reverse=True)), half, fitted, continuum_order)
+
+
+def widened_fractions(fractions: Sequence[float], count: int) -> tuple[float, ...]:
+    """``fractions`` (coarsest first) with coarser spacings prepended, continuing the ratio of the two coarsest,
+    until there are ``count``: a default ladder too short for the continuum fit grows where it costs least."""
+    grown = list(fractions)
+    while len(grown) < count:
+        grown.insert(0, grown[0] * grown[0] / grown[1])
+    return tuple(grown)
 
 
 def fit_to_budget(problem: Problem, half: float, fractions: Sequence[float], budget: Budget) -> tuple[tuple[float, ...], str]:

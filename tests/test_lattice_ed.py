@@ -102,10 +102,14 @@ def test_continuum_order_is_checked_before_solving():
     with pytest.raises(SpecError) as bad_order:
         BACKEND.supports(problem, {"continuum_order": 5})
     assert bad_order.value.field == "param.continuum_order"
-    # the default ladder has four spacings; the a^6 fit needs five
+    # given spacings must be enough for the a^6 fit; the default ladder (four) gains a coarser fifth
     with pytest.raises(SpecError) as short:
-        BACKEND.supports(problem, {"continuum_order": 6})
+        BACKEND.supports(problem, {"continuum_order": 6, "spacings": (0.4, 0.3, 0.2, 0.1)})
     assert short.value.field == "param.spacings" and "at least 5" in short.value.reason
+    default = BACKEND.ladder(problem, BACKEND.resolve_params({}))
+    widened = BACKEND.ladder(problem, BACKEND.resolve_params({"continuum_order": 6}))
+    assert widened.spacings[1:] == pytest.approx(default.spacings)
+    assert widened.spacings[0] / widened.spacings[1] == pytest.approx(default.spacings[0] / default.spacings[1])
 
 
 def test_non_harmonic_trap_free_spectrum_matches_a_spectral_one_body_solution():
