@@ -89,7 +89,7 @@ def test_sixth_order_fit_is_exact_on_its_series_and_its_bar_holds_the_next_term(
     exact = [1.25 - 0.7 * a**2 + 0.9 * a**4 - 2.0 * a**6 for a in spacings]
     fit = SixthOrderSpacingFit()(spacings, exact)
     assert fit.value == pytest.approx(1.25, abs=1e-12)
-    # the bar is the change without the a^6 term (here the whole a^6 effect on E0), not a floor
+    # the bar is the change of E0 when the a^6 term is dropped, not a fraction of the extrapolation
     without_term = PolynomialModel(powers=(2.0, 4.0))(spacings, exact)
     assert fit.error == pytest.approx(abs(without_term.value - 1.25), rel=1e-6)
     assert fit.error > 0
