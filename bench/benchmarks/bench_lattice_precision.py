@@ -18,6 +18,8 @@ For N = 3 each ground state is graded, |E6 - truth| against b6, where the truth 
 sources or the shipped dataset's value (``three-body``, bars ~1e-12). For N >= 4 the table lists E6 and b6 beside
 the reported value and bar, and every ``oscillator-ed`` ground state in the sources for that problem is compared
 with E6; the last column is the smallest relative accuracy E6 can judge (ten times b6 / |E6|, the project's rule).
+With ``--dataset`` the shipped dataset's oscillator-ed ground states (newest version, default parameters) are graded
+against E6 too: coverage and bar / error where b6 is at most a tenth of their bar.
 """
 
 from __future__ import annotations
@@ -99,6 +101,8 @@ def sixth_order(result: dict) -> tuple[float, float, dict] | None:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("sources", nargs="+", help="results stores (.sqlite) or solve outputs (.json)")
+    parser.add_argument("--dataset", action="store_true",
+                        help="also grade the shipped dataset's oscillator-ed ground states (newest version, defaults)")
     args = parser.parse_args()
 
     truth = shipped_truth()
@@ -153,6 +157,47 @@ def main() -> None:
                 print(f"| {key[0]}+{key[1]} m={key[2]:g}/{key[3]:g} g={key[4]:g} | {e6:.8f} +- {b6:.1e} ({backend}) | "
                       f"{json.dumps(result.get('params') or {})} | {energy:.8f} +- {bar:.1e} | {result.get('cpu_time_s', 0):.1f} | "
                       f"{off:+.1e} | {abs(off) / abs(e6):.1e} | {floor:.1e} |")
+    if precise and args.dataset:
+        grade_dataset_oscillator(precise)
+
+
+def shipped_oscillator_defaults() -> dict[tuple, tuple[float, float, str]]:
+    """(value, bar, version) of the shipped dataset's oscillator-ed ground states with default parameters, newest version."""
+    found = {}
+    for entry in dataset.load().entries:
+        key = (entry.n_up, entry.n_down, round(entry.mass_up, 9), round(entry.mass_down, 9), round(entry.g, 9))
+        for level in entry.levels:
+            if level.state != 0:
+                continue
+            runs = [run for run in (*level.methods, *level.other_runs) if run.backend == "oscillator-ed" and not run.params]
+            if runs:
+                newest = max(runs, key=lambda run: tuple(int(part) for part in run.version.split(".")))
+                found[key] = (newest.value, newest.own_error or newest.error, newest.version)
+    return found
+
+
+def grade_dataset_oscillator(precise: dict[tuple, tuple[float, float, str]]) -> None:
+    """Coverage and calibration of oscillator-ed's shipped default ground states against the sixth-order limits;
+    graded (the project's rule) where b6 is at most a tenth of the oscillator bar."""
+    shipped = shipped_oscillator_defaults()
+    print("\n| problem | E6 +- b6 | oscillator-ed (version) E +- bar | E - E6 | bar / abs(E - E6) | graded |")
+    print("|---|---|---|---|---|---|")
+    graded = []
+    for key, (e6, b6, _) in sorted(precise.items()):
+        if key not in shipped:
+            continue
+        value, bar, version = shipped[key]
+        off = value - e6
+        ratio = bar / max(abs(off), 1e-300)
+        strict = b6 <= bar / 10
+        if strict:
+            graded.append(ratio)
+        print(f"| {key[0]}+{key[1]} m={key[2]:g}/{key[3]:g} g={key[4]:g} | {e6:.8f} +- {b6:.1e} | {value:.8f} +- {bar:.1e}"
+              f" ({version}) | {off:+.1e} | {ratio:.1f} | {'yes' if strict else 'no'} |")
+    if graded:
+        print(f"\ngraded {len(graded)}: within one bar {sum(r >= 1 for r in graded)}, within two bars"
+              f" {sum(r >= 0.5 for r in graded)}; median bar / error {statistics.median(graded):.1f},"
+              f" smallest {min(graded):.2f}")
 
 
 if __name__ == "__main__":
