@@ -19,7 +19,8 @@ sources or the shipped dataset's value (``three-body``, bars ~1e-12). For N >= 4
 the reported value and bar, and every ``oscillator-ed`` ground state in the sources for that problem is compared
 with E6; the last column is the smallest relative accuracy E6 can judge (ten times b6 / |E6|, the project's rule).
 With ``--dataset`` the shipped dataset's oscillator-ed ground states (newest version, default parameters) are graded
-against E6 too: coverage and bar / error where b6 is at most a tenth of their bar.
+against E6 too: coverage and bar / error where b6 is at most a tenth of their bar, and every one against twice the
+combined bars (bar + b6).
 """
 
 from __future__ import annotations
@@ -182,7 +183,7 @@ def grade_dataset_oscillator(precise: dict[tuple, tuple[float, float, str]]) -> 
     shipped = shipped_oscillator_defaults()
     print("\n| problem | E6 +- b6 | oscillator-ed (version) E +- bar | E - E6 | bar / abs(E - E6) | graded |")
     print("|---|---|---|---|---|---|")
-    graded = []
+    graded, combined = [], []
     for key, (e6, b6, _) in sorted(precise.items()):
         if key not in shipped:
             continue
@@ -190,6 +191,7 @@ def grade_dataset_oscillator(precise: dict[tuple, tuple[float, float, str]]) -> 
         off = value - e6
         ratio = bar / max(abs(off), 1e-300)
         strict = b6 <= bar / 10
+        combined.append(abs(off) / (bar + b6))
         if strict:
             graded.append(ratio)
         print(f"| {key[0]}+{key[1]} m={key[2]:g}/{key[3]:g} g={key[4]:g} | {e6:.8f} +- {b6:.1e} | {value:.8f} +- {bar:.1e}"
@@ -198,6 +200,9 @@ def grade_dataset_oscillator(precise: dict[tuple, tuple[float, float, str]]) -> 
         print(f"\ngraded {len(graded)}: within one bar {sum(r >= 1 for r in graded)}, within two bars"
               f" {sum(r >= 0.5 for r in graded)}; median bar / error {statistics.median(graded):.1f},"
               f" smallest {min(graded):.2f}")
+    if combined:
+        print(f"all {len(combined)}: within twice the combined bars (bar + b6) {sum(r <= 2 for r in combined)},"
+              f" largest abs(E - E6) / (bar + b6) {max(combined):.2f}")
 
 
 if __name__ == "__main__":
