@@ -23,7 +23,7 @@ least 5 % of the extrapolation; ``continuum_order = 6`` fits powers (2, 4, 6) ov
 instead (``SixthOrderSpacingFit``), its bar from the a^6 term and the coarsest spacing. Measured against
 ``three-body`` on 2+1 (lattice-dmrg on the dataset grid and the map's rungs, 34 ground states; lattice-ed on
 its widened default ladder, 6): every ground state within the sixth-order bar, median error 0.03 of it, and
-the order-4 bar a median 70 times wider (``bench_lattice_results.md``).
+the order-4 bar a median 66 times wider (``bench_lattice_results.md``).
 
 Every lattice backend builds its operator from ``terms(problem, grid)`` (``LatticeTerms``), the one
 description of the lattice Hamiltonian. Default ladders are fractions of the problem's shortest
@@ -265,7 +265,7 @@ LADDER_PARAMETERS = (
         int,
         4,
         "highest power of the spacing in the continuum fit: 4 (bar at least 5 % of the extrapolation) or 6"
-        " (five or more spacings; bar from the a^6 term and the coarsest spacing, a median 70 times narrower on 2+1)",
+        " (five or more spacings; bar from the a^6 term and the coarsest spacing, a median 66 times narrower on 2+1)",
     ),
 )
 

@@ -295,7 +295,8 @@ def _plain_trap(problem: Mapping[str, Any]) -> bool:
     return harmonic and all(float((problem.get(name) or {}).get("omega", 1.0)) == 1.0 for name in ("up", "down"))
 
 
-def _version_rank(version: str) -> tuple:
+def version_rank(version: str) -> tuple:
+    """Order of backend versions: numeric ones by value, after any other."""
     return (1, int(version)) if version.isdigit() else (0, version)
 
 
@@ -304,8 +305,8 @@ def choose_run(runs: Sequence[MethodValue]) -> MethodValue:
     them the narrowest bar consistent with each other run, |E_i - E_j| <= s_i + s_j; when none is, the narrowest
     with its bar widened by the largest shortfall, max_j (|E_i - E_j| - s_i - s_j), and ``own_error`` set.
     Later runs win a tie (``merge`` lists the update's last)."""
-    newest = max(_version_rank(run.version) for run in runs)
-    current = [run for run in runs if _version_rank(run.version) == newest]
+    newest = max(version_rank(run.version) for run in runs)
+    current = [run for run in runs if version_rank(run.version) == newest]
     ranked = sorted(reversed(current), key=lambda run: run.error)  # stable: the later of equal bars first
 
     def shortfall(run: MethodValue) -> float:

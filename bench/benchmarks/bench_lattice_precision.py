@@ -10,8 +10,8 @@ c2 a^2 + c4 a^4), whose bar is at least 5 % of the extrapolation |E(a_min) - E0|
 of five or more spacings is fitted again here with ``SixthOrderSpacingFit`` (the model ``continuum_order = 6``
 selects: E6 = E0 of E0 + c2 a^2 + c4 a^4 + c6 a^6; bar the largest of |E6 - E4|, the change without the coarsest
 spacing and the fit's standard error), and b6 adds the finest lattice's solver uncertainty (lattice-dmrg: the
-change from the second-largest to the largest bond dimension times the ratio of their discarded weights, and the
-energy spread's Weinstein term sigma^2 / (one trap quantum)). The backend adds instead the largest solver error of
+larger of the backend's own bond-dimension extrapolation error, ``TRUNCATION_MODEL``, and the energy spread's
+Weinstein term sigma^2 / (one trap quantum)). The backend adds instead the largest solver error of
 any rung, which the store does not keep per rung.
 
 For N = 3 each ground state is graded, |E6 - truth| against b6, where the truth is a ``three-body`` result in the
@@ -33,6 +33,7 @@ from collections import defaultdict
 from pathlib import Path
 
 from trapbench.backends.extrapolation import SixthOrderSpacingFit
+from trapbench.backends.lattice_dmrg import TRUNCATION_MODEL
 from trapbench.problems import dataset
 
 LATTICE = ("lattice-dmrg", "lattice-ed")
@@ -50,7 +51,7 @@ def results(sources: list[str]):
             connection = sqlite3.connect(f"file:{source}?mode=ro", uri=True)
             found = (json.loads(text) for (text,) in connection.execute("select result from tasks where status = 'ok'"))
         for result in found:
-            identity = (result["backend"], problem_of(result), tuple(round(e, 9) for e in result.get("energies") or ()))
+            identity = (result["backend"], point_of(result), tuple(round(e, 9) for e in result.get("energies") or ()))
             if identity not in seen:
                 seen.add(identity)
                 yield result
@@ -62,29 +63,33 @@ def shipped_truth() -> dict[tuple, float]:
     for entry in dataset.load().entries:
         for level in entry.levels:
             if level.state == 0 and level.status == "precision":
-                key = (entry.n_up, entry.n_down, round(entry.mass_up, 9), round(entry.mass_down, 9), round(entry.g, 9))
-                truth[key] = level.value
+                truth[point(entry.n_up, entry.n_down, entry.mass_up, entry.mass_down, entry.g)] = level.value
     return truth
 
 
-def problem_of(result: dict) -> tuple:
+def point(n_up: int, n_down: int, mass_up: float, mass_down: float, g: float) -> tuple:
+    """A grid point's identity (masses and g rounded so that stored and shipped values meet)."""
+    return (n_up, n_down, round(mass_up, 9), round(mass_down, 9), round(g, 9))
+
+
+def point_of(result: dict) -> tuple:
     up, down = result["problem"]["up"], result["problem"]["down"]
-    return (up["count"], down["count"], round(up["mass"], 9), round(down["mass"], 9), round(result["g"], 9))
+    return point(up["count"], down["count"], up["mass"], down["mass"], result["g"])
+
+
+def label(key: tuple) -> str:
+    return f"{key[0]}+{key[1]} m={key[2]:g}/{key[3]:g} g={key[4]:g}"
 
 
 def finest_solver_error(result: dict) -> float:
-    """lattice-dmrg: the bond-dimension ladder's remainder and the spread term on the finest lattice."""
+    """lattice-dmrg, finest lattice: the backend's bond-dimension extrapolation error (``TRUNCATION_MODEL``) and the
+    energy spread's Weinstein term sigma^2 (one trap quantum as the gap), whichever is larger."""
     rungs = (result.get("diagnostics") or {}).get("per_rung") or []
     if result["backend"] != "lattice-dmrg" or not rungs:
         return 0.0
     ladder = rungs[-1]["chi_ladder"][0]
-    last = ladder[-1]
-    error = float(last.get("spread", 0.0)) ** 2
-    if len(ladder) >= 2:
-        before = ladder[-2]
-        ratio = last["truncation_error"] / max(before["truncation_error"], 1e-300)
-        error = max(error, abs(before["energy"] - last["energy"]) * ratio)
-    return error
+    truncation = TRUNCATION_MODEL([rung["truncation_error"] for rung in ladder], [rung["energy"] for rung in ladder])
+    return max(truncation.error, float(ladder[-1].get("spread", 0.0)) ** 2)
 
 
 def sixth_order(result: dict) -> tuple[float, float, dict] | None:
@@ -110,7 +115,7 @@ def main() -> None:
     lattice: list[tuple[tuple, dict]] = []
     oscillator: dict[tuple, list[dict]] = defaultdict(list)
     for result in results(args.sources):
-        key = problem_of(result)
+        key = point_of(result)
         if result["backend"] == "three-body" and result.get("energy_errors"):
             if result["energy_errors"][0] < 1e-9:
                 truth[key] = result["energies"][0]
@@ -128,7 +133,6 @@ def main() -> None:
             continue
         e6, b6, parts = fitted
         spacings = result["diagnostics"]["spacings"]
-        label = f"{key[0]}+{key[1]} m={key[2]:g}/{key[3]:g} g={key[4]:g}"
         reported = f"{result['energies'][0]:.8f} +- {result['energy_errors'][0]:.1e}"
         detail = f"{parts['fit']:.1e}, {parts['solver']:.1e}"
         if key in truth:
@@ -141,7 +145,7 @@ def main() -> None:
                 best = precise.get(key)
                 if best is None or b6 < best[1]:
                     precise[key] = (e6, b6, result["backend"])
-        print(f"| {result['backend']} | {label} | {len(spacings)} ({min(spacings):.3f}) | {reported} | {e6:.9f} | "
+        print(f"| {result['backend']} | {label(key)} | {len(spacings)} ({min(spacings):.3f}) | {reported} | {e6:.9f} | "
               f"{b6:.1e} ({detail}) | {tail} |")
     if ratios:
         print(f"\nN = 3: {sum(r <= 1 for r in ratios)} of {len(ratios)} within b6, {sum(r <= 2 for r in ratios)} within 2 b6;"
@@ -155,7 +159,7 @@ def main() -> None:
                 energy, bar = result["energies"][0], result["energy_errors"][0]
                 off = energy - e6
                 floor = 10 * b6 / abs(e6)
-                print(f"| {key[0]}+{key[1]} m={key[2]:g}/{key[3]:g} g={key[4]:g} | {e6:.8f} +- {b6:.1e} ({backend}) | "
+                print(f"| {label(key)} | {e6:.8f} +- {b6:.1e} ({backend}) | "
                       f"{json.dumps(result.get('params') or {})} | {energy:.8f} +- {bar:.1e} | {result.get('cpu_time_s', 0):.1f} | "
                       f"{off:+.1e} | {abs(off) / abs(e6):.1e} | {floor:.1e} |")
     if precise and args.dataset:
@@ -166,13 +170,13 @@ def shipped_oscillator_defaults() -> dict[tuple, tuple[float, float, str]]:
     """(value, bar, version) of the shipped dataset's oscillator-ed ground states with default parameters, newest version."""
     found = {}
     for entry in dataset.load().entries:
-        key = (entry.n_up, entry.n_down, round(entry.mass_up, 9), round(entry.mass_down, 9), round(entry.g, 9))
+        key = point(entry.n_up, entry.n_down, entry.mass_up, entry.mass_down, entry.g)
         for level in entry.levels:
             if level.state != 0:
                 continue
             runs = [run for run in (*level.methods, *level.other_runs) if run.backend == "oscillator-ed" and not run.params]
             if runs:
-                newest = max(runs, key=lambda run: tuple(int(part) for part in run.version.split(".")))
+                newest = max(runs, key=lambda run: dataset.version_rank(run.version))
                 found[key] = (newest.value, newest.own_error or newest.error, newest.version)
     return found
 
@@ -194,7 +198,7 @@ def grade_dataset_oscillator(precise: dict[tuple, tuple[float, float, str]]) -> 
         combined.append(abs(off) / (bar + b6))
         if strict:
             graded.append(ratio)
-        print(f"| {key[0]}+{key[1]} m={key[2]:g}/{key[3]:g} g={key[4]:g} | {e6:.8f} +- {b6:.1e} | {value:.8f} +- {bar:.1e}"
+        print(f"| {label(key)} | {e6:.8f} +- {b6:.1e} | {value:.8f} +- {bar:.1e}"
               f" ({version}) | {off:+.1e} | {ratio:.1f} | {'yes' if strict else 'no'} |")
     if graded:
         print(f"\ngraded {len(graded)}: within one bar {sum(r >= 1 for r in graded)}, within two bars"
