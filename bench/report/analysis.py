@@ -68,8 +68,7 @@ def dataset_disagreements() -> pd.DataFrame:
     """``problems.dataset.disagreements`` of the shipped reference dataset, as a table."""
     from ...problems import dataset
 
-    return pd.DataFrame(dataset.disagreements(dataset.load())).drop(columns=["n_up", "n_down", "mass_up", "mass_down"],
-                                                                   errors="ignore")
+    return _disagreement_table(dataset.disagreements(dataset.load()))
 
 
 def stored_disagreements(frame: pd.DataFrame) -> pd.DataFrame:
@@ -77,8 +76,12 @@ def stored_disagreements(frame: pd.DataFrame) -> pd.DataFrame:
     from ...problems import dataset
 
     rows = frame[(frame["status"] == "ok") & (frame["state"] >= 0)].to_dict("records")
-    return pd.DataFrame(dataset.stored_disagreements(rows)).drop(columns=["n_up", "n_down", "mass_up", "mass_down"],
-                                                                 errors="ignore")
+    return _disagreement_table(dataset.stored_disagreements(rows))
+
+
+def _disagreement_table(rows: list[dict]) -> pd.DataFrame:
+    """Disagreement rows as shown in the report (the label columns replace the raw counts and masses)."""
+    return pd.DataFrame(rows).drop(columns=["n_up", "n_down", "mass_up", "mass_down"], errors="ignore")
 
 
 def method_map(frame: pd.DataFrame, targets: tuple[float, ...] = MAP_TARGETS) -> pd.DataFrame:
