@@ -307,21 +307,24 @@ def test_no_advice_for_lack_of_a_tight_reference_says_so_instead_of_asking_for_t
 
 
 @pytest.mark.slow  # the recommended solve and an independent reference, ~20 CPU s each
-@pytest.mark.parametrize("mass_up, g", [(20 / 3, -3.0), (2.0, -1.0)])
-def test_shipped_advice_run_as_printed_reaches_its_accuracy(tmp_path, capsys, mass_up, g):
-    """2+1, heavy pair (mass ratio 20/3, bound trimer at g = -3; mass ratio 2 at g = -1), 1e-4: the
-    recommendation of the shipped map, run as `trapbench solve` with its `--param` arguments, lands
-    within 1e-4 of an independent ground state computed here: the three-body backend's (spectral solution of
-    the Jacobi-plane problem, error bars ~1e-12; it shares no basis or interaction treatment with the other
+@pytest.mark.parametrize("mass_up, g, accuracy", [(20 / 3, -3.0, 1e-3), (2.0, -1.0, 1e-4)])
+def test_shipped_advice_run_as_printed_reaches_its_accuracy(tmp_path, capsys, mass_up, g, accuracy):
+    """2+1, heavy pair (mass ratio 20/3, bound trimer at g = -3; mass ratio 2 at g = -1): the recommendation of
+    the shipped map for ``accuracy``, run as `trapbench solve` with its `--param` arguments, lands within that
+    accuracy of an independent ground state computed here: the three-body backend's (spectral solution of the
+    Jacobi-plane problem, error bars ~1e-12; it shares no basis or interaction treatment with the other
     backends), or, where three-body is the recommendation, oscillator-ed's default ladder, whose error bar must
-    then be at most a tenth of the tolerance (the verdict rule) for the comparison to decide."""
+    then be at most a tenth of the tolerance (the verdict rule) for the comparison to decide. At the trimer that
+    bar is 3.9e-5 relative since oscillator-ed version 16 (its ladder's fitted exponent, 3.9, gets the whole
+    extrapolation as bar; version 15's rule, on the same level's ladders of four cutoffs ending at 56, 60 and 64,
+    missed ``three-body`` by 2.3, 3.1 and 3.8 bars), so it decides at 1e-3 and no longer at 1e-4."""
     from trapbench.backends.oscillator_ed import OscillatorEDBackend
     from trapbench.backends.three_body import ThreeBodyBackend
     from trapbench.bench.cli import main
     from trapbench.problems.spec import Problem
 
     query = ["--up", "2", "--down", "1", "--mass-up", repr(mass_up), "--mass-down", "1", "--g", repr(g)]
-    assert main(["advise", "--store", str(tmp_path / "none.sqlite"), *query, "--accuracy", "1e-4", "--json"]) == 0
+    assert main(["advise", "--store", str(tmp_path / "none.sqlite"), *query, "--accuracy", repr(accuracy), "--json"]) == 0
     advice = json.loads(capsys.readouterr().out)
     assert advice["backend"] is not None
     params = [arg for name, value in advice["params"].items() for arg in ("--param", f"{name}={value}")]
@@ -331,8 +334,8 @@ def test_shipped_advice_run_as_printed_reaches_its_accuracy(tmp_path, capsys, ma
     reference = (OscillatorEDBackend() if advice["backend"] == "three-body" else ThreeBodyBackend()).solve(
         Problem.create(2, 1, g, mass_up=mass_up))
     exact, bar = reference.energies[0], reference.energy_errors[0]
-    assert bar <= 1e-5 * abs(exact)
-    assert abs(energy - exact) <= 1e-4 * abs(exact)
+    assert bar <= 0.1 * accuracy * abs(exact)
+    assert abs(energy - exact) <= accuracy * abs(exact)
 
 
 def test_regrading_the_shipped_map_reproduces_its_grades_and_refuses_unknown_rows():

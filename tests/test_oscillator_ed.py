@@ -536,3 +536,19 @@ def test_light_pair_bound_to_the_third_particle_reaches_1e_5_with_the_series_lad
     assert result.diagnostics["energy_fits"][0]["model"].startswith("E(c) = E_inf + a3 c^-1.5")
     error = abs(result.energies[0] - level.value)
     assert error <= 1e-5 and error <= 2 * result.energy_errors[0]
+
+
+def test_a_pair_heavier_than_the_measured_mass_ratios_is_warned_about():
+    """Error bars were measured for a pair up to 10 times heavier than its partner (version 16); beyond, at 15, an
+    excited level lay 2.9 bars from ``three-body``, so such results say so. The mirrored 1+2 counts as well; a single
+    heavy particle or a lighter pair does not."""
+    from trapbench.backends.oscillator_ed import heavy_pair_beyond_measured
+
+    heavy = Problem.create(2, 1, 2.0, mass_up=15.0, mass_down=1.0)
+    assert heavy_pair_beyond_measured(heavy)
+    assert heavy_pair_beyond_measured(Problem.create(1, 2, 2.0, mass_up=1.0, mass_down=12.0))
+    assert not heavy_pair_beyond_measured(Problem.create(2, 1, 2.0, mass_up=10.0, mass_down=1.0))
+    assert not heavy_pair_beyond_measured(Problem.create(1, 2, 2.0, mass_up=15.0, mass_down=1.0))
+    result = ED.solve(heavy, cutoff=12, ladder=3)
+    assert any("not verified" in w and "10 times heavier" in w for w in result.warnings)
+    assert not any("not verified" in w for w in ED.solve(Problem.create(2, 1, 2.0, mass_up=4.0), cutoff=12, ladder=3).warnings)

@@ -19,6 +19,8 @@ With ``--interaction effective`` the stored effective-interaction ladders are gr
 model for them (``GuardedHalfPowerSeries``, "half-power series") and then with ``GuardedPowerLaw`` as before version 15.
 With ``--as-reported`` the stored energies and bars are graded as the backend reported them (no
 re-extrapolation; e.g. version 7's centre-of-mass copies, which take their parent's value and bar).
+With ``--same-store`` the N = 3 ladders are graded against the stores' own ``three-body`` results instead, so
+problems off the dataset's grid count too (e.g. ``heavy_pair_suite.toml``, the pair heavier up to mass ratio 28.8).
 Reported per N: levels graded, within 2 bars, the median and the smallest of bar / |E - reference|; then
 all levels with a reference and how many lie within twice the combined bars.
 """
@@ -50,6 +52,20 @@ def reference(level: dataset.DatasetLevel, n_particles: int) -> tuple[float, flo
         return None
     chosen = min((dataset.choose_run(found) for found in by_backend.values()), key=lambda m: m.error)
     return chosen.value, chosen.error
+
+
+def stored_three_body(stores: list[str]) -> dict:
+    """{(grid key, level): (value, uncertainty)} of the ``three-body`` results in the stores (``--same-store``)."""
+    found = {}
+    for store in stores:
+        connection = sqlite3.connect(f"file:{store}?mode=ro", uri=True)
+        for (text,) in connection.execute("select result from tasks where backend = 'three-body' and status = 'ok'"):
+            result = json.loads(text)
+            up, down = result["problem"]["up"], result["problem"]["down"]
+            key = dataset.physics_key(up["count"], down["count"], up["mass"], down["mass"], result["g"])
+            for level, (value, error) in enumerate(zip(result["energies"], result["energy_errors"])):
+                found[key, level] = (value, error)
+    return found
 
 
 def stored_results(stores: list[str]):
@@ -90,31 +106,42 @@ def main() -> None:
     parser.add_argument("--interaction", choices=("renormalized", "effective"), default="renormalized",
                         help="which stored ladders; 'effective' grades the backend's model for them"
                         " (GuardedHalfPowerSeries) against GuardedPowerLaw on the same ladders")
+    parser.add_argument("--steep", action="append", type=float, default=None,
+                        help="steep-exponent guard: bar >= the whole extrapolation from this fitted power up (0: off)")
+    parser.add_argument("--top-factor", action="append", type=float, default=None,
+                        help="multiple of the total variation for a fitted power at the top of the scan")
+    parser.add_argument("--same-store", action="store_true",
+                        help="grade N = 3 ladders against the stores' own three-body results (any problem, not only the"
+                        " dataset's grid)")
     parser.add_argument("--without-turn-remainder", action="store_true",
                         help="a turned-around ladder's bar without the remainder of its last change (before version 13)")
     args = parser.parse_args()
     shipped = dataset.load()
+    own = stored_three_body(args.store) if args.same_store else {}
     if args.as_reported:
         found = list(reported(args.store))
         variants = [None]
     else:
         found = list(ladders(args.store, args.interaction))
         backend_rule = GuardedPowerLaw()
-        variants = [(f, s) for f in args.factor or [backend_rule.change_factor]
-                    for s in args.shift or [backend_rule.asymptotic_shift]]
+        variants = [(f, s, p, t) for f in args.factor or [backend_rule.change_factor]
+                    for s in args.shift or [backend_rule.asymptotic_shift]
+                    for p in args.steep or [backend_rule.steep_power or 0.0]
+                    for t in args.top_factor or [backend_rule.top_factor]]
         if args.interaction == "effective":
             variants.insert(0, "series")
     print(f"ladders: {len(found)} levels from {len(args.store)} store(s); dataset version {shipped.version}\n")
-    print("| change_factor, exponent shift | N | graded | within 2 bars | coverage | median bar/err | smallest bar/err |"
+    print("| change_factor, exponent shift, steep power (0 off), top factor | N | graded | within 2 bars | coverage | median bar/err | smallest bar/err |"
           " all with a reference | within 2 combined bars |")
     print("|---|---|---|---|---|---|---|---|---|")
     for variant in variants:
         graded, combined = defaultdict(list), defaultdict(list)
         for n, key, level, *data in found:
-            entry = shipped.index.get(key)
-            if entry is None or level >= len(entry.levels):
-                continue
-            ref = reference(entry.levels[level], n)
+            if args.same_store:
+                ref = own.get((key, level)) if n == 3 else None
+            else:
+                entry = shipped.index.get(key)
+                ref = reference(entry.levels[level], n) if entry is not None and level < len(entry.levels) else None
             if ref is None:
                 continue
             if variant is None:
@@ -124,6 +151,7 @@ def main() -> None:
                 value, bar = fit.value, fit.error
             else:
                 rule = GuardedPowerLaw(change_factor=variant[0], asymptotic_shift=variant[1],
+                                       steep_power=variant[2] or None, top_factor=variant[3],
                                        turn_remainder=not args.without_turn_remainder)
                 fit = rule(*data)
                 value, bar = fit.value, fit.error
@@ -135,7 +163,7 @@ def main() -> None:
             within = sum(r >= 0.5 for r in ratios)
             strict = (f"{len(ratios)} | {within} | {100 * within / len(ratios):.0f} % | {statistics.median(ratios):.1f} |"
                       f" {min(ratios):.2f}") if ratios else "0 | | | |"
-            label = "as reported" if variant is None else "half-power series" if variant == "series" else f"{variant[0]:g}, {variant[1]:g}"
+            label = "as reported" if variant is None else "half-power series" if variant == "series" else ", ".join(f"{v:g}" for v in variant)
             print(f"| {label} | {n} | {strict} | {len(combined[n])} |"
                   f" {sum(combined[n])} |")
 
