@@ -49,24 +49,34 @@ def test_a_steeper_exponent_than_a_running_coupling_gets_its_whole_extrapolation
     assert fit.error >= abs(values[-1] - fit.value) and abs(fit.value - 1.0) <= fit.error
 
 
-def test_the_steep_guard_covers_a_measured_heavy_light_ladder_against_three_body():
-    """oscillator-ed's raw ground-state ladder (version 15 defaults: running coupling, optimized orbital lengths,
-    cutoffs 32-44) for 2+1 with the pair 53/6 times heavier than the third particle (53Cr/6Li) at g = -1; reference:
-    the ``three-body`` backend (spectral elements in the Jacobi plane, an independent method; bar ~1e-12). The fitted
-    power is 2.72; version 15's bar (2.2e-6) missed the reference by 2.6 bars."""
+MEASURED_STEEP_LADDERS = [
+    # (pair mass, g, level, raw energies at cutoffs 32-44): fitted power, version 15's miss
+    (53 / 6, -1.0, 0, [1.0665208272948163, 1.0665306600068336, 1.0665371890911521, 1.066541683560376]),  # 2.72, 2.6 bars
+    (20 / 3, -4.0, 2, [-5.985192253581651, -6.024745153001392, -6.051686557591844, -6.070900255891017]),  # 2.37, 2.4 bars
+]
+
+
+@pytest.mark.parametrize("pair_mass, g, level, values", MEASURED_STEEP_LADDERS)
+def test_the_steep_guard_covers_measured_heavy_light_ladders_against_three_body(pair_mass, g, level, values):
+    """oscillator-ed's raw ladders (defaults: running coupling, optimized orbital lengths, cutoffs 32-44) for 2+1 with
+    the pair heavier than the third particle: 53Cr/6Li (mass ratio 53/6) at g = -1, ground state, and 20/3 at g = -4,
+    second excited level; reference: the ``three-body`` backend (spectral elements in the Jacobi plane, an independent
+    method; bars ~1e-12). Their fitted powers, 2.72 and 2.37, are steeper than ``steep_power``; without the guard the
+    bars missed the reference by 2.6 and 2.4 bars."""
     from trapbench.backends.registry import get
     from trapbench.problems.spec import Problem
 
     cutoffs = np.array([32.0, 36.0, 40.0, 44.0])
-    values = np.array([1.0665208272948163, 1.0665306600068336, 1.0665371890911521, 1.066541683560376])
-    problem = Problem.create(2, 1, -1.0, mass_up=53 / 6, mass_down=1.0)
+    problem = Problem.create(2, 1, g, mass_up=pair_mass, mass_down=1.0, states=level + 1)
     reference = get("three-body").solve(problem)
-    fit = GuardedPowerLaw()(cutoffs, values)
-    unguarded = GuardedPowerLaw(steep_power=None)(cutoffs, values)
-    assert reference.energy_errors[0] <= 0.1 * fit.error
-    assert abs(unguarded.value - reference.energies[0]) > 2 * unguarded.error
-    assert abs(fit.value - reference.energies[0]) <= 2 * fit.error
-    assert fit.error <= 10 * abs(fit.value - reference.energies[0])  # wide enough, not meaningless
+    exact = reference.energies[level]
+    fit = GuardedPowerLaw()(cutoffs, np.array(values))
+    unguarded = GuardedPowerLaw(steep_power=None)(cutoffs, np.array(values))
+    assert reference.energy_errors[level] <= 0.1 * fit.error
+    assert fit.parameters["power"] >= GuardedPowerLaw().steep_power
+    assert abs(unguarded.value - exact) > 2 * unguarded.error
+    assert abs(fit.value - exact) <= 2 * fit.error
+    assert fit.error <= 10 * abs(fit.value - exact)  # wide enough, not meaningless
 
 
 def test_the_bar_is_at_least_twice_the_change_of_the_extrapolated_limit():
