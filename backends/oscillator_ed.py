@@ -154,7 +154,8 @@ Measured on 2+1 with the pair heavier (mass ratios 2 to 28.8, 126 levels against
 at g = -1 was 2.6 bars off and is now 0.4; the 90 levels up to mass ratio 10 all lie within twice their bars. Beyond a
 pair/partner mass ratio of 10 (``heavy_pair_beyond_measured``) the result carries a warning: at 15, g = 5, the first
 excited level's ladder had just turned around at the default cutoffs and lay 2.9 bars off (1.2e-4; to cutoff 64 it
-keeps falling, still 8.7e-5 above).
+keeps falling, still 8.7e-5 above). The trap's orbitals, asked for where a heavy-heavy-light trimer can bind, are
+refused with the running coupling on a ladder (``TRAP_ORBITALS_TRIMER_REFUSAL``).
 
 Centre-of-mass copies (``com_copies``): with a common trap frequency, the energy truncation, the trap's
 orbitals and a bare or running contact coupling, N_com commutes with the truncated Hamiltonian
@@ -724,6 +725,16 @@ def heavy_light_trimer_possible(problem: Problem) -> bool:
     return problem.coupling < 0 and heavy_pair_present(problem)
 
 
+# The trap orbitals where a heavy-heavy-light trimer can bind, running coupling, default ladder (2+1 at pair/third mass
+# ratios 2, 4, 20/3, 8.83, 10 and g = -3, -2, -1, -0.5, three levels, against three-body; 2026-12-05): at g = -3
+# excited levels lay 4.9 (mass ratio 2), 13.8 (8.83) and 5.0 (10) bars off -- their ladders move away from the
+# limit at every reachable cutoff, which no ladder rule can see; 'auto' (optimized lengths) covers them.
+TRAP_ORBITALS_TRIMER_REFUSAL = (
+    "a heavy-heavy-light trimer may bind here and the trap orbitals cannot hold it: with the running coupling their"
+    " ladders move away from the limit (2+1, mass ratio 8.83, g = -3: an excited level 13.8 error bars off); use"
+    " basis_lengths = 'auto' (or ladder = 1 for a single cutoff without error bar)"
+)
+
 HEAVY_PAIR_MEASURED_RATIO = 10.0  # the largest pair/partner mass ratio at which the bars were measured (version 16)
 
 
@@ -779,6 +790,9 @@ def basis_lengths(problem: Problem, choice: str, kind: str, cutoff: int, paritie
     orbitals extrapolated to -2.47 for -4.097). Where no trimer forms the scaled orbitals were measured
     worse than the trap's (1+2 at 20/3, g = -3: 3.3e-3 against 4.2e-4 off): they miss the unbound
     particle and the centre-of-mass excitations, which the trap orbitals hold exactly.
+
+    Asked for explicitly there ('trap'), the running coupling's ladders are refused
+    (``TRAP_ORBITALS_TRIMER_REFUSAL``: excited levels 4.9-13.8 bars off at g = -3, measured 2026-12-05).
 
     ``auto`` also optimizes where two or more pairs can bind (g < 0, two or more fermions of each species):
     with the trap's orbitals the running-coupling ladder rises and turns down only beyond the default
@@ -908,10 +922,11 @@ class GuardedPowerLaw:
     at p = 2.33-2.72 the fit's limit was 0.02-0.38 of the extrapolation away from the truth; the bar is at least the
     whole correction |E_last - E_inf|. Measured with defaults against ``three-body`` (2+1, pair/third mass ratios 2,
     4, 20/3, 8.83, 10, 15, 28.8 at g = -3, -1, 0.5, 2, 5, 20, and 2 and 20/3 at g = -5, -4, 30, 50, 100; three
-    levels; 2026-12-05): at 20/3, g = -4, the second excited level (p = 2.37) lay 2.4 bars off (0.34 of its
-    extrapolation; with the guard 0.34 bars); the pair at 8.83 (53Cr/6Li), g = -1, ground state, p = 2.72, was 1.5e-5 below its last
-    cutoff by the fit and 5.8e-6 from the truth with a bar of 2.2e-6 (2.6 bars); at 28.8 (173Yb/6Li), g >= 2, the
-    second excited level has p at the top of the scan and lay 1.75-2.29 times its variation away; the bound trimer
+    levels; 2026-12-05): at 20/3, g = -4, the second excited level (p = 2.37) lay 2.4 bars off, 0.34 of its
+    extrapolation (so 0.34 bars with the guard); the pair at 8.83 (53Cr/6Li), g = -1, ground state, p = 2.72, was
+    1.5e-5 below its last cutoff by the fit and 5.8e-6 from the truth with a bar of 2.2e-6 (2.6 bars); at 28.8
+    (173Yb/6Li), g >= 2, the second excited level has p at the top of the scan and lay 1.75-2.29 times its
+    variation away; the bound trimer
     (20/3, g = -3, ground state) has p = 3.4-3.9 on every window of four cutoffs from 32-44 to 52-64, and without the
     guard the windows ending at 56, 60, 64 missed ``three-body`` by 2.3, 3.1, 3.8 bars (with it: 0.33, 0.43, 0.54;
     the default window's bar grows from 2.7e-5 to 1.6e-4 for an error of 6.1e-6). With both guards
@@ -964,8 +979,8 @@ class GuardedPowerLaw:
             return replace(
                 fit,
                 error=max(fit.error, correction),
-                warning=f"the fitted exponent {power:.2f} is steeper than a running coupling's (>= {self.steep_power:g}):"
-                " error bar >= the whole extrapolation",
+                warning=f"the fitted exponent {power:.2f} is steeper than a running coupling's"
+                f" (>= {self.steep_power:g}): error bar >= the whole extrapolation",
             )
         if power < self.power_floor:
             correction = abs(float(values[-1]) - fit.value)
@@ -995,9 +1010,10 @@ class GuardedHalfPowerSeries:
     the change when the highest power is dropped, the change without the least converged cutoff when there are five
     or more, and 5 % of the correction); three cutoffs fit the first two powers.
 
-    Guards: wherever ``GuardedPowerLaw`` (``fallback``: without its sixth guard, top-of-scan bar once the variation)
-    warns -- a ladder that turned around, an exponent at either end of its scan -- or its fitted exponent is below 1 (``power_floor``: a term slower than the series' leading c^(-3/2) still
-    dominates), the ladder is not in the series' regime and that model's value and bar are returned instead.
+    Guards: wherever ``GuardedPowerLaw`` (``fallback``: without its sixth guard, top-of-scan bar once the
+    variation) warns -- a ladder that turned around, an exponent at either end of its scan -- or its fitted
+    exponent is below 1 (``power_floor``: a term slower than the series' leading c^(-3/2) still dominates), the
+    ladder is not in the series' regime and that model's value and bar are returned instead.
     Measured where this matters (2+2, equal masses, g = -2, first excited level, cutoffs 20-32, fitted exponent
     0.76): the series gave 1.7101 +- 2.8e-3, the power law 1.7027 +- 5.5e-2; no reference decides, so the wide bar.
     Nor is a ladder that starts below cutoff 24 (``first_cutoff``): on the quick suite's 2+1 ladders (equal masses,
@@ -1113,7 +1129,8 @@ class OscillatorEDBackend(Backend):
             "basis_lengths",
             str,
             "auto",
-            "orbital length per species: 'trap' (each species' trap length), 'optimize' (lowest bare energy at"
+            "orbital length per species: 'trap' (each species' trap length; refused for a ladder with the running"
+            " coupling where a heavy-heavy-light trimer can bind), 'optimize' (lowest bare energy at"
             " the ladder's first cutoff, for bound pairs) or 'auto' (optimize when g < 0 and a heavy-heavy-light"
             " trimer or two pairs can bind, and for g > 0 up to four particles when two or more fermions are the"
             " heavier species)",
@@ -1184,6 +1201,9 @@ class OscillatorEDBackend(Backend):
             refusal = effective_refusal(problem, params["truncation"], params["basis_lengths"])
             if refusal:
                 return Support.no(refusal)
+        if (params["basis_lengths"] == "trap" and params["ladder"] > 1 and heavy_light_trimer_possible(problem)
+                and self.interaction_kind(problem, params) == "renormalized"):
+            return Support.no(TRAP_ORBITALS_TRIMER_REFUSAL)
         return Support.yes()
 
     @staticmethod
@@ -1224,8 +1244,9 @@ class OscillatorEDBackend(Backend):
             )
         if heavy_pair_beyond_measured(problem):
             warnings.append(
-                f"a fermion pair more than {HEAVY_PAIR_MEASURED_RATIO:g} times heavier than its partner: error bars not"
-                " verified there (2+1 at mass ratio 15, g = 5: an excited level 2.9 bars off); check against another method"
+                f"a fermion pair more than {HEAVY_PAIR_MEASURED_RATIO:g} times heavier than its partner: error bars"
+                " not verified there (2+1 at mass ratio 15, g = 5: an excited level 2.9 bars off); check against"
+                " another method"
             )
         search_cutoff = min(cutoffs[0], length_search_cutoff(problem))
         # the effective interaction is built in the trap orbitals ('auto' means them here; it binds pairs itself)
