@@ -54,29 +54,21 @@ def reference(level: dataset.DatasetLevel, n_particles: int) -> tuple[float, flo
     return chosen.value, chosen.error
 
 
-def stored_three_body(stores: list[str]) -> dict:
-    """{(grid key, level): (value, uncertainty)} of the ``three-body`` results in the stores (``--same-store``)."""
-    found = {}
+def stored_results(stores: list[str], backend: str = "oscillator-ed"):
+    """(N, grid key, result) of every successful task of ``backend`` in the stores."""
     for store in stores:
         connection = sqlite3.connect(f"file:{store}?mode=ro", uri=True)
-        for (text,) in connection.execute("select result from tasks where backend = 'three-body' and status = 'ok'"):
-            result = json.loads(text)
-            up, down = result["problem"]["up"], result["problem"]["down"]
-            key = dataset.physics_key(up["count"], down["count"], up["mass"], down["mass"], result["g"])
-            for level, (value, error) in enumerate(zip(result["energies"], result["energy_errors"])):
-                found[key, level] = (value, error)
-    return found
-
-
-def stored_results(stores: list[str]):
-    """(N, grid key, result) of every successful oscillator-ed task in the stores."""
-    for store in stores:
-        connection = sqlite3.connect(f"file:{store}?mode=ro", uri=True)
-        for (text,) in connection.execute("select result from tasks where backend = 'oscillator-ed' and status = 'ok'"):
+        for (text,) in connection.execute("select result from tasks where backend = ? and status = 'ok'", (backend,)):
             result = json.loads(text)
             up, down = result["problem"]["up"], result["problem"]["down"]
             key = dataset.physics_key(up["count"], down["count"], up["mass"], down["mass"], result["g"])
             yield up["count"] + down["count"], key, result
+
+
+def stored_three_body(stores: list[str]) -> dict:
+    """{(grid key, level): (value, uncertainty)} of the ``three-body`` results in the stores (``--same-store``)."""
+    return {(key, level): (value, error) for _, key, result in stored_results(stores, "three-body")
+            for level, (value, error) in enumerate(zip(result["energies"], result["energy_errors"]))}
 
 
 def reported(stores: list[str]):
