@@ -712,11 +712,11 @@ def com_copies(energies, errors, states, steady=None) -> tuple[list[float], list
     return energies, errors, records
 
 
-def heavy_pair_present(problem: Problem) -> bool:
-    """A species of at least two fermions is heavier than the other (occupied) species."""
+def heavy_pair_present(problem: Problem, ratio: float = 1.0) -> bool:
+    """A species of at least two fermions is more than ``ratio`` times heavier than the other (occupied) species."""
     up, down = problem.up, problem.down
-    return (up.count >= 2 and down.count >= 1 and up.mass > down.mass) or (
-        down.count >= 2 and up.count >= 1 and down.mass > up.mass
+    return (up.count >= 2 and down.count >= 1 and up.mass > ratio * down.mass) or (
+        down.count >= 2 and up.count >= 1 and down.mass > ratio * up.mass
     )
 
 
@@ -742,10 +742,7 @@ def heavy_pair_beyond_measured(problem: Problem) -> bool:
     """A species of at least two fermions more than ``HEAVY_PAIR_MEASURED_RATIO`` times heavier than its partner: the
     error bars there are not verified (2+1 at 15, g = 5: a turned-around excited level 2.9 bars off; see
     ``GuardedPowerLaw``)."""
-    up, down = problem.up, problem.down
-    return (up.count >= 2 and down.count >= 1 and up.mass > HEAVY_PAIR_MEASURED_RATIO * down.mass) or (
-        down.count >= 2 and up.count >= 1 and down.mass > HEAVY_PAIR_MEASURED_RATIO * up.mass
-    )
+    return heavy_pair_present(problem, HEAVY_PAIR_MEASURED_RATIO)
 
 
 def heavy_majority_repels(problem: Problem) -> bool:
@@ -974,8 +971,8 @@ class GuardedPowerLaw:
                 warning="the fitted exponent reached the top of its scan (no power law yet): error bar >="
                 f" {self.top_factor:g} x the total variation",
             )
+        correction = abs(float(values[-1]) - fit.value)
         if self.steep_power is not None and power >= self.steep_power:
-            correction = abs(float(values[-1]) - fit.value)
             return replace(
                 fit,
                 error=max(fit.error, correction),
@@ -983,7 +980,6 @@ class GuardedPowerLaw:
                 f" (>= {self.steep_power:g}): error bar >= the whole extrapolation",
             )
         if power < self.power_floor:
-            correction = abs(float(values[-1]) - fit.value)
             return replace(
                 fit,
                 error=max(fit.error, correction),
