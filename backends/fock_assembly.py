@@ -11,7 +11,10 @@ took 1.9 ms against 17.6 ms for the matrix-free kernels (one core, measured with
 for both configurations pairs inside the basis. The species with more configurations is the *outer*
 one: its operators are grouped by configuration pair (o, o') over all terms; the other species' operators
 are stacked densely, so each group fills its block of (basis entries of o) x (basis entries of o') by a
-short sum over the group's terms (compiled with numba).
+short sum over the group's terms (compiled with numba). Where the dense stack of all terms would exceed
+``DENSE_STACK_LIMIT`` the terms are taken a range at a time and the ranges' matrices summed: the effective
+interaction of 2+2 (about a thousand terms on 2-fermion configurations) is then assembled too, and its
+ladder to cutoff 32 takes 6.4 instead of 20.1 CPU s (one core, 2026-12-05; energies equal to 1e-14).
 """
 
 from __future__ import annotations
@@ -27,42 +30,59 @@ def assemble(basis, terms, limit: float) -> sp.csr_matrix | None:
 
     ``terms``: (s_k, O_up(k), O_down(k)) with sparse or dense real operators on each species' Fock space.
     Returns None (the caller then stays matrix-free) when there are more than ``limit`` nonzeros,
-    the dense inner stack would exceed ``DENSE_STACK_LIMIT``, or an operator is complex.
+    a single term's dense inner operator would exceed ``DENSE_STACK_LIMIT``, or an operator is complex.
     """
-    if not inner_stack_fits(basis, len(terms)):
-        return None
-    n_u, n_d = basis.shape
     up_is_outer = outer_is_up(basis)
-    n_inner = n_d if up_is_outer else n_u
-    rows, cols, term_index, values = [], [], [], []
-    inner_stack = np.zeros((len(terms), n_inner, n_inner))
-    for k, (scale, op_up, op_down) in enumerate(terms):
-        outer_op, inner_op = (op_up, op_down) if up_is_outer else (op_down, op_up)
-        coo = sp.coo_matrix(outer_op)
-        dense = inner_op.toarray() if sp.issparse(inner_op) else np.asarray(inner_op)
-        if np.iscomplexobj(coo.data) or np.iscomplexobj(dense):
+    n_inner = basis.shape[1] if up_is_outer else basis.shape[0]
+
+    def parts(start: int, stop: int):
+        rows, cols, term_index, values = [], [], [], []
+        inner_stack = np.zeros((stop - start, n_inner, n_inner))
+        for k, (scale, op_up, op_down) in enumerate(terms[start:stop]):
+            outer_op, inner_op = (op_up, op_down) if up_is_outer else (op_down, op_up)
+            coo = sp.coo_matrix(outer_op)
+            dense = inner_op.toarray() if sp.issparse(inner_op) else np.asarray(inner_op)
+            if np.iscomplexobj(coo.data) or np.iscomplexobj(dense):
+                return None
+            keep = coo.data != 0
+            rows.append(coo.row[keep])
+            cols.append(coo.col[keep])
+            term_index.append(np.full(int(keep.sum()), k))
+            values.append(scale * coo.data[keep])
+            inner_stack[k] = dense
+        entries = (np.concatenate(rows), np.concatenate(cols), np.concatenate(term_index), np.concatenate(values))
+        return entries, inner_stack
+
+    return assemble_in_ranges(basis, len(terms), parts, limit)
+
+
+def assemble_in_ranges(basis, count: int, parts, limit: float) -> sp.csr_matrix | None:
+    """The sum over consecutive ranges of the ``count`` terms of ``assemble_stacked(basis, *parts(start, stop),
+    limit)``: each range's dense inner stack (terms x inner configurations^2) stays within ``DENSE_STACK_LIMIT``.
+    ``parts(start, stop)`` gives that range's (outer entries, inner stack), term indices counted from ``start``,
+    or None (e.g. a complex operator). None when a single term does not fit, a range gives None, or the sum
+    has more than ``limit`` nonzeros."""
+    n_u, n_d = basis.shape
+    n_inner = n_d if outer_is_up(basis) else n_u
+    per_range = int(DENSE_STACK_LIMIT // max(1, n_inner * n_inner))
+    if per_range < 1:
+        return None
+    total = None
+    for start in range(0, count, per_range):
+        found = parts(start, min(count, start + per_range))
+        matrix = None if found is None else assemble_stacked(basis, *found, limit)
+        if matrix is None:
             return None
-        keep = coo.data != 0
-        rows.append(coo.row[keep])
-        cols.append(coo.col[keep])
-        term_index.append(np.full(int(keep.sum()), k))
-        values.append(scale * coo.data[keep])
-        inner_stack[k] = dense
-    entries = (np.concatenate(rows), np.concatenate(cols), np.concatenate(term_index), np.concatenate(values))
-    return assemble_stacked(basis, entries, inner_stack, limit)
+        total = matrix if total is None else (total + matrix).tocsr()
+        if total.nnz > limit:
+            return None
+    return total
 
 
 def outer_is_up(basis) -> bool:
     """Whether the up species is the outer one (module docstring): the one with more configurations."""
     n_u, n_d = basis.shape
     return n_u >= n_d
-
-
-def inner_stack_fits(basis, count: int) -> bool:
-    """Whether ``count`` terms' dense inner stack (count x n_inner^2) stays within ``DENSE_STACK_LIMIT``."""
-    n_u, n_d = basis.shape
-    n_inner = n_d if outer_is_up(basis) else n_u
-    return count * n_inner * n_inner <= DENSE_STACK_LIMIT
 
 
 def assemble_stacked(basis, outer_entries, inner_stack: np.ndarray, limit: float) -> sp.csr_matrix | None:

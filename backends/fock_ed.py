@@ -541,22 +541,24 @@ class ProductHamiltonian:
 
     def _assemble_factors(self, f: InteractionFactors, limit: float) -> sp.csr_matrix | None:
         """The explicit CSR matrix of the one-body part plus g sum_k O_up(A_k) (x) O_down(B_k), or None (too many
-        nonzeros, or the dense inner stack too large; ``fock_assembly.assemble_stacked``). The factors' operators
-        come as whole stacks (``FockSpace.one_body_entries``): many factors (the effective interaction has
-        thousands) then cost no sparse matrix each. ``limit`` bounds the interaction's nonzeros."""
+        nonzeros; ``fock_assembly.assemble_in_ranges``). The factors' operators come as whole stacks
+        (``FockSpace.one_body_entries``), a range of terms at a time: many factors (the effective interaction
+        has thousands) then cost no sparse matrix each. ``limit`` bounds the interaction's nonzeros."""
         up_is_outer = fock_assembly.outer_is_up(self.basis)
         outer, inner = (self.basis.up, self.basis.down) if up_is_outer else (self.basis.down, self.basis.up)
         outer_factors, inner_factors = (f.up, f.down) if up_is_outer else (f.down, f.up)
-        count = len(outer_factors)
-        if not fock_assembly.inner_stack_fits(self.basis, count):
-            return None
-        term, rows, cols, values = outer.one_body_entries(np.array(outer_factors), outer.hops())
-        inner_stack = np.zeros((count, inner.dim, inner.dim))
         per_chunk = max(1, int(SCRATCH_ELEMENTS // 10 // max(1, inner.dim**2)))  # bounds the entry lists' memory
-        for start in range(0, count, per_chunk):
-            k, target, source, entries = inner.one_body_entries(np.array(inner_factors[start:start + per_chunk]), inner.hops())
-            np.add.at(inner_stack, (start + k, target, source), entries)
-        matrix = fock_assembly.assemble_stacked(self.basis, (rows, cols, term, self.g * values), inner_stack, limit)
+
+        def parts(start: int, stop: int):
+            term, rows, cols, values = outer.one_body_entries(np.array(outer_factors[start:stop]), outer.hops())
+            inner_stack = np.zeros((stop - start, inner.dim, inner.dim))
+            for first in range(start, stop, per_chunk):
+                last = min(stop, first + per_chunk)
+                k, target, source, entries = inner.one_body_entries(np.array(inner_factors[first:last]), inner.hops())
+                np.add.at(inner_stack, (first - start + k, target, source), entries)
+            return (rows, cols, term, self.g * values), inner_stack
+
+        matrix = fock_assembly.assemble_in_ranges(self.basis, len(outer_factors), parts, limit)
         if matrix is None:
             return None
         return (matrix + self.one_body_matrix()).tocsr()

@@ -14,6 +14,7 @@ import pytest
 from scipy.sparse.linalg import LinearOperator
 from threadpoolctl import threadpool_limits
 
+from trapbench.backends import fock_assembly
 from trapbench.backends import fock_ed as fe
 
 
@@ -370,11 +371,20 @@ def test_interaction_factors_match_jordan_wigner_for_a_random_tensor():
 # ----------------------------------------------------------------------------- explicit matrix
 
 
+def terms_per_range(monkeypatch, basis, terms: int | None) -> None:
+    """Let ``fock_assembly`` stack at most ``terms`` inner operators at a time (None: its own bound)."""
+    if terms is not None:
+        n_inner = basis.shape[1] if fock_assembly.outer_is_up(basis) else basis.shape[0]
+        monkeypatch.setattr(fock_assembly, "DENSE_STACK_LIMIT", terms * n_inner * n_inner)
+
+
+@pytest.mark.parametrize("per_range", [None, 2])
 @pytest.mark.parametrize("n_up,n_down,L", [(2, 1, 5), (1, 2, 5), (2, 2, 4)])
-def test_explicit_matrix_matches_brute_force_in_rotated_orbitals(n_up, n_down, L):
+def test_explicit_matrix_matches_brute_force_in_rotated_orbitals(n_up, n_down, L, per_range, monkeypatch):
     """The assembled CSR matrix (``fock_assembly``) of a lattice model in a rotated orbital basis (non-diagonal
     one-body part and non-diagonal D(q)) equals the brute-force Jordan-Wigner matrix transformed to that basis:
-    its spectrum is the lattice spectrum, and the matrix itself is the matrix-free engine's."""
+    its spectrum is the lattice spectrum, and the matrix itself is the matrix-free engine's; also when the
+    terms are assembled two at a time and summed (``per_range``)."""
     a, g = 0.7, -1.3
     h_u, h_d = lattice_one_body(L, a, 1.0), lattice_one_body(L, a, 20 / 3)
     expected, up, down = brute_force_two_species(h_u, h_d, g / a, n_up, n_down)
@@ -384,6 +394,7 @@ def test_explicit_matrix_matches_brute_force_in_rotated_orbitals(n_up, n_down, L
     contact = fe.ContactFactorization(x, np.full(L, a), sites @ rot, sites @ rot)
     basis = fe.ProductBasis.full(up, down)
     args = (basis, rot.T @ h_u @ rot, rot.T @ h_d @ rot, g, contact)
+    terms_per_range(monkeypatch, basis, per_range)
     explicit = fe.ProductHamiltonian(*args, assemble_limit=1e6)
     assert explicit.matrix is not None and not explicit._chunks
     dense = explicit.matrix.toarray()
@@ -399,9 +410,11 @@ def test_explicit_matrix_matches_brute_force_in_rotated_orbitals(n_up, n_down, L
         (4, 5, [[0, 2, 0, 6], [3, 5, 2, 10]]),  # more down ones, whose up entries are not contiguous
     ],
 )
-def test_explicit_matrix_on_a_rectangle_basis_with_interaction_factors(m_u, m_d, rectangles):
+@pytest.mark.parametrize("per_range", [None, 3])
+def test_explicit_matrix_on_a_rectangle_basis_with_interaction_factors(m_u, m_d, rectangles, per_range, monkeypatch):
     """A random tensor's factors on a truncated (rectangle) basis: the assembled matrix is the restriction of
-    the brute-force matrix (Jordan-Wigner) plus the one-body part."""
+    the brute-force matrix (Jordan-Wigner) plus the one-body part; also when the factors are assembled three at
+    a time and summed (``per_range``)."""
     rng = np.random.default_rng(11)
     n_u, n_d = 2, 2
     tensor = rng.normal(size=(m_u, m_d, m_u, m_d))
@@ -419,9 +432,27 @@ def test_explicit_matrix_on_a_rectangle_basis_with_interaction_factors(m_u, m_d,
     states = [su + sd for su in fixed_number_states(m_u, up.occupied) for sd in fixed_number_states(m_d, down.occupied, m_u)]
     basis = fe.ProductBasis(up, down, np.array(rectangles))
     expected = full[np.ix_(states, states)][np.ix_(basis.flat, basis.flat)]
+    terms_per_range(monkeypatch, basis, per_range)
     explicit = fe.ProductHamiltonian(basis, h_u, h_d, 1.0, fe.InteractionFactors.from_tensor(tensor), assemble_limit=1e6)
     assert explicit.matrix is not None
     assert np.abs(explicit.matrix.toarray() - expected).max() < 1e-12
+
+
+def test_assembly_declines_an_inner_operator_larger_than_the_stack_bound(monkeypatch):
+    """When a single term's dense inner operator exceeds ``DENSE_STACK_LIMIT`` nothing is assembled and the
+    matrix-free products give the same H (the bound is memory, not a result)."""
+    rng = np.random.default_rng(4)
+    m = 5
+    tensor = rng.normal(size=(m, m, m, m))
+    tensor = 0.5 * (tensor + tensor.transpose(2, 3, 0, 1))
+    h = np.diag(np.arange(m) + 0.5)
+    basis = fe.ProductBasis.full(fe.FockSpace(m, 2), fe.FockSpace(m, 2))
+    factors = fe.InteractionFactors.from_tensor(tensor)
+    reference = fe.ProductHamiltonian(basis, h, h, 0.7, factors, assemble_limit=1e6)
+    monkeypatch.setattr(fock_assembly, "DENSE_STACK_LIMIT", 10 * 10 - 1)  # 10 inner configurations: 100 entries
+    declined = fe.ProductHamiltonian(basis, h, h, 0.7, factors, assemble_limit=1e6)
+    assert reference.matrix is not None and declined.matrix is None
+    assert np.allclose(declined.to_dense(), reference.matrix.toarray(), atol=1e-12)
 
 
 def test_explicit_matrix_above_its_limit_stays_matrix_free(monkeypatch):
