@@ -76,6 +76,9 @@ the successive differences; '-' where the error changes sign; CPU s of the singl
                      renormalized +3.8e-03  +1.9e-03  +1.1e-03  1.94   34.2
                      effective    +1.6e-03  +7.2e-04  +4.1e-04  2.11   39.7
 
+(CPU s as measured then; since the engine assembles the effective interaction's factors a range at a time, 2+2's
+whole four-cutoff ladder to c = 32 takes 7.3 CPU s, ``bench/benchmarks/bench_oscillator_results.md``.)
+
 Up to version 14 the effective ladder used the running coupling's model (``cutoff_model``); on four-cutoff
 ladders of the 2+1 rows above all 16 extrapolations lay within twice their bars (median bar 4x the true error);
 with the default ladder on 2+1 over mass ratios 0.15-20/3 and g = -3 ... 20 (trimer regimes refused),
