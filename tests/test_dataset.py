@@ -37,6 +37,17 @@ def test_suite_matches_the_grid():
     assert all(min(p.up.mass, p.down.mass) == 1.0 for p in grid.values())
 
 
+def test_the_sixth_order_suite_is_the_grids_four_particle_ground_states():
+    suite = load_suite("dataset-order6")
+    grid = {p.label: p for p in dataset.dataset_problems() if p.n_particles == 4}
+    assert {p.name for p in suite.problems} == set(grid)
+    for problem in suite.problems:
+        physics = problem.problem.physics_dict()
+        assert physics == {**grid[problem.name].physics_dict(), "targets": physics["targets"]}
+        assert problem.problem.targets.states == 1
+    assert [(plan.name, plan.param_sets) for plan in suite.backends] == [("lattice-dmrg", ({"continuum_order": 6},))]
+
+
 def test_two_independent_families_that_agree_are_published():
     built = dataset.build([row("oscillator-ed", 10.0001, 2e-4), row("lattice-dmrg", 10.0, 1e-4)])
     (entry,) = built.entries
