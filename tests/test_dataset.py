@@ -287,6 +287,17 @@ def test_the_build_command_pools_several_stores_and_suites(tmp_path):
     assert {m.backend for m in level.methods} == {"oscillator-ed", "lattice-ed"}
 
 
+def test_the_build_command_reads_the_dataset_and_sixth_order_suites_by_default(tmp_path):
+    # the oscillator family from the dataset suite, the lattice family from dataset-order6, one store
+    _store_fixed_levels(tmp_path / "a.sqlite", "dataset", "oscillator-ed", 5.5394, 2e-4)
+    _store_fixed_levels(tmp_path / "a.sqlite", "dataset-order6", "lattice-dmrg", 5.53933, 1e-5)
+    out = tmp_path / "data.json"
+    assert main(["dataset", "--store", str(tmp_path / "a.sqlite"), "--output", str(out), "--replace"]) == 0
+    level = dataset.Dataset.from_json_dict(json.loads(out.read_text())).entries[0].levels[0]
+    assert level.status == "agreed" and level.value == 5.53933 and level.uncertainty == 2e-4
+    assert level.reference_for("oscillator-ed") == (5.53933, 1e-5, ("lattice-dmrg",))
+
+
 def test_disagreements_list_the_levels_where_two_families_exclude_each_other():
     built = dataset.build([row("oscillator-ed", 10.01, 2e-3), row("lattice-dmrg", 10.0, 1e-3),  # gap 0.01 > 3e-3
                            row("oscillator-ed", 7.0, 1e-3, g=5.0), row("lattice-ed", 7.0005, 1e-3, g=5.0),  # agreed

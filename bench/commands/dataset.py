@@ -5,9 +5,11 @@ rule of ``trapbench.problems.dataset`` and writes the versioned data file that t
 default the store's grid points are merged into the existing file level by level (the methods of a level in both
 are pooled and judged again; a sweep of part of the grid, or of fewer levels, adds to it);
 ``--replace`` writes the store's points alone. ``--store`` and ``--suite`` repeat: the rule then sees the
-results of every named suite in every store together (e.g. the method map's runs at the dataset's g = 2):
+results of every named suite in every store together (e.g. the method map's runs at the dataset's g = 2). The
+default suites are ``dataset`` and ``dataset-order6`` (lattice-dmrg's sixth-order fit on the N = 4 ground states):
 
     trapbench sweep dataset --store ground-truth.sqlite --workers 2
+    trapbench sweep dataset-order6 --store ground-truth.sqlite --workers 2
     trapbench dataset --store ground-truth.sqlite
     trapbench dataset --store ground-truth.sqlite --store map.sqlite --suite dataset --suite map
 """
@@ -21,13 +23,15 @@ from pathlib import Path
 NAME = "dataset"
 HELP = "build the reference dataset (3 to 12 particles) from a store holding a sweep of the 'dataset' suite"
 ORDER = 46
+DEFAULT_SUITES = ("dataset", "dataset-order6")
 
 
 def register(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--store", required=True, action="append", metavar="PATH",
                         help="a results store of the dataset sweep (repeat to pool several stores)")
     parser.add_argument("--suite", action="append", metavar="SUITE",
-                        help="a suite whose results to use (repeat for several; default: dataset)")
+                        help="a suite whose results to use (repeat for several; default: dataset and"
+                             " dataset-order6)")
     parser.add_argument("--output", metavar="PATH",
                         help="where to write the data file (default: the file shipped in this installation)")
     parser.add_argument("--version", dest="dataset_version", metavar="TEXT",
@@ -45,7 +49,7 @@ def run(args: argparse.Namespace) -> int:
     from ...problems.errors import SpecError
     from ..store import Store
 
-    suites = args.suite or ["dataset"]
+    suites = args.suite or list(DEFAULT_SUITES)
     frames = []
     for path in args.store:
         if not Path(path).is_file():
