@@ -7,6 +7,7 @@ g = +inf fermionized energy N^2/2 bounds equal-mass levels from above (sum delta
 min-max principle, common practice).
 """
 
+import argparse
 import json
 
 import pandas as pd
@@ -296,6 +297,26 @@ def test_the_build_command_reads_the_dataset_and_sixth_order_suites_by_default(t
     level = dataset.Dataset.from_json_dict(json.loads(out.read_text())).entries[0].levels[0]
     assert level.status == "agreed" and level.value == 5.53933 and level.uncertainty == 2e-4
     assert level.reference_for("oscillator-ed") == (5.53933, 1e-5, ("lattice-dmrg",))
+
+
+def test_the_build_command_writes_the_file_before_printing(tmp_path, monkeypatch):
+    # a reader that stops early (`trapbench dataset ... | head -1`) closes the pipe at the first print
+    _store_fixed_levels(tmp_path / "a.sqlite", "dataset", "oscillator-ed", 5.5394, 2e-4)
+    out = tmp_path / "data.json"
+
+    def closed_pipe(*args, **kwargs):
+        raise BrokenPipeError
+
+    from trapbench.bench.commands import dataset as command
+
+    parser = argparse.ArgumentParser()
+    command.register(parser)
+    args = parser.parse_args(["--store", str(tmp_path / "a.sqlite"), "--output", str(out), "--replace"])
+    monkeypatch.setattr("builtins.print", closed_pipe)
+    with pytest.raises(BrokenPipeError):  # `trapbench` itself then exits quietly with 128 + SIGPIPE
+        command.run(args)
+    written = dataset.Dataset.from_json_dict(json.loads(out.read_text()))
+    assert [level.methods[0].value for e in written.entries for level in e.levels] == [5.5394]
 
 
 def test_disagreements_list_the_levels_where_two_families_exclude_each_other():

@@ -66,12 +66,19 @@ def run(args: argparse.Namespace) -> int:
         existing = dataset.Dataset.from_json_dict(json.loads(target.read_text(encoding="utf-8")))
         kept = len({e.key for e in existing.entries} - {e.key for e in built.entries})
         built = dataset.merge(existing, built)
-        print(f"merged into {target}: {kept} grid point(s) not in this store kept as they were;"
-              " levels of the others pooled with the file's methods and judged again")
+        merged = (f"merged into {target}: {kept} grid point(s) not in this store kept as they were;"
+                  " levels of the others pooled with the file's methods and judged again")
+    else:
+        merged = None
     summary = pd.DataFrame(dataset.summary_rows(built))
     if summary.empty:
         print("no grid point of the dataset has a measured level in this store")
         return 1
+    if not args.dry_run:  # written before anything is printed, so that a closed pipe (`| head`) cannot lose it
+        target.parent.mkdir(parents=True, exist_ok=True)
+        target.write_text(json.dumps(built.to_json_dict(), indent=1) + "\n", encoding="utf-8")
+    if merged:
+        print(merged)
     table = summary.groupby(["config", "status"]).size().unstack(fill_value=0)
     grid = sum(len(problem.points()) for problem in dataset.dataset_problems())
     print(f"reference dataset v{built.version}: {len(built.entries)} of {grid} grid points measured, {len(summary)} levels")
@@ -81,9 +88,6 @@ def run(args: argparse.Namespace) -> int:
         worst = published.groupby("config").agg(worst_relative=("relative", "max"), goal=("goal", "first"))
         print("\nworst relative uncertainty against the goal of each particle number:")
         print(worst.to_string(float_format=lambda v: f"{v:.2g}"))
-    if args.dry_run:
-        return 0
-    target.parent.mkdir(parents=True, exist_ok=True)
-    target.write_text(json.dumps(built.to_json_dict(), indent=1) + "\n", encoding="utf-8")
-    print(f"\nwrote {target}")
+    if not args.dry_run:
+        print(f"\nwrote {target}")
     return 0
