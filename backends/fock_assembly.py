@@ -33,7 +33,7 @@ def assemble(basis, terms, limit: float) -> sp.csr_matrix | None:
     a single term's dense inner operator would exceed ``DENSE_STACK_LIMIT``, or an operator is complex.
     """
     up_is_outer = outer_is_up(basis)
-    n_inner = basis.shape[1] if up_is_outer else basis.shape[0]
+    n_inner = inner_dimension(basis)
 
     def parts(start: int, stop: int):
         rows, cols, term_index, values = [], [], [], []
@@ -62,8 +62,7 @@ def assemble_in_ranges(basis, count: int, parts, limit: float) -> sp.csr_matrix 
     ``parts(start, stop)`` gives that range's (outer entries, inner stack), term indices counted from ``start``,
     or None (e.g. a complex operator). None when a single term does not fit, a range gives None, or the sum
     has more than ``limit`` nonzeros."""
-    n_u, n_d = basis.shape
-    n_inner = n_d if outer_is_up(basis) else n_u
+    n_inner = inner_dimension(basis)
     per_range = int(DENSE_STACK_LIMIT // max(1, n_inner * n_inner))
     if per_range < 1:
         return None
@@ -83,6 +82,11 @@ def outer_is_up(basis) -> bool:
     """Whether the up species is the outer one (module docstring): the one with more configurations."""
     n_u, n_d = basis.shape
     return n_u >= n_d
+
+
+def inner_dimension(basis) -> int:
+    """The number of configurations of the inner species (the one ``outer_is_up`` does not pick)."""
+    return basis.shape[1] if outer_is_up(basis) else basis.shape[0]
 
 
 def assemble_stacked(basis, outer_entries, inner_stack: np.ndarray, limit: float) -> sp.csr_matrix | None:

@@ -374,8 +374,7 @@ def test_interaction_factors_match_jordan_wigner_for_a_random_tensor():
 def terms_per_range(monkeypatch, basis, terms: int | None) -> None:
     """Let ``fock_assembly`` stack at most ``terms`` inner operators at a time (None: its own bound)."""
     if terms is not None:
-        n_inner = basis.shape[1] if fock_assembly.outer_is_up(basis) else basis.shape[0]
-        monkeypatch.setattr(fock_assembly, "DENSE_STACK_LIMIT", terms * n_inner * n_inner)
+        monkeypatch.setattr(fock_assembly, "DENSE_STACK_LIMIT", terms * fock_assembly.inner_dimension(basis) ** 2)
 
 
 @pytest.mark.parametrize("per_range", [None, 2])
