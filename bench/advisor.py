@@ -182,8 +182,8 @@ class Advice:
             if unverified:
                 lines += [f"Measured but unverified: {', '.join(unverified)} ran on neighbouring problems, but no reference"
                           f" there is within a tenth of {q.accuracy:g} (see below). More of the same sweep will not settle"
-                          " it; tighter references would (the reference dataset: 'trapbench sweep dataset', then"
-                          " 'trapbench dataset'), or ask for a looser accuracy.", ""]
+                          f" it; tighter references would (the reference dataset: {dataset_sweeps()}), or ask"
+                          " for a looser accuracy.", ""]
             else:
                 lines += ["This sweep would produce it (then ask again with the same --store):", "",
                           "  " + evidence_command(q), ""]
@@ -414,6 +414,13 @@ def advise(frame: pd.DataFrame, query: Query, references=None) -> Advice:
 
 def _number(value) -> float | None:
     return None if value is None or pd.isna(value) else float(value)
+
+
+def dataset_sweeps() -> str:
+    """The commands that rebuild the reference dataset from the built-in suites behind it."""
+    from ..problems.dataset import SUITES
+
+    return ", ".join(f"'trapbench sweep {suite}'" for suite in SUITES) + ", then 'trapbench dataset'"
 
 
 def evidence_command(query: Query) -> str:

@@ -57,6 +57,7 @@ from .spec import Problem
 
 DATASET_VERSION = "2"  # 2: N = 4 ground states with the sixth-order lattice fit, oscillator-ed 16
 DATASET_RESOURCE = ("data", "reference_energies.json")
+SUITES = ("dataset", "dataset-order6")  # the built-in suites whose sweeps the dataset is built from
 CONFIGURATIONS = ((2, 1), (1, 2), (3, 1), (2, 2), (3, 2), (3, 3), (4, 4), (6, 6))
 MASS_RATIOS = (1.0, 2.0, 20 / 3)
 COUPLINGS = (-3.0, -1.0, 0.5, 2.0, 5.0, 20.0)

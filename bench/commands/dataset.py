@@ -23,7 +23,6 @@ from pathlib import Path
 NAME = "dataset"
 HELP = "build the reference dataset (3 to 12 particles) from a store holding a sweep of the 'dataset' suite"
 ORDER = 46
-DEFAULT_SUITES = ("dataset", "dataset-order6")
 
 
 def register(parser: argparse.ArgumentParser) -> None:
@@ -49,7 +48,7 @@ def run(args: argparse.Namespace) -> int:
     from ...problems.errors import SpecError
     from ..store import Store
 
-    suites = args.suite or list(DEFAULT_SUITES)
+    suites = args.suite or list(dataset.SUITES)
     frames = []
     for path in args.store:
         if not Path(path).is_file():
