@@ -38,15 +38,27 @@ def test_suite_matches_the_grid():
     assert all(min(p.up.mass, p.down.mass) == 1.0 for p in grid.values())
 
 
-def test_the_sixth_order_suite_is_the_grids_four_particle_ground_states():
+def test_the_sixth_order_suite_is_the_grids_four_and_five_particle_ground_states():
     suite = load_suite("dataset-order6")
-    grid = {p.label: p for p in dataset.dataset_problems() if p.n_particles == 4}
+    grid = {p.label: p for p in dataset.dataset_problems() if p.n_particles in (4, 5)}
     assert {p.name for p in suite.problems} == set(grid)
     for problem in suite.problems:
         physics = problem.problem.physics_dict()
         assert physics == {**grid[problem.name].physics_dict(), "targets": physics["targets"]}
         assert problem.problem.targets.states == 1
     assert [(plan.name, plan.param_sets) for plan in suite.backends] == [("lattice-dmrg", ({"continuum_order": 6},))]
+
+
+def test_the_shipped_dataset_holds_the_sixth_order_suite_at_every_point_it_covers():
+    shipped = dataset.load()
+    assert shipped.version == dataset.DATASET_VERSION
+    suite = load_suite("dataset-order6")
+    keys = {dataset.problem_key(point) for problem in suite.problems for point in problem.problem.points()}
+    ground = {entry.key: entry.levels[0] for entry in shipped.entries}
+    assert keys <= set(ground)
+    for key in keys:
+        runs = (*ground[key].methods, *ground[key].other_runs)
+        assert any(run.backend == "lattice-dmrg" and run.params.get("continuum_order") == 6 for run in runs), key
 
 
 def test_two_independent_families_that_agree_are_published():
