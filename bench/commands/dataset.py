@@ -6,7 +6,7 @@ default the store's grid points are merged into the existing file level by level
 are pooled and judged again; a sweep of part of the grid, or of fewer levels, adds to it);
 ``--replace`` writes the store's points alone. ``--store`` and ``--suite`` repeat: the rule then sees the
 results of every named suite in every store together (e.g. the method map's runs at the dataset's g = 2). The
-default suites are ``dataset`` and ``dataset-order6`` (lattice-dmrg's sixth-order fit on the N = 4 and 5 ground states):
+default suites are ``dataset`` and ``dataset-order6`` (lattice-dmrg's sixth-order fit on the N = 4, 5 and 6 ground states):
 
     trapbench sweep dataset --store ground-truth.sqlite --workers 2
     trapbench sweep dataset-order6 --store ground-truth.sqlite --workers 2
