@@ -303,7 +303,7 @@ def test_no_advice_for_lack_of_a_tight_reference_says_so_instead_of_asking_for_t
     assert advice.best is None and advice.unverified() == ["lattice"]
     text = advice.explain()
     assert "Measured but unverified: lattice" in text and "This sweep would produce it" not in text
-    # the hint names the sweep of every suite the dataset is built from, the sixth-order N = 4 one included
+    # the hint names the sweep of every suite the dataset is built from, the sixth-order one included
     assert "'trapbench sweep dataset'" in text and "'trapbench sweep dataset-order6'" in text
     assert advice.to_json_dict()["unverified"] == ["lattice"]
 
