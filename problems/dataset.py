@@ -152,6 +152,11 @@ class DatasetLevel:
     def published(self) -> bool:
         return self.status in ("agreed", "precision")
 
+    @property
+    def runs(self) -> tuple[MethodValue, ...]:
+        """Every run behind the level: the methods that made its value, then the others."""
+        return (*self.methods, *self.other_runs)
+
     def reference_for(self, backend: str | None) -> tuple[float, float, tuple[str, ...]] | None:
         """(value, uncertainty, contributing methods) that may grade ``backend`` (None: no independent value).
 
@@ -411,7 +416,7 @@ def _merge_entry(old: DatasetEntry, new: DatasetEntry) -> DatasetEntry:
             levels[level.state] = level
             continue
         pooled: dict[str, dict[tuple, MethodValue]] = {}
-        for run in (*previous.methods, *previous.other_runs, *level.methods, *level.other_runs):
+        for run in (*previous.runs, *level.runs):
             run = _as_reported(run)  # the update's last: it wins a tie; a run held by both counts once
             pooled.setdefault(run.backend, {}).pop(_run_key(run), None)
             pooled[run.backend][_run_key(run)] = run

@@ -174,7 +174,7 @@ def shipped_oscillator_defaults() -> dict[tuple, tuple[float, float, str]]:
         for level in entry.levels:
             if level.state != 0:
                 continue
-            runs = [run for run in (*level.methods, *level.other_runs) if run.backend == "oscillator-ed" and not run.params]
+            runs = [run for run in level.runs if run.backend == "oscillator-ed" and not run.params]
             if runs:
                 newest = max(runs, key=lambda run: dataset.version_rank(run.version))
                 found[key] = (newest.value, newest.own_error or newest.error, newest.version)

@@ -45,7 +45,7 @@ def reference(level: dataset.DatasetLevel, n_particles: int) -> tuple[float, flo
     """(value, uncertainty) of another method family for this level, or None."""
     wanted = ("three-body",) if n_particles == 3 else LATTICE
     by_backend: dict[str, list] = defaultdict(list)
-    for run in (*level.methods, *level.other_runs):
+    for run in level.runs:
         if run.backend in wanted:
             by_backend[run.backend].append(run)
     if not by_backend:

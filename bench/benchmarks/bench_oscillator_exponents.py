@@ -47,7 +47,7 @@ def run_case(key: str, cutoffs: list[int]) -> None:
 
     entry = dataset.load().index[key]
     level = entry.levels[0]
-    reference = next(run for run in (*level.methods, *level.other_runs) if run.backend == "three-body")
+    reference = next(run for run in level.runs if run.backend == "three-body")
     problem = Problem.create(entry.n_up, entry.n_down, entry.g, mass_up=entry.mass_up, mass_down=entry.mass_down)
     backend = OscillatorEDBackend()
     energies, lengths = [], None
