@@ -39,7 +39,8 @@ How an error bar is formed (the one place where this is stated, for energies and
 
 Observables on a grid (densities, correlation maps) are the last rung's, not extrapolated; their
 error bar (``grid_error``) is the largest change over the grid from the rung before, turned into a
-remainder by the same two-rung rule.
+remainder by the same two-rung rule (``two_rung_remainder``; a backend whose grids move from rung to
+rung interpolates the rung before onto the last one first, e.g. the lattice densities in ``lattice.py``).
 """
 
 from __future__ import annotations
@@ -144,8 +145,12 @@ def rank_keys(sectors: Sequence[Hashable]) -> list[tuple[Hashable, int]]:
 def last_change_bar(model: Model, steps: Sequence[float], change: float) -> float:
     """The limit error a change between the last two rungs implies (module docstring: two rungs)."""
     power = getattr(model, "two_rung_power", None)
-    if not power:
-        return change
+    return two_rung_remainder(steps, change, power) if power else change
+
+
+def two_rung_remainder(steps: Sequence[float], change: float, power: float) -> float:
+    """|change| / (r^p - 1): the distance to the limit of the last rung when the error falls like
+    resolution^p and the last two steps differ by the ratio r (>= 1)."""
     ratio = max(steps[-1], steps[-2]) / min(steps[-1], steps[-2])
     return change / (ratio**power - 1.0)
 

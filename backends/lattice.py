@@ -32,6 +32,13 @@ finest of them exceeds a backend's size budget (``Budget``), the same ladder sha
 finest spacing that fits, the result says so with the error bar that ladder gave, and the problem is
 refused only when no useful ladder fits (``fit_to_budget``).
 
+Densities carry an error bar: the finest lattice's density (not extrapolated) and its largest change over
+the grid from the spacing before (that lattice's site densities interpolated onto the finest sites by a
+cubic spline), turned into the remainder of a law a^p with p = ``DENSITY_POWER`` (``ladder.two_rung_remainder``).
+The other observables on a grid (one-body density matrix, momentum distribution, pair correlations) carry
+none (``error`` None): their grids move with the spacing, and the pair correlation's cusp would put the
+interpolation's error into the bar.
+
 Box: a hard-wall trap keeps its walls (Dirichlet sites strictly inside); any other trap gets the
 half width X from the widest occupied one-body orbital plus a margin, validated by the weight of
 that orbital at the edge sites (grown until it is below ``edge_tolerance``).
@@ -46,13 +53,14 @@ from typing import Any
 
 import numpy as np
 import scipy.linalg
+from scipy.interpolate import CubicSpline
 import scipy.sparse as sp
 
 from ..problems.errors import SpecError
 from ..problems.spec import Problem, Species
 from .base import Parameter, Support
 from .extrapolation import PolynomialModel, SixthOrderSpacingFit
-from .ladder import Rung, RungLevel, rank_keys, run_ladder
+from .ladder import Rung, RungLevel, rank_keys, run_ladder, two_rung_remainder
 from .result import Observable, Solution
 
 # Powers of the spacing in the continuum extrapolation (see the module docstring for the measurement).
@@ -255,6 +263,11 @@ CONTINUUM_MODELS = {4: CONTINUUM_MODEL, 6: SixthOrderSpacingFit()}
 # Measured: 2+1, masses 0.15/1, g = 5 over a = 0.70 ... 0.36 (of a length 1) extrapolates to within
 # 2e-5 relative of oscillator-ed (bench_lattice_results.md).
 USEFUL_FINEST_FRACTION = 0.4
+# The law a^p behind a density's error bar (module docstring). The three-point Laplacian's error is O(a^2)
+# (common practice), and so is the density's on default ladders; but at spacings of half the shortest length
+# and more its local order falls to 0.5-1.7, where p = 2 or 3/2 would under-cover. p = 1 holds both: measured
+# on 1+1 and 2+1 against two-body and three-body densities (bench_lattice_results.md, "Density error bars").
+DENSITY_POWER = 1.0
 
 # The discretization parameters every lattice backend takes.
 LADDER_PARAMETERS = (
@@ -416,7 +429,7 @@ class LatticeLevels:
     solver_errors: list[float]
     states: list[dict[str, Any]]
     scalars: list[dict[str, float]] = field(default_factory=list)
-    site_densities: tuple[np.ndarray, np.ndarray] | None = None  # <n_{s,j}> of the lowest level
+    site_densities: list[tuple[np.ndarray, np.ndarray]] = field(default_factory=list)  # <n_{s,j}> per level
     observe: Callable[[int, int], tuple[dict[str, Observable], list[str]]] | None = None
     diagnostics: dict[str, Any] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
@@ -435,14 +448,15 @@ def solve_continuum_ladder(
 
     Levels are followed by (reflection sector, rank in the sector). The solver error of a level is
     what ``solve_on_grid`` reports (residual norm, DMRG truncation). Observables are those of the
-    finest lattice, on its sites, and say so.
+    finest lattice, on its sites, and say so; densities carry the error bar of the module docstring.
     """
-    grids, finest_levels = [], []
+    grids, densities, finest_levels = [], [], []
 
     def solve_rung(spacing: float, final: bool) -> Rung:
         grid = make_grid(problem, spacing, ladder.half_width)
         levels = solve_on_grid(grid, final)
         grids.append(grid)
+        densities.append(levels.site_densities)
         if final:
             finest_levels.append(levels)
         keys = rank_keys([state.get("parity") for state in levels.states])
@@ -467,8 +481,9 @@ def solve_continuum_ladder(
             f"{ladder.fitted}: the error bar it gives here is {outcome.error_estimate:.2g}"
             f" ({outcome.error_estimate / max(lowest, 1e-300):.1g} relative)"
         )
-    if finest.site_densities is not None:
-        for species, density in zip(problem.species, finest.site_densities):
+    if finest.site_densities:
+        lowest = finest.site_densities[int(np.argmin(finest.energies))]
+        for species, density in zip(problem.species, lowest):
             if species.count:
                 text = density_edge_warning(density, grid, f"density of {species.name}", edge_tolerance)
                 if text:
@@ -477,6 +492,12 @@ def solve_continuum_ladder(
     if finest.observe is not None:
         for rank, key in enumerate(outcome.keys):
             found, notes = finest.observe(outcome.final.levels[key].payload, rank)
+            if len(grids) >= 2:
+                before = densities[-2][outcome.rungs[-2].levels[key].payload]
+                for name, site_density in zip(("up", "down"), before):
+                    observable = found.get(f"density_{name}{'' if rank == 0 else f'@{rank}'}")
+                    if observable is not None:
+                        observable.error = density_error(observable.values, site_density, grids[-2], grid)
             observables.update(found)
             warnings.extend(n for n in notes if n not in warnings)
     return Solution(
@@ -492,11 +513,21 @@ def solve_continuum_ladder(
             "spacings": [g.spacing for g in grids],
             "sites": [g.sites for g in grids],
             **outcome.diagnostics(),
-            "observables_on": f"sites of the finest lattice (a = {grid.spacing:.6g}), not extrapolated",
+            "observables_on": f"sites of the finest lattice (a = {grid.spacing:.6g}), not extrapolated;"
+            f" density bars from the spacing before (a^{DENSITY_POWER:g} law)",
             **({"fitted_to_budget": ladder.fitted} if ladder.fitted else {}),
         },
         warnings=warnings,
     )
+
+
+def density_error(density: np.ndarray, site_density_before: np.ndarray, before: Grid, finest: Grid) -> float:
+    """Error bar of the finest lattice's ``density`` (1/length, on its sites): the largest change over the
+    grid from the lattice ``before`` (its site occupations, interpolated by a cubic spline) as the
+    remainder of an a^``DENSITY_POWER`` law."""
+    previous = CubicSpline(before.x, np.asarray(site_density_before) / before.spacing)(finest.x)
+    change = float(np.max(np.abs(density - previous)))
+    return two_rung_remainder([before.spacing, finest.spacing], change, DENSITY_POWER)
 
 
 # ----------------------------------------------------------------------------- momentum space

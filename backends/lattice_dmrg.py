@@ -302,7 +302,7 @@ def solve_on_grid(problem: Problem, grid: lattice.Grid, final: bool, chis, param
             lattice_observables.scalars(problem, grid, site, stage[-1]["energy"])
             for site, stage in zip(sites, stages)
         ],
-        site_densities=sites[0].densities,
+        site_densities=[site.densities for site in sites],
         diagnostics={"sites": grid.sites, "spacing": grid.spacing, "chi_ladder": stages},
         warnings=warnings,
     )

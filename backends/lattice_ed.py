@@ -259,7 +259,7 @@ def solve_on_grid(problem: Problem, grid: lattice.Grid, final: bool, tolerance: 
         solver_errors=[float(r) for r in residuals],
         states=labels,
         scalars=scalars,
-        site_densities=sites[int(np.argmin(energies))].densities,
+        site_densities=[site.densities for site in sites],
         observe=observe if final else None,
         diagnostics={"sites": grid.sites, "spacing": grid.spacing, "dimension": basis.dim, "residuals": residuals},
     )

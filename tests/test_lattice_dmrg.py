@@ -8,12 +8,14 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from scipy.interpolate import CubicSpline
 
 sys.path.insert(0, str(Path(__file__).parent))
 from lattice_reference import quspin_levels  # noqa: E402
 
 from trapbench.backends import lattice  # noqa: E402
 from trapbench.backends.lattice_dmrg import LatticeDMRGBackend, solve_on_grid  # noqa: E402
+from trapbench.backends.registry import get  # noqa: E402
 from trapbench.problems.spec import Problem  # noqa: E402
 
 pytestmark = pytest.mark.filterwarnings("ignore::UserWarning")
@@ -278,3 +280,15 @@ def test_continuum_order_reaches_the_shared_ladder():
     assert bad.value.field == "param.continuum_order"
     assert BACKEND.supports(problem, {"continuum_order": 6}).ok  # the default ladder has five spacings
     assert BACKEND.ladder(problem, BACKEND.resolve_params({"continuum_order": 6})).continuum_order == 6
+
+
+def test_dmrg_densities_carry_error_bars_that_cover_the_two_body_density():
+    # the exact 1+1 density (two-body backend: Busch et al., Found. Phys. 28, 549 (1998), its relative-motion
+    # function convolved with the centre-of-mass Gaussian) as the truth, on a coarse untruncated ladder
+    problem = Problem.create(1, 1, 2.0, observables=["density"])
+    result = BACKEND.solve(problem, spacings=(0.5, 0.4), x_max=5.0, chi=(32,))  # local order 1.7 here
+    exact = get("two-body").solve(problem).observables["density_up"]
+    density = result.observables["density_up"]
+    truth = CubicSpline(exact.axes["x"], exact.values)(density.axes["x"])
+    error = float(np.max(np.abs(density.values - truth)))
+    assert error <= density.error <= 4 * error

@@ -11,6 +11,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from scipy.interpolate import CubicSpline
 
 sys.path.insert(0, str(Path(__file__).parent))
 from lattice_reference import quspin_levels  # noqa: E402
@@ -284,3 +285,20 @@ def test_lattice_scalars_carry_error_bars_that_cover_hellmann_feynman(mass_down,
     for name, exact in (("delta", delta), ("trap_energy", trap)):
         assert abs(result.scalars[name] - exact) <= result.scalar_errors[name]
         assert result.scalar_errors[name] < 1e-2 * abs(exact)
+
+
+@pytest.mark.parametrize("mass_up, mass_down, g", [(1.0, 1.0, 2.0), (1.0, 1.0, -3.0), (1.0, 2.0, -3.0)])
+def test_lattice_densities_carry_error_bars_that_cover_three_body_densities(mass_up, mass_down, g):
+    # three-body's densities (its own bars 1e-6 or tighter) as the truth; coarse spacings, where the
+    # a^2 law of the three-point Laplacian is least settled. The bar is the finest lattice's distance to
+    # the continuum under an a^1 law: it must hold the error, and be no wider than four times it.
+    problem = Problem.create(2, 1, g, mass_up=mass_up, mass_down=mass_down, observables=["density"])
+    scale = lattice.length_scale(problem)
+    result = BACKEND.solve(problem, spacings=[0.6 * scale, 0.45 * scale], x_max=5.0)
+    exact = get("three-body").solve(problem)
+    for name in ("density_up", "density_down"):
+        density, reference = result.observables[name], exact.observables[name]
+        assert reference.error < 1e-6
+        truth = CubicSpline(reference.axes["x"], reference.values)(density.axes["x"])  # error ~1e-6 on its grid
+        error = float(np.max(np.abs(density.values - truth)))
+        assert error <= density.error <= 4 * error
