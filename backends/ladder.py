@@ -39,8 +39,8 @@ How an error bar is formed (the one place where this is stated, for energies and
 
 Observables on a grid (densities, correlation maps) are the last rung's, not extrapolated; their
 error bar (``grid_error``) is the largest change over the grid from the rung before, turned into a
-remainder by the same two-rung rule (``two_rung_remainder``; a backend whose grids move from rung to
-rung interpolates the rung before onto the last one first, e.g. the lattice densities in ``lattice.py``).
+remainder by the same two-rung rule (``two_rung_remainder``). A backend may do better where it knows its
+grids' law: the lattice densities are extrapolated to the continuum (``lattice.continuum_density``).
 """
 
 from __future__ import annotations

@@ -32,9 +32,12 @@ finest of them exceeds a backend's size budget (``Budget``), the same ladder sha
 finest spacing that fits, the result says so with the error bar that ladder gave, and the problem is
 refused only when no useful ladder fits (``fit_to_budget``).
 
-Densities carry an error bar: the finest lattice's density (not extrapolated) and its largest change over
-the grid from the spacing before (that lattice's site densities interpolated onto the finest sites by a
-cubic spline), turned into the remainder of a law a^p with p = ``DENSITY_POWER`` (``ladder.two_rung_remainder``).
+Densities are extrapolated to the continuum on the finest lattice's sites (``continuum_density``): each
+coarser lattice's site densities are interpolated onto those sites (a quintic spline), and the a^2 law of the
+three-point Laplacian (common practice) is removed by Richardson's rule from the two finest spacings,
+n = n_1 + (n_1 - n_2) / (r^2 - 1), r = a_2 / a_1. The error bar is the largest change over the grid from the same
+rule on the two spacings before. A two-spacing ladder reports the finest density with its largest change from
+the other one as the remainder of an a^p law, p = ``DENSITY_POWER`` (``ladder.two_rung_remainder``).
 The other observables on a grid (one-body density matrix, momentum distribution, pair correlations) carry
 none (``error`` None): their grids move with the spacing, and the pair correlation's cusp would put the
 interpolation's error into the bar.
@@ -53,7 +56,7 @@ from typing import Any
 
 import numpy as np
 import scipy.linalg
-from scipy.interpolate import CubicSpline
+from scipy.interpolate import make_interp_spline
 import scipy.sparse as sp
 
 from ..problems.errors import SpecError
@@ -263,11 +266,14 @@ CONTINUUM_MODELS = {4: CONTINUUM_MODEL, 6: SixthOrderSpacingFit()}
 # Measured: 2+1, masses 0.15/1, g = 5 over a = 0.70 ... 0.36 (of a length 1) extrapolates to within
 # 2e-5 relative of oscillator-ed (bench_lattice_results.md).
 USEFUL_FINEST_FRACTION = 0.4
-# The law a^p behind a density's error bar (module docstring). The three-point Laplacian's error is O(a^2)
-# (common practice), and so is the density's on default ladders; but at spacings of half the shortest length
-# and more its local order falls to 0.5-1.7, where p = 2 or 3/2 would under-cover. p = 1 holds both: measured
-# on 1+1 and 2+1 against two-body and three-body densities (bench_lattice_results.md, "Density error bars").
+# The law a^p behind the error bar of a density from two spacings (module docstring). The density's error is
+# O(a^2) on default ladders; at spacings of half the shortest length and more its local order falls to
+# 0.5-1.7, where p = 2 or 3/2 would under-cover. p = 1 holds both: measured on 1+1 and 2+1 against two-body and
+# three-body densities (bench_lattice_results.md, "Density error bars").
 DENSITY_POWER = 1.0
+# Degree of the spline that carries a coarser lattice's densities onto the finest sites: a cubic one's error
+# (~a^4 times the fourth derivative) dominated the extrapolated density of a heavy species (bench_lattice_results.md).
+DENSITY_SPLINE_DEGREE = 5
 
 # The discretization parameters every lattice backend takes.
 LADDER_PARAMETERS = (
@@ -493,11 +499,11 @@ def solve_continuum_ladder(
         for rank, key in enumerate(outcome.keys):
             found, notes = finest.observe(outcome.final.levels[key].payload, rank)
             if len(grids) >= 2:
-                before = densities[-2][outcome.rungs[-2].levels[key].payload]
-                for name, site_density in zip(("up", "down"), before):
+                ladder_densities = [found_on[rung.levels[key].payload] for found_on, rung in zip(densities, outcome.rungs)]
+                for s, name in enumerate(("up", "down")):
                     observable = found.get(f"density_{name}{'' if rank == 0 else f'@{rank}'}")
                     if observable is not None:
-                        observable.error = density_error(observable.values, site_density, grids[-2], grid)
+                        observable.values, observable.error = continuum_density(grids, [d[s] for d in ladder_densities])
             observables.update(found)
             warnings.extend(n for n in notes if n not in warnings)
     return Solution(
@@ -513,21 +519,35 @@ def solve_continuum_ladder(
             "spacings": [g.spacing for g in grids],
             "sites": [g.sites for g in grids],
             **outcome.diagnostics(),
-            "observables_on": f"sites of the finest lattice (a = {grid.spacing:.6g}), not extrapolated;"
-            f" density bars from the spacing before (a^{DENSITY_POWER:g} law)",
+            "observables_on": f"sites of the finest lattice (a = {grid.spacing:.6g}); densities extrapolated"
+            f" ({'a^2, the two finest spacings' if len(grids) >= 3 else 'not: two spacings'}), the others not",
             **({"fitted_to_budget": ladder.fitted} if ladder.fitted else {}),
         },
         warnings=warnings,
     )
 
 
-def density_error(density: np.ndarray, site_density_before: np.ndarray, before: Grid, finest: Grid) -> float:
-    """Error bar of the finest lattice's ``density`` (1/length, on its sites): the largest change over the
-    grid from the lattice ``before`` (its site occupations, interpolated by a cubic spline) as the
-    remainder of an a^``DENSITY_POWER`` law."""
-    previous = CubicSpline(before.x, np.asarray(site_density_before) / before.spacing)(finest.x)
-    change = float(np.max(np.abs(density - previous)))
-    return two_rung_remainder([before.spacing, finest.spacing], change, DENSITY_POWER)
+def continuum_density(grids: Sequence[Grid], site_densities: Sequence[np.ndarray]) -> tuple[np.ndarray, float]:
+    """(density in 1/length on the finest grid's sites, error bar) from one species' site occupations <n_j> on
+    every lattice of a ladder (coarsest first), as the module docstring states: Richardson's a^2 rule on the
+    two finest spacings, its change from the same rule on the two before as the bar; with two spacings, the
+    finest density and the a^``DENSITY_POWER`` remainder of its change."""
+    finest = grids[-1]
+    on_finest = [
+        np.asarray(n) / g.spacing if g is finest
+        else make_interp_spline(g.x, np.asarray(n) / g.spacing, k=DENSITY_SPLINE_DEGREE)(finest.x)
+        for g, n in zip(grids, site_densities)
+    ]
+    spacings = [g.spacing for g in grids]
+    if len(grids) == 2:
+        change = float(np.max(np.abs(on_finest[1] - on_finest[0])))
+        return on_finest[1], two_rung_remainder(spacings, change, DENSITY_POWER)
+
+    def richardson(fine: int, coarse: int) -> np.ndarray:
+        return on_finest[fine] + (on_finest[fine] - on_finest[coarse]) / ((spacings[coarse] / spacings[fine]) ** 2 - 1)
+
+    value = richardson(-1, -2)
+    return value, float(np.max(np.abs(value - richardson(-2, -3))))
 
 
 # ----------------------------------------------------------------------------- momentum space
