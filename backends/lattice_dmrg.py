@@ -167,7 +167,7 @@ def extrapolate_truncation(stages: list[dict]) -> tuple[float, float]:
 
 class LatticeDMRGBackend(Backend):
     name = "lattice-dmrg"
-    version = "2"
+    version = "3"  # 3: densities extrapolated to the continuum with a bar (energies as in 2)
     summary = "Two-site DMRG (tenpy) on a finite-difference lattice, extrapolated in discarded weight and spacing"
     libraries = ("tenpy",)
     parameters = (
