@@ -535,7 +535,7 @@ def continuum_density(grids: Sequence[Grid], site_densities: Sequence[np.ndarray
     finest = grids[-1]
     on_finest = [
         np.asarray(n) / g.spacing if g is finest
-        else make_interp_spline(g.x, np.asarray(n) / g.spacing, k=DENSITY_SPLINE_DEGREE)(finest.x)
+        else make_interp_spline(g.x, np.asarray(n) / g.spacing, k=min(DENSITY_SPLINE_DEGREE, g.sites - 1))(finest.x)
         for g, n in zip(grids, site_densities)
     ]
     spacings = [g.spacing for g in grids]

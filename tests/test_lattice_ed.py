@@ -322,3 +322,23 @@ def test_densities_from_three_spacings_are_extrapolated_and_their_bars_cover_thr
         unextrapolated = float(np.max(np.abs(finest_observables[name].values - truth)))
         assert error <= density.error
         assert error <= unextrapolated / 5
+
+
+def test_continuum_density_removes_the_a2_term_and_its_bar_holds_what_is_left():
+    # site occupations a (f + a^2 u + a^4 w) of smooth f, u, w: Richardson's rule on the two finest spacings a1 < a2
+    # cancels the a^2 term and leaves -a1^2 a2^2 w (closed form) plus the spline's error; the bar holds it
+    problem = Problem.create(1, 1, 2.0)
+    grids = [lattice.make_grid(problem, a, 5.0) for a in (0.3, 0.22, 0.16)]
+    f = lambda x: np.exp(-x**2) / np.sqrt(np.pi)  # noqa: E731
+    u = lambda x: (x**2 - 0.5) * np.exp(-x**2)  # noqa: E731
+    w = lambda x: np.exp(-(x**2) / 2)  # noqa: E731
+    occupations = [g.spacing * (f(g.x) + g.spacing**2 * u(g.x) + g.spacing**4 * w(g.x)) for g in grids]
+    density, bar = lattice.continuum_density(grids, occupations)
+    finest = grids[-1]
+    error = float(np.max(np.abs(density - f(finest.x))))
+    left = (grids[-1].spacing * grids[-2].spacing) ** 2 * float(np.max(np.abs(w(finest.x))))
+    assert error == pytest.approx(left, rel=1e-2)
+    assert error <= bar
+    two = lattice.continuum_density(grids[1:], occupations[1:])  # two spacings: the finest, with an a^1 bar
+    np.testing.assert_allclose(two[0], occupations[-1] / finest.spacing)
+    assert float(np.max(np.abs(two[0] - f(finest.x)))) <= two[1]
