@@ -49,24 +49,16 @@ def test_the_sixth_order_suite_is_the_grids_ground_states_from_four_to_six_parti
     assert [(plan.name, plan.param_sets) for plan in suite.backends] == [("lattice-dmrg", ({"continuum_order": 6},))]
 
 
-# suite points whose sixth-order run is not in the shipped file yet, with the reason
-SIXTH_ORDER_NOT_YET_SHIPPED = {
-    "3+3|6.66666666667|1|20": "the majority 20/3 times heavier at g = 20 had not finished after ~3600 CPU s (its N = 4"
-    " analogue took 2205 s) when dataset version 3 was built",
-}
-
-
 def test_the_shipped_dataset_holds_the_sixth_order_suite_at_every_point_it_covers():
     shipped = dataset.load()
     assert shipped.version == dataset.DATASET_VERSION
     suite = load_suite("dataset-order6")
     keys = {dataset.problem_key(point) for problem in suite.problems for point in problem.problem.points()}
     ground = {entry.key: entry.levels[0] for entry in shipped.entries}
-    assert keys <= set(ground) and set(SIXTH_ORDER_NOT_YET_SHIPPED) <= keys
+    assert keys <= set(ground)
     for key in keys:
         runs = ground[key].runs
-        has_run = any(run.backend == "lattice-dmrg" and run.params.get("continuum_order") == 6 for run in runs)
-        assert has_run != (key in SIXTH_ORDER_NOT_YET_SHIPPED), key
+        assert any(run.backend == "lattice-dmrg" and run.params.get("continuum_order") == 6 for run in runs), key
 
 
 def test_two_independent_families_that_agree_are_published():
