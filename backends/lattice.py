@@ -35,9 +35,10 @@ refused only when no useful ladder fits (``fit_to_budget``).
 Densities are extrapolated to the continuum on the finest lattice's sites (``continuum_density``): each
 coarser lattice's site densities are interpolated onto those sites (a quintic spline), and the a^2 law of the
 three-point Laplacian (common practice) is removed by Richardson's rule from the two finest spacings,
-n = n_1 + (n_1 - n_2) / (r^2 - 1), r = a_2 / a_1. The error bar is the largest change over the grid from the same
-rule on the two spacings before. A two-spacing ladder reports the finest density with its largest change from
-the other one as the remainder of an a^p law, p = ``DENSITY_POWER`` (``ladder.two_rung_remainder``).
+n = n_1 + (n_1 - n_2) / (r^2 - 1), r = a_2 / a_1. Its error bar is the largest change over the grid from the
+same rule on the two spacings before, as the remainder of a law h^p in the pair's mean spacing h = sqrt(a_1 a_2),
+p = ``RICHARDSON_POWER`` (``ladder.two_rung_remainder``). A two-spacing ladder reports the finest density with
+its largest change from the other one as the remainder of an a^p law, p = ``DENSITY_POWER``.
 The other observables on a grid (one-body density matrix, momentum distribution, pair correlations) carry
 none (``error`` None): their grids move with the spacing, and the pair correlation's cusp would put the
 interpolation's error into the bar.
@@ -274,6 +275,10 @@ DENSITY_POWER = 1.0
 # Degree of the spline that carries a coarser lattice's densities onto the finest sites: a cubic one's error
 # (~a^4 times the fourth derivative) dominated the extrapolated density of a heavy species (bench_lattice_results.md).
 DENSITY_SPLINE_DEGREE = 5
+# The law h^p behind the bar of a Richardson density (module docstring). Its residual is O(a^4), i.e. h^4, which
+# makes the change from the pair before only (a_3/a_1)^2 - 1 times the error: 1.44 on lattice-dmrg's default
+# ladders, where a bar of the change alone fell short once in 16 (bench_lattice_results.md); p = 2 is half that order.
+RICHARDSON_POWER = 2.0
 
 # The discretization parameters every lattice backend takes.
 LADDER_PARAMETERS = (
@@ -530,8 +535,8 @@ def solve_continuum_ladder(
 def continuum_density(grids: Sequence[Grid], site_densities: Sequence[np.ndarray]) -> tuple[np.ndarray, float]:
     """(density in 1/length on the finest grid's sites, error bar) from one species' site occupations <n_j> on
     every lattice of a ladder (coarsest first), as the module docstring states: Richardson's a^2 rule on the
-    two finest spacings, its change from the same rule on the two before as the bar; with two spacings, the
-    finest density and the a^``DENSITY_POWER`` remainder of its change."""
+    two finest spacings, the h^``RICHARDSON_POWER`` remainder of its change from the same rule on the two before
+    as the bar; with two spacings, the finest density and the a^``DENSITY_POWER`` remainder of its change."""
     finest = grids[-1]
     on_finest = [
         np.asarray(n) / g.spacing if g is finest
@@ -547,7 +552,9 @@ def continuum_density(grids: Sequence[Grid], site_densities: Sequence[np.ndarray
         return on_finest[fine] + (on_finest[fine] - on_finest[coarse]) / ((spacings[coarse] / spacings[fine]) ** 2 - 1)
 
     value = richardson(-1, -2)
-    return value, float(np.max(np.abs(value - richardson(-2, -3))))
+    change = float(np.max(np.abs(value - richardson(-2, -3))))
+    mean_spacings = [math.sqrt(spacings[-3] * spacings[-2]), math.sqrt(spacings[-2] * spacings[-1])]
+    return value, two_rung_remainder(mean_spacings, change, RICHARDSON_POWER)
 
 
 # ----------------------------------------------------------------------------- momentum space
