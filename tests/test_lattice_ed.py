@@ -308,7 +308,8 @@ def test_lattice_densities_carry_error_bars_that_cover_three_body_densities(mass
 @pytest.mark.parametrize("mass_up, mass_down, g", [(1.0, 1.0, -3.0), (1.0, 2.0, -3.0), (2.0, 1.0, 5.0)])
 def test_densities_from_three_spacings_are_extrapolated_and_their_bars_cover_three_body(mass_up, mass_down, g):
     # Richardson's a^2 rule on the two finest of three coarse spacings (measured gain over the finest lattice's own
-    # density 7-60 here), its bar the change from the same rule one spacing coarser; three-body's densities as truth.
+    # density 7-60 here), its bar the change from the same rule one spacing coarser as an h^2 remainder; three-body's
+    # densities as truth.
     problem = Problem.create(2, 1, g, mass_up=mass_up, mass_down=mass_down, observables=["density"])
     spacings = [f * lattice.length_scale(problem) for f in (0.6, 0.45, 0.34)]
     result = BACKEND.solve(problem, spacings=spacings, x_max=5.0)
