@@ -177,9 +177,9 @@ momenta use phi~_n(p) = (-i)^n phi_n(p; 1/b_s), normalized to int n_s(p) dp = N_
 (``ladder.grid_error``). Measured on 2+1 against ``three-body`` densities (mass ratios 0.15-20/3): the
 density error falls like c^-1.5 ... c^-1.9, faster than the c^-2/3 the rule assumes, so the bars are
 wide (numbers in tests/test_oscillator_ed.py). At four to six particles, against lattice-dmrg's densities
-extrapolated to the continuum (2+2, 3+1, 3+2, 3+3; masses 1, 2, 20/3; g = -2 ... 5; defaults): 8 of 16 densities
-graded (the lattice bar at most a tenth of this one), all within one bar, median bar 3.4 times the deviation; the
-other 8 lie within 0.23-0.45 of their bar too
+extrapolated to the continuum (2+2, 3+1, 3+2, 3+3; masses 1, 2, 20/3; g = -2 ... 5; defaults; the lattice's spacings
+0.7 times its defaults where its bar was not yet a tenth of this one): 16 of 16 densities within one bar, median bar
+3.2 times the deviation
 (``bench/benchmarks/bench_density_bars.py``, bench_oscillator_results.md). The Gaussian
 tails of a finite oscillator basis cannot show the C/k^4 contact tail: the ``contact`` scalar comes
 from <sum delta> instead. The virial residual E - 2<V_trap> - (g/2) <sum delta> (virial theorem, from

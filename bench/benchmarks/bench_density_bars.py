@@ -2,7 +2,7 @@
 
 Run by hand (not part of the test suite):
 
-    python bench/benchmarks/bench_density_bars.py [--problem 2+2:1:1:2 ...] [--out lines.jsonl]
+    python bench/benchmarks/bench_density_bars.py [--problem 2+2:1:1:2 ...] [--spacing-factor F] [--out lines.jsonl]
 
 No exact density exists beyond three particles, so each problem (N_up+N_down:mass_up:mass_down:g; default the
 list below) is solved with the default parameters of both backends: lattice-dmrg's densities are extrapolated to
@@ -11,6 +11,8 @@ in ``bench_lattice_results.md``), and they grade oscillator-ed's grids where tha
 oscillator-ed's (the project's rule). Reported per density: both bars, the largest deviation over oscillator-ed's
 grid (lattice-dmrg carried onto it by a quintic spline), deviation / oscillator-ed bar, and CPU seconds. Each
 problem runs in a fresh process with one BLAS thread; lines are appended to ``--out`` as they finish.
+``--spacing-factor`` scales lattice-dmrg's default spacings (e.g. 0.75: a tighter reference, its bar ~ a^4, at
+about twice the cost).
 """
 
 from __future__ import annotations
@@ -28,8 +30,9 @@ DEFAULT_PROBLEMS = (
 )
 
 
-def grade_one(spec: str) -> list[dict]:
-    """In a fresh process: both backends with defaults; one row per species' density."""
+def grade_one(spec: str, spacing_factor: float = 1.0) -> list[dict]:
+    """In a fresh process: both backends with defaults (lattice-dmrg's spacings scaled by ``spacing_factor``); one
+    row per species' density."""
     import time
 
     import numpy as np
@@ -43,11 +46,16 @@ def grade_one(spec: str) -> list[dict]:
     n_up, n_down = (int(n) for n in counts.split("+"))
     problem = Problem.create(n_up, n_down, float(g), mass_up=float(mass_up), mass_down=float(mass_down),
                              observables=["density"])
+    lattice_backend = registry.get("lattice-dmrg")
+    defaults = lattice_backend.resolve_params({})
+    spacings = [spacing_factor * a for a in lattice_backend.ladder(problem, defaults).spacings]
+    scaled = {"spacings": spacings, "max_sites": int(defaults["max_sites"] / spacing_factor) + 1}  # the budget scaled alike
+    params = {"oscillator-ed": {}, "lattice-dmrg": {} if spacing_factor == 1.0 else scaled}
     solved, cpu = {}, {}
     with threadpool_limits(1):
         for name in ("oscillator-ed", "lattice-dmrg"):
             start = time.process_time()
-            solved[name] = registry.get(name).solve(problem)
+            solved[name] = registry.get(name).solve(problem, **params[name])
             cpu[name] = time.process_time() - start
     rows = []
     for species in ("up", "down"):
@@ -56,7 +64,7 @@ def grade_one(spec: str) -> list[dict]:
         on_grid = make_interp_spline(lattice.axes["x"], lattice.values, k=5)(oscillator.axes["x"])
         deviation = float(np.max(np.abs(oscillator.values - on_grid)))
         rows.append({
-            "problem": spec, "species": species, "oscillator_bar": oscillator.error, "lattice_bar": lattice.error,
+            "problem": spec, "spacing_factor": spacing_factor, "species": species, "oscillator_bar": oscillator.error, "lattice_bar": lattice.error,
             "deviation": deviation, "graded": lattice.error <= oscillator.error / 10,
             "cpu_oscillator": cpu["oscillator-ed"], "cpu_lattice": cpu["lattice-dmrg"],
         })
@@ -80,15 +88,17 @@ def table(rows: list[dict]) -> str:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--problem", action="append", help="N_up+N_down:mass_up:mass_down:g (repeatable)")
+    parser.add_argument("--spacing-factor", type=float, default=1.0, help="scale lattice-dmrg's default spacings (default 1)")
     parser.add_argument("--out", type=Path, help="append each problem's rows as a JSON line")
     parser.add_argument("--worker", help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.worker:
-        print(json.dumps(grade_one(args.worker)))
+        print(json.dumps(grade_one(args.worker, args.spacing_factor)))
         return
     rows = []
     for spec in args.problem or DEFAULT_PROBLEMS:
-        done = subprocess.run([sys.executable, __file__, "--worker", spec], capture_output=True, text=True)
+        done = subprocess.run([sys.executable, __file__, "--worker", spec, "--spacing-factor", str(args.spacing_factor)],
+                              capture_output=True, text=True)
         if done.returncode != 0:
             print(f"{spec}: failed\n{done.stderr.strip().splitlines()[-1] if done.stderr.strip() else ''}", file=sys.stderr)
             continue
