@@ -504,7 +504,7 @@ def solve_continuum_ladder(
         for rank, key in enumerate(outcome.keys):
             found, notes = finest.observe(outcome.final.levels[key].payload, rank)
             if len(grids) >= 2:
-                ladder_densities = [found_on[rung.levels[key].payload] for found_on, rung in zip(densities, outcome.rungs)]
+                ladder_densities = [on_rung[rung.levels[key].payload] for on_rung, rung in zip(densities, outcome.rungs)]
                 for s, name in enumerate(("up", "down")):
                     observable = found.get(f"density_{name}{'' if rank == 0 else f'@{rank}'}")
                     if observable is not None:
@@ -524,8 +524,9 @@ def solve_continuum_ladder(
             "spacings": [g.spacing for g in grids],
             "sites": [g.sites for g in grids],
             **outcome.diagnostics(),
-            "observables_on": f"sites of the finest lattice (a = {grid.spacing:.6g}); densities extrapolated"
-            f" ({'a^2, the two finest spacings' if len(grids) >= 3 else 'not: two spacings'}), the others not",
+            "observables_on": f"sites of the finest lattice (a = {grid.spacing:.6g}); densities "
+            + ("extrapolated (a^2, the two finest spacings)" if len(grids) >= 3 else "not extrapolated (two spacings)")
+            + ", the other observables not extrapolated",
             **({"fitted_to_budget": ladder.fitted} if ladder.fitted else {}),
         },
         warnings=warnings,

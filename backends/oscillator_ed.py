@@ -179,8 +179,7 @@ density error falls like c^-1.5 ... c^-1.9, faster than the c^-2/3 the rule assu
 wide (numbers in tests/test_oscillator_ed.py). At four to six particles, against lattice-dmrg's densities
 extrapolated to the continuum (2+2, 3+1, 3+2, 3+3; masses 1, 2, 20/3; g = -2 ... 5; defaults; the lattice's spacings
 0.7 times its defaults where its bar was not yet a tenth of this one): 16 of 16 densities within one bar, median bar
-3.2 times the deviation
-(``bench/benchmarks/bench_density_bars.py``, bench_oscillator_results.md). The Gaussian
+3.2 times the deviation (``bench/benchmarks/bench_density_bars.py``, bench_oscillator_results.md). The Gaussian
 tails of a finite oscillator basis cannot show the C/k^4 contact tail: the ``contact`` scalar comes
 from <sum delta> instead. The virial residual E - 2<V_trap> - (g/2) <sum delta> (virial theorem, from
 scaling x -> s x) is in ``diagnostics``; it vanishes as the basis converges.
