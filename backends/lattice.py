@@ -503,12 +503,11 @@ def solve_continuum_ladder(
     if finest.observe is not None:
         for rank, key in enumerate(outcome.keys):
             found, notes = finest.observe(outcome.final.levels[key].payload, rank)
-            if len(grids) >= 2:
-                ladder_densities = [on_rung[rung.levels[key].payload] for on_rung, rung in zip(densities, outcome.rungs)]
-                for s, name in enumerate(("up", "down")):
-                    observable = found.get(f"density_{name}{'' if rank == 0 else f'@{rank}'}")
-                    if observable is not None:
-                        observable.values, observable.error = continuum_density(grids, [d[s] for d in ladder_densities])
+            ladder_densities = [on_rung[rung.levels[key].payload] for on_rung, rung in zip(densities, outcome.rungs)]
+            for s, name in enumerate(("up", "down")):  # a ladder has two spacings or more (``resolve_ladder``)
+                observable = found.get(f"density_{name}{'' if rank == 0 else f'@{rank}'}")
+                if observable is not None:
+                    observable.values, observable.error = continuum_density(grids, [d[s] for d in ladder_densities])
             observables.update(found)
             warnings.extend(n for n in notes if n not in warnings)
     return Solution(
